@@ -1,0 +1,103 @@
+"""`fieldtool expect`: what every node of a board should read."""
+
+from __future__ import annotations
+
+import json
+import math
+
+from fieldtool.core.expect import Expectation, expect
+from fieldtool.core.profile import load_profile
+
+
+def register(subparsers) -> None:
+    """Add the `expect` subcommand."""
+    p = subparsers.add_parser(
+        "expect",
+        help="expected reading at every node of a board, and its safety figures",
+        description="Expected DC reading (as the meter reads it) and ripple at every node.",
+    )
+    p.add_argument("profile", help="board profile (.toml), e.g. profiles/tidegauge-apd-bias.toml")
+    p.add_argument("--load-ohms", type=float, help="use this load instead of the profile's")
+    p.add_argument("--json", action="store_true", help="one JSON object on stdout")
+    p.set_defaults(handler=run)
+
+
+def run(args) -> int:
+    """Handle `fieldtool expect`."""
+    profile = load_profile(args.profile)
+    if args.load_ohms is not None:
+        profile = profile.with_load_ohms(args.load_ohms)
+    result = expect(profile)
+    print(json.dumps(to_json(result), indent=2) if args.json else to_text(result))
+    return 0
+
+
+def _num(x: float | None) -> float | None:
+    return None if x is None or not math.isfinite(x) else float(x)
+
+
+def to_json(e: Expectation) -> dict:
+    """The JSON shape shared by `expect` and `inject`."""
+    return {
+        "profile": e.profile.name,
+        "nodes": [
+            {
+                "node": n.node,
+                "label": n.label,
+                "volts": round(n.volts, 6),
+                "ripple_vpp": round(n.ripple_vpp, 6),
+                "unloaded_volts": round(n.unloaded_volts, 6),
+                "meter_loading_matters": e.loading_matters(n),
+            }
+            for n in e.nodes
+        ],
+        "output_node": e.output_node,
+        "output_volts": e.output_volts,
+        "output_ripple_vpp": e.output_ripple_vpp,
+        "supply_current_a": e.supply_current_a,
+        "drive_current_a": e.drive_current_a,
+        "efficiency": _num(e.efficiency),
+        "output_ohms": _num(e.output_ohms),
+        "startup_s": _num(e.startup_s),
+        "discharge_s": _num(e.discharge_s),
+        "safe_volts": e.safe_volts,
+        "stored_energy_j": e.stored_energy_j,
+        "converged": e.converged,
+        "residual_volts": e.residual_volts,
+    }
+
+
+def _si(x: float | None, unit: str) -> str:
+    if x is None or not math.isfinite(x):
+        return "n/a"
+    for scale, prefix in ((1e6, "M"), (1e3, "k"), (1, ""), (1e-3, "m"), (1e-6, "µ"), (1e-9, "n")):
+        if abs(x) >= scale or scale == 1e-9:
+            return f"{x / scale:.4g} {prefix}{unit}"
+    return f"{x:g} {unit}"
+
+
+def to_text(e: Expectation) -> str:
+    """A readable table of nodes and the board figures."""
+    p = e.profile
+    lines = [
+        f"{p.name}: {p.topology}, {p.polarity}, {p.stages} stages, drive {p.drive_volts:g} V "
+        f"at {_si(p.frequency_hz, 'Hz')}, meter {_si(p.meter_ohms, 'Ω')}",
+        "",
+        f"{'node':<6}{'test pt':<9}{'expect DC':>12}{'ripple p-p':>13}   note",
+    ]
+    for n in e.nodes:
+        note = f"meter pulls it {n.loading_volts:+.3g} V" if e.loading_matters(n) else ""
+        lines.append(f"{n.node:<6}{n.label:<9}{n.volts:>10.3f} V{n.ripple_vpp:>11.4f} V   {note}")
+    lines += [
+        "",
+        f"output {e.output_node}: {e.output_volts:.3f} V, ripple {_si(e.output_ripple_vpp, 'V')}"
+        f" p-p, output impedance {_si(e.output_ohms, 'Ω')}",
+        f"supply current {_si(e.supply_current_a, 'A')}, drive-rail current "
+        f"{_si(e.drive_current_a, 'A')}, efficiency {e.efficiency:.1%}",
+        f"start-up to 90 %: {_si(e.startup_s, 's')} (estimate from the linearised period map)",
+        f"stored energy {_si(e.stored_energy_j, 'J')}; after power-off, below "
+        f"{e.safe_volts:g} V in {_si(e.discharge_s, 's')}",
+        "CAUTION: capacitors hold charge after power-off. Discharge through a rated resistor and "
+        "verify with the meter before touching; follow local codes and licensed practice.",
+    ]
+    return "\n".join(lines)

@@ -1,0 +1,83 @@
+"""Profile validation: each class of mistake is refused with a message naming file and key."""
+
+from pathlib import Path
+
+import pytest
+
+from fieldtool.core.errors import ProfileError
+from fieldtool.core.profile import load_profile
+from tests.conftest import PROFILES, make_profile
+
+
+def test_shipped_profiles_load():
+    assert len(PROFILES) >= 3
+    topologies = {load_profile(p).topology for p in PROFILES}
+    polarities = {load_profile(p).polarity for p in PROFILES}
+    assert {"dc-ladder", "ac-ladder"} <= topologies
+    assert "negative" in polarities
+
+
+@pytest.mark.parametrize(
+    "sections, expected",
+    [
+        ({"board": {"stages": 0}}, "[board.stages] is 0, expected a whole number from 1 to 40"),
+        ({"board": {"stages": 2.5}}, "[board.stages] is 2.5, expected a whole number"),
+        ({"board": {"topology": "bridge"}}, "[board.topology] is 'bridge', expected one of"),
+        ({"board": {"name": None}}, '[board.name] is missing: add `name = "..."`'),
+        (
+            {"capacitor": {"farads": -1e-6}},
+            "[capacitor.farads] is -1e-06, expected a number greater than 0",
+        ),
+        ({"capacitor": {"tolerance": 1.0}}, "[capacitor.tolerance] is 1, expected less than 1"),
+        ({"drive": {"frequency_hz": 0}}, "[drive.frequency_hz] is 0, expected a number greater"),
+        ({"drive": {"volts": "12"}}, "[drive.volts] is '12' (str), expected a number"),
+        ({"drive": {"colour": "red"}}, "[drive.colour] is not a known key"),
+        ({"load": {"amps": 0.001}}, "[load.amps] given together with ohms"),
+        ({"load": {"ohms": None}}, "[load.ohms] is missing"),
+        ({"supply": None}, "[supply] section is missing"),
+        ({"extra": {"x": 1}}, "[extra] is not a known section"),
+        ({"labels": {"S9": "TP9"}}, "node 'S9' is not on this board"),
+        ({"overrides": {"D99": {"series_ohms": 1.0}}}, "designator 'D99' is not on this board"),
+        ({"diode": {"forward_volts": 0.6}}, "given together with forward_volts"),
+    ],
+)
+def test_profile_mistakes_have_clear_messages(sections, expected):
+    with pytest.raises(ProfileError) as info:
+        make_profile(**sections)
+    assert expected in str(info.value)
+    assert str(info.value).startswith("<test>: ")
+
+
+def test_missing_file_and_bad_toml(tmp_path: Path):
+    with pytest.raises(ProfileError, match="no such file"):
+        load_profile(tmp_path / "absent.toml")
+    bad = tmp_path / "bad.toml"
+    bad.write_text("[board\nname = 1\n")
+    with pytest.raises(ProfileError, match=r"bad.toml: is not valid TOML"):
+        load_profile(bad)
+
+
+def test_forward_drop_form_gives_that_drop():
+    # Shockley equation: I = Is (exp(V / (n Vt)) - 1) must return forward_amps at forward_volts.
+    import math
+
+    p = make_profile(
+        diode={
+            "saturation_current_a": None,
+            "emission_coefficient": 2.0,
+            "series_ohms": 0.0,
+            "forward_volts": 0.6,
+            "forward_amps": 0.001,
+        }
+    )
+    d = p.diode
+    i = d.saturation_current_a * math.expm1(0.6 / (d.emission_coefficient * p.thermal_volts))
+    assert i == pytest.approx(0.001, rel=1e-12)
+
+
+def test_digest_changes_with_content(tmp_path: Path):
+    src = PROFILES[0].read_text()
+    a, b = tmp_path / "a.toml", tmp_path / "b.toml"
+    a.write_text(src)
+    b.write_text(src.replace("stages = ", "stages =  "))
+    assert load_profile(a).digest != load_profile(b).digest
