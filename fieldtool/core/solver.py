@@ -198,16 +198,27 @@ class Period:
     src: np.ndarray  # (B, T, s) source voltages at the end of each step
     monodromy: np.ndarray | None  # (B, m, m)
     newton_iterations: int
+    vj: np.ndarray | None = None  # (B, T, k) diode junction voltages at the end of each step
 
 
 def run_period(
-    net: Network, x0: np.ndarray, times: np.ndarray, state: StepState, sens: bool
+    net: Network,
+    x0: np.ndarray,
+    times: np.ndarray,
+    state: StepState,
+    sens: bool,
+    guess: Period | None = None,
 ) -> Period:
-    """Integrate one period from capacitor voltages x0."""
+    """Integrate one period from capacitor voltages x0.
+
+    With ``guess`` (an earlier period on the same grid), each step's Newton iteration starts
+    from that period's solution at the same instant instead of from the previous step.
+    """
     B, m = x0.shape
     T = len(times) - 1
     n = net.circuit.n
     V = np.empty((B, T, n))
+    VJ = np.empty((B, T, state.vj.shape[1]))
     X = np.empty((B, T, m))
     M = np.broadcast_to(np.eye(m), (B, m, m)).copy() if sens else None
     SRC = net.sources_on(times[1:])
@@ -216,12 +227,14 @@ def run_period(
     x = x0
     total = 0
     for k in range(T):
+        if guess is not None:
+            state.v, state.vj = guess.v[:, k], guess.vj[:, k]
         x, S, it = step(net, x, state, inj[:, k], steps[k], sens)
         total += it
         if sens:
             M = S @ M
-        V[:, k], X[:, k] = state.v, x
-    return Period(times, x0, x, V, X, SRC, M, total)
+        V[:, k], X[:, k], VJ[:, k] = state.v, x, state.vj
+    return Period(times, x0, x, V, X, SRC, M, total, VJ)
 
 
 @dataclass(frozen=True)
@@ -255,10 +268,11 @@ def steady_state(
     fallback = 0
     iterations = 0
     best = None
+    per = None
     for attempt in range(2):
         for _ in range(max_iterations):
             iterations += 1
-            per = run_period(net, x, times, state, sens=True)
+            per = run_period(net, x, times, state, sens=True, guess=per)
             r = per.x_end - x
             res = np.abs(r).max(axis=1)
             scale = 1.0 + np.abs(x).max(axis=1)
@@ -277,6 +291,7 @@ def steady_state(
             for _ in range(20):
                 x = run_period(net, x, times, state, sens=False).x_end
                 fallback += 1
+            per = None
     per, ok, res = best
     return SteadyState(per, ok, res, iterations, fallback)
 
