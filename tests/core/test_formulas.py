@@ -119,3 +119,19 @@ def test_shooting_equals_long_transient():
     assert np.abs(periods[-1].x_end - periods[-2].x_end).max() < 1e-6  # settled
     tr_avg = period_average(periods[-1])
     assert np.abs(tr_avg - period_average(ss.period)).max() < 1e-3
+
+
+def test_startup_estimate_against_plain_transient():
+    """Internal consistency: the start-up estimate (linearised period map) against a plain
+    transient from all-discharged, within 35 % (the estimate treats the diodes as they conduct
+    in steady state, while at start-up they conduct harder)."""
+    p = make_profile(board={"stages": 2}, load={"ohms": 1000.0}, capacitor={"farads": 0.3e-6})
+    circuit, params = build_circuit(p)
+    e = expect(p)
+    periods = transient(circuit, params, np.zeros((1, len(circuit.cap_refs))), 150)
+    o = circuit.output_node - 1
+    final = e.output_volts
+    averages = [period_average(per)[0, o] for per in periods]
+    reached = next(k for k, v in enumerate(averages) if v >= 0.9 * final)
+    actual = (reached + 1) * circuit.period_s
+    assert e.startup_s == pytest.approx(actual, rel=0.35)
