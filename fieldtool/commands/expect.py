@@ -47,6 +47,8 @@ def to_json(e: Expectation) -> dict:
                 "volts": round(n.volts, 6),
                 "ripple_vpp": round(n.ripple_vpp, 6),
                 "unloaded_volts": round(n.unloaded_volts, 6),
+                "min_volts": round(n.min_volts, 6),
+                "max_volts": round(n.max_volts, 6),
                 "meter_loading_matters": e.loading_matters(n),
             }
             for n in e.nodes
