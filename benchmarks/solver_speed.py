@@ -44,6 +44,9 @@ def board(stages: int):
     )
 
 
+NGSPICE_LIMIT_S = 120.0  # a run still going after this counts as "more than this"
+
+
 def ngspice_settle(circuit, params, target: float, periods: int) -> tuple[float, int | None]:
     """ngspice wall time to the first period after which the output stays within 1 mV."""
     x0 = initial_state(circuit, params)
@@ -54,7 +57,16 @@ def ngspice_settle(circuit, params, target: float, periods: int) -> tuple[float,
     with tempfile.TemporaryDirectory() as d:
         Path(d, "c.cir").write_text(netlist)
         t0 = time.perf_counter()
-        subprocess.run(["ngspice", "-b", "c.cir"], cwd=d, capture_output=True, check=True)
+        try:
+            subprocess.run(
+                ["ngspice", "-b", "c.cir"],
+                cwd=d,
+                capture_output=True,
+                check=True,
+                timeout=NGSPICE_LIMIT_S,
+            )
+        except subprocess.TimeoutExpired:
+            return NGSPICE_LIMIT_S, None
         wall = time.perf_counter() - t0
         data = np.loadtxt(Path(d, "out.txt"))
     t, v = data[:, 0], data[:, 1]
