@@ -1,0 +1,48 @@
+"""A SCPI (IEEE 488.2) bench meter read over a transport."""
+
+from __future__ import annotations
+
+from fieldtool.meters.errors import MeterGarbage
+from fieldtool.meters.parse import Reading, parse_scpi_number
+from fieldtool.meters.settings import MeterSettings
+from fieldtool.meters.transport import Transport
+
+
+class ScpiMeter:
+    """Ask a SCPI meter who it is, set it to DC volts, then read on request."""
+
+    def __init__(self, transport: Transport, settings: MeterSettings | None = None) -> None:
+        self.transport = transport
+        self.settings = settings or MeterSettings()
+        self.identity: str | None = None
+
+    def _send(self, command: str) -> None:
+        self.transport.write((command + self.settings.terminator).encode("ascii"))
+
+    def _ask(self, command: str) -> str:
+        self._send(command)
+        raw = self.transport.readline(self.settings.timeout_s)
+        return raw.decode("ascii", errors="replace").strip()
+
+    def connect(self) -> str:
+        """Identify the meter (``*IDN?``) and configure DC volts; return the identity."""
+        self.transport.discard_stale()
+        identity = self._ask("*IDN?")
+        if not identity or not identity.isprintable():
+            raise MeterGarbage(f"meter answered *IDN? with {identity!r}; check baud rate")
+        self.identity = identity
+        if self.settings.configure_command:
+            self._send(self.settings.configure_command)
+        return identity
+
+    def read(self) -> Reading:
+        """One reading; a garbled answer is retried once, then MeterGarbage."""
+        try:
+            return parse_scpi_number(self._ask(self.settings.read_command))
+        except MeterGarbage:
+            self.transport.discard_stale()
+            return parse_scpi_number(self._ask(self.settings.read_command))
+
+    def close(self) -> None:
+        """Release the transport."""
+        self.transport.close()

@@ -1,0 +1,119 @@
+"""Meter settings read from a small TOML file; the defaults suit a generic SCPI meter."""
+
+from __future__ import annotations
+
+import tomllib
+from dataclasses import dataclass, field, fields, replace
+from pathlib import Path
+
+from fieldtool.meters.errors import MeterSettingsError
+
+PROTOCOLS = ("scpi", "stream")
+TERMINATORS = ("\n", "\r\n", "\r")
+DEFAULT_STREAM_REGEX = (
+    r"(?P<value>[-+]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][-+]?\d+)?|\bOL\b)\s*(?P<unit>[mkuµ]?V)?"
+)
+
+
+@dataclass(frozen=True)
+class SettleRule:
+    """When a reading counts as settled: ``count`` in a row within percent*|v| + volts."""
+
+    count: int = 3
+    percent: float = 0.2
+    volts: float = 0.005
+    timeout_s: float = 10.0
+
+
+@dataclass(frozen=True)
+class MeterSettings:
+    """How to talk to one meter."""
+
+    protocol: str = "scpi"
+    baud: int = 9600
+    terminator: str = "\n"
+    read_command: str = "READ?"
+    configure_command: str = "CONF:VOLT:DC"
+    stream_regex: str = DEFAULT_STREAM_REGEX
+    timeout_s: float = 2.0
+    settle: SettleRule = field(default_factory=SettleRule)
+
+
+def _check_type(where: str, key: str, value: object, kind: type) -> object:
+    """Return value if it is of ``kind`` (ints allowed for floats), else refuse."""
+    if kind is float and isinstance(value, int) and not isinstance(value, bool):
+        return float(value)
+    if isinstance(value, bool) or not isinstance(value, kind):
+        raise MeterSettingsError(
+            f"{where}: key '{key}' must be {kind.__name__}, not {type(value).__name__} ({value!r})"
+        )
+    return value
+
+
+def _build(cls: type, table: dict, where: str, prefix: str = "") -> dict:
+    """Check every key of ``table`` against the dataclass ``cls`` and return keyword args."""
+    known = {f.name: f for f in fields(cls)}
+    kwargs: dict = {}
+    for key, value in table.items():
+        name = prefix + key
+        if key not in known:
+            allowed = ", ".join(sorted(known))
+            raise MeterSettingsError(f"{where}: unknown key '{name}' (known keys: {allowed})")
+        kind = known[key].type
+        if kind == "SettleRule":
+            if not isinstance(value, dict):
+                raise MeterSettingsError(f"{where}: key '{name}' must be a table [settle]")
+            kwargs[key] = SettleRule(**_build(SettleRule, value, where, prefix="settle."))
+            continue
+        kwargs[key] = _check_type(
+            where, name, value, {"str": str, "int": int, "float": float}[kind]
+        )
+    return kwargs
+
+
+def validate(settings: MeterSettings, where: str = "settings") -> MeterSettings:
+    """Refuse values that are of the right type but unusable."""
+    if settings.protocol not in PROTOCOLS:
+        raise MeterSettingsError(
+            f"{where}: protocol must be scpi or stream, not '{settings.protocol}'"
+        )
+    if settings.baud <= 0:
+        raise MeterSettingsError(f"{where}: baud must be positive, not {settings.baud}")
+    if settings.terminator not in TERMINATORS:
+        raise MeterSettingsError(
+            f'{where}: terminator must be "\\n" or "\\r\\n", not {settings.terminator!r}'
+        )
+    if settings.timeout_s <= 0 or settings.settle.timeout_s <= 0:
+        raise MeterSettingsError(f"{where}: timeouts must be positive seconds")
+    if settings.settle.count < 1:
+        raise MeterSettingsError(f"{where}: settle.count must be at least 1")
+    if settings.settle.percent < 0 or settings.settle.volts < 0:
+        raise MeterSettingsError(f"{where}: settle.percent and settle.volts must not be negative")
+    if settings.protocol == "stream" and "(?P<value>" not in settings.stream_regex:
+        raise MeterSettingsError(f"{where}: stream_regex needs a named group (?P<value>...)")
+    return settings
+
+
+def parse_settings(text: str, where: str = "settings") -> MeterSettings:
+    """Meter settings from TOML text; ``where`` names the file in messages."""
+    try:
+        table = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise MeterSettingsError(f"{where}: not valid TOML ({exc})") from None
+    return validate(MeterSettings(**_build(MeterSettings, table, where)), where)
+
+
+def load_settings(path: str | Path) -> MeterSettings:
+    """Meter settings from a TOML file."""
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except OSError as exc:
+        raise MeterSettingsError(f"{path}: cannot read settings file ({exc.strerror})") from None
+    return parse_settings(text, where=str(path))
+
+
+def with_overrides(settings: MeterSettings, **changes: object) -> MeterSettings:
+    """Settings with the given non-None fields replaced (command-line options)."""
+    chosen = {k: v for k, v in changes.items() if v is not None}
+    return validate(replace(settings, **chosen), "command line")

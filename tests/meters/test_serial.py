@@ -1,0 +1,194 @@
+"""Meters over real pseudo-terminal pairs and pyserial's loop:// (no mocks)."""
+
+import os
+import threading
+import time
+
+import pytest
+import serial
+
+from fieldtool.meters.errors import (
+    MeterDisconnected,
+    MeterGarbage,
+    MeterTimeout,
+    PortMissing,
+    permission_message,
+)
+from fieldtool.meters.scpi import ScpiMeter
+from fieldtool.meters.settings import MeterSettings, SettleRule
+from fieldtool.meters.settle import settle
+from fieldtool.meters.stream import StreamMeter
+from fieldtool.meters.transport import SerialTransport, open_port
+
+
+@pytest.fixture
+def pty_pair():
+    master, slave = os.openpty()
+    port = serial.Serial(os.ttyname(slave), timeout=0.1)
+    transport = SerialTransport(port, name="pty")
+    yield master, transport
+    transport.close()
+    os.close(slave)
+    try:
+        os.close(master)
+    except OSError:
+        pass
+
+
+def _lines(fd):
+    buf = b""
+    while True:
+        try:
+            chunk = os.read(fd, 256)
+        except OSError:
+            return
+        if not chunk:
+            return
+        buf += chunk
+        while b"\n" in buf:
+            line, buf = buf.split(b"\n", 1)
+            yield line.decode().strip()
+
+
+def play_scpi(fd, answers, log):
+    """Answer SCPI queries on the master fd from a dict of command -> list of replies."""
+    for line in _lines(fd):
+        log.append(line)
+        if line in answers and answers[line]:
+            os.write(fd, answers[line].pop(0))
+
+
+def _start(target, *args):
+    t = threading.Thread(target=target, args=args, daemon=True)
+    t.start()
+    return t
+
+
+def test_scpi_dialogue(pty_pair):
+    master, transport = pty_pair
+    log = []
+    answers = {"*IDN?": [b"ACME,DMM-1,123,1.0\n"], "READ?": [b"+1.23456789E+01\n"]}
+    _start(play_scpi, master, answers, log)
+    meter = ScpiMeter(transport, MeterSettings(timeout_s=2))
+    assert meter.connect() == "ACME,DMM-1,123,1.0"
+    reading = meter.read()
+    assert reading.volts == 12.3456789 and reading.overload is False
+    assert log == ["*IDN?", "CONF:VOLT:DC", "READ?"]
+
+
+def test_scpi_overload(pty_pair):
+    master, transport = pty_pair
+    _start(play_scpi, master, {"READ?": [b"+9.9E37\r\n"]}, [])
+    reading = ScpiMeter(transport, MeterSettings(timeout_s=2)).read()
+    assert reading.volts is None and reading.overload is True
+
+
+def test_scpi_garbage_retried_once_then_raised(pty_pair):
+    master, transport = pty_pair
+    log = []
+    _start(play_scpi, master, {"READ?": [b"\x7f\x1b#\n", b"ERR\n"]}, log)
+    with pytest.raises(MeterGarbage, match="meter answered 'ERR', which is not an IEEE 488.2"):
+        ScpiMeter(transport, MeterSettings(timeout_s=2)).read()
+    assert log == ["READ?", "READ?"]
+
+
+def test_scpi_garbage_then_good(pty_pair):
+    master, transport = pty_pair
+    _start(play_scpi, master, {"READ?": [b"#?\n", b"5.000\n"]}, [])
+    assert ScpiMeter(transport, MeterSettings(timeout_s=2)).read().volts == 5.0
+
+
+def test_slow_meter_times_out(pty_pair):
+    _, transport = pty_pair
+    with pytest.raises(MeterTimeout, match=r"pty: nothing within 0.3 s"):
+        ScpiMeter(transport, MeterSettings(timeout_s=0.3)).read()
+
+
+def test_partial_line_is_timeout_not_number(pty_pair):
+    master, transport = pty_pair
+    os.write(master, b"12.34")
+    with pytest.raises(MeterTimeout, match=r"only a partial line b'12.34' within 0.3 s"):
+        transport.readline(0.3)
+
+
+def test_far_end_closing_mid_read(pty_pair):
+    master, transport = pty_pair
+
+    def hang_up():
+        time.sleep(0.2)
+        os.close(master)
+
+    _start(hang_up)
+    with pytest.raises(MeterDisconnected, match="pty stopped answering mid-reading"):
+        transport.readline(3)
+
+
+def test_stream_skips_stale_and_garbage(pty_pair):
+    master, transport = pty_pair
+    os.write(master, b"1.00 V\n")  # stale: buffered before the read
+    time.sleep(0.1)
+
+    def play():
+        time.sleep(0.2)
+        os.write(master, b"HOLD\n--\n12.50 V DC\n")
+
+    _start(play)
+    reading = StreamMeter(transport, MeterSettings(protocol="stream", timeout_s=2)).read()
+    assert reading.volts == 12.5
+
+
+def test_stream_too_much_garbage(pty_pair):
+    master, transport = pty_pair
+    _start(lambda: (time.sleep(0.2), os.write(master, b"HOLD\n" * 5)))
+    meter = StreamMeter(transport, MeterSettings(protocol="stream", timeout_s=2), max_skipped=2)
+    with pytest.raises(MeterGarbage, match=r"3 lines in a row did not match the stream regex"):
+        meter.read()
+
+
+def test_loop_url_round_trip():
+    transport = open_port("loop://", timeout=0.5)
+    transport.write(b"+4.70E+00\n")
+    assert transport.readline(1) == b"+4.70E+00\n"
+    transport.close()
+
+
+def test_missing_port_message():
+    with pytest.raises(PortMissing) as info:
+        open_port("/dev/ttyNOPE99")
+    assert info.value.message == (
+        "/dev/ttyNOPE99 does not exist; plug the meter in or list ports with 'fieldtool ports'"
+    )
+
+
+def test_permission_message_names_group(tmp_path):
+    import grp
+
+    path = tmp_path / "ttyUSB0"
+    path.write_text("")
+    group = grp.getgrgid(os.stat(path).st_gid).gr_name
+    assert permission_message(str(path)) == (
+        f"cannot open {path}: permission denied; it belongs to group '{group}':"
+        f" run 'sudo usermod -aG {group} $USER', then log out and in again"
+    )
+
+
+def test_settle_with_fake_clock():
+    values = iter([10.0, 12.0, 12.50, 12.51, 12.505, 99.0])
+    from fieldtool.meters.parse import Reading
+
+    shown = []
+    result = settle(
+        lambda: Reading(next(values)), SettleRule(), clock=lambda: 0.0, on_value=shown.append
+    )
+    assert (result.volts, result.count, result.settled) == (12.505, 5, True)
+    assert result.spread == pytest.approx(0.01)
+    assert len(shown) == 5
+
+
+def test_settle_timeout_is_honest():
+    from fieldtool.meters.parse import Reading
+
+    values = iter([1.0, 2.0, 3.0, 4.0])
+    ticks = iter([0.0, 1.0, 2.0, 11.0, 12.0])
+    result = settle(lambda: Reading(next(values)), SettleRule(), clock=lambda: next(ticks))
+    assert (result.volts, result.settled, result.count) == (3.0, False, 3)
