@@ -192,3 +192,21 @@ def test_settle_timeout_is_honest():
     ticks = iter([0.0, 1.0, 2.0, 11.0, 12.0])
     result = settle(lambda: Reading(next(values)), SettleRule(), clock=lambda: next(ticks))
     assert (result.volts, result.settled, result.count) == (3.0, False, 3)
+
+
+def test_busy_port_is_port_busy():
+    from fieldtool.meters.errors import PortBusy
+
+    master, slave = os.openpty()
+    name = os.ttyname(slave)
+    first = open_port(name)
+    try:
+        with pytest.raises(PortBusy) as info:
+            open_port(name)
+        assert info.value.message == (
+            f"{name} is in use by another program; close it and try again"
+        )
+    finally:
+        first.close()
+        os.close(slave)
+        os.close(master)
