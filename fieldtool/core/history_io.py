@@ -1,0 +1,92 @@
+"""Low-level file operations for the history store: locked appends and atomic rewrites.
+
+Only ``OSError`` leaves this module; ``fieldtool.core.history`` turns it into a message.
+"""
+
+from __future__ import annotations
+
+import errno
+import fcntl
+import os
+import uuid
+from collections.abc import Iterator
+from contextlib import contextmanager
+from pathlib import Path
+
+
+def fsync_dir(path: Path) -> None:
+    fd = os.open(path, os.O_RDONLY | os.O_DIRECTORY)
+    try:
+        os.fsync(fd)
+    finally:
+        os.close(fd)
+
+
+@contextmanager
+def locked_file(path: Path) -> Iterator[int]:
+    """Open (creating) ``path`` read-write under an exclusive flock on the live inode."""
+    if not path.parent.is_dir():
+        path.parent.mkdir(parents=True, exist_ok=True)
+        fsync_dir(path.parent.parent)
+    while True:
+        fd = os.open(path, os.O_RDWR | os.O_APPEND | os.O_CREAT | os.O_CLOEXEC, 0o644)
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX)
+            held, live = os.fstat(fd), _stat_or_none(path)
+            if live is not None and (held.st_ino, held.st_dev) == (live.st_ino, live.st_dev):
+                yield fd
+                return
+        finally:
+            os.close(fd)  # closing also releases the lock
+        # someone replaced the file while we waited: lock the new one instead
+
+
+def _stat_or_none(path: Path) -> os.stat_result | None:
+    try:
+        return os.stat(path)
+    except FileNotFoundError:
+        return None
+
+
+def read_locked(fd: int) -> bytes:
+    """The whole content of an open file descriptor."""
+    size = os.fstat(fd).st_size
+    return os.pread(fd, size, 0) if size else b""
+
+
+def append_lines(fd: int, lines: list[str]) -> None:
+    """Append whole lines with one write and fsync; undo on failure."""
+    size = os.fstat(fd).st_size
+    data = "".join(line + "\n" for line in lines).encode("utf-8", "surrogateescape")
+    if size and os.pread(fd, 1, size - 1) != b"\n":
+        data = b"\n" + data  # keep a torn tail on its own line, never merged into ours
+    try:
+        written = os.write(fd, data)
+        if written != len(data):
+            raise OSError(errno.ENOSPC, "short write")
+        os.fsync(fd)
+    except OSError:
+        try:
+            os.ftruncate(fd, size)
+        except OSError:
+            pass  # e.g. a device; the caller still learns nothing was saved
+        raise
+
+
+def rewrite(path: Path, lines: list[str]) -> None:
+    """Replace a file's content atomically: temp file in the same folder, fsync, replace."""
+    tmp = path.with_name(f".{path.name}.{uuid.uuid4().hex}.tmp")
+    fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL | os.O_CLOEXEC, 0o644)
+    try:
+        data = "".join(line + "\n" for line in lines).encode("utf-8", "surrogateescape")
+        view = memoryview(data)
+        while view:
+            view = view[os.write(fd, view) :]
+        os.fsync(fd)
+    except BaseException:
+        os.close(fd)
+        os.unlink(tmp)
+        raise
+    os.close(fd)
+    os.replace(tmp, path)
+    fsync_dir(path.parent)
