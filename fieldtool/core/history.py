@@ -92,19 +92,10 @@ class Reading:
 
 
 @dataclass(frozen=True)
-class Verification:
-    """A node voltage measured after a repair to confirm it."""
+class Verification(Reading):
+    """A node voltage measured after a repair to confirm it (same fields as a reading)."""
 
     kind: ClassVar[str] = "verification"
-    node: str
-    volts: float | None
-    unit: str = "V"
-    source: str = "typed"
-    spread: float | None = None
-    overload: bool = False
-
-    def __post_init__(self) -> None:
-        _check_measurement(self)
 
 
 @dataclass(frozen=True)
@@ -156,7 +147,7 @@ EVENT_TYPES: dict[str, type] = {
 }
 
 
-def _check_measurement(m: Reading | Verification) -> None:
+def _check_measurement(m: Reading) -> None:
     if m.volts is None and not m.overload:
         raise HistoryError(f"{m.kind} at {m.node}: no volts given and not marked overload")
     if m.volts is not None and not math.isfinite(m.volts):
