@@ -9,6 +9,7 @@ import numpy as np
 
 from fieldtool.core.circuit import Circuit, Params, build_circuit, scaled_load, stack, with_meter
 from fieldtool.core.errors import SolverError
+from fieldtool.core.faults import Fault, apply_fault
 from fieldtool.core.profile import Profile
 from fieldtool.core.solver import (
     Network,
@@ -110,9 +111,11 @@ def solve_variants(
     return volts, ripple, ss
 
 
-def expect(profile: Profile, steps: int = 80) -> Expectation:
-    """Expected readings and figures for a profile at its rated load."""
+def expect(profile: Profile, steps: int = 80, fault: Fault | None = None) -> Expectation:
+    """Expected readings and figures for a profile at its rated load, optionally faulted."""
     circuit, params = build_circuit(profile)
+    if fault is not None:
+        params = apply_fault(circuit, params, fault, profile)
     heavier = scaled_load(circuit, params, 1.25)
     metered = with_meter(circuit, params, profile.meter_ohms)
     batch = stack([params, heavier, metered])
