@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import random
 import sys
 
 from fieldtool.core.errors import InputError
@@ -46,8 +47,15 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         "--fault", help="fault spec such as D5:open or C3:lowcap=0.3; 'random' picks one"
     )
     sim.add_argument("--hidden", action="store_true", help="keep the fault off the screen")
-    sim.add_argument("--protocol", choices=("scpi", "stream"), default="scpi")
-    sim.add_argument("--seed", type=int, default=0, help="noise (and random fault) seed")
+    sim.add_argument(
+        "--protocol",
+        choices=("scpi", "stream"),
+        default="scpi",
+        help="answer SCPI queries (default) or print a reading line four times a second",
+    )
+    sim.add_argument(
+        "--seed", type=int, help="noise (and random fault) seed; a new one each run by default"
+    )
     sim.add_argument(
         "--command-gap",
         type=float,
@@ -125,12 +133,12 @@ def run_read(args: argparse.Namespace) -> int:
     return 0
 
 
-def _chosen_fault(args: argparse.Namespace, profile):
+def _chosen_fault(args: argparse.Namespace, profile, seed: int):
     """The fault asked for on the command line (None: healthy)."""
     if args.fault is None:
         return None
     if args.fault.strip().lower() == "random":
-        return random_fault(profile, args.seed)
+        return random_fault(profile, seed)
     return parse_fault(args.fault, profile)
 
 
@@ -139,12 +147,15 @@ def run_sim_meter(args: argparse.Namespace) -> int:
     if args.command_gap < 0:
         raise InputError(f"--command-gap {args.command_gap:g}: expected seconds, 0 or more")
     profile = load_profile(args.profile)
-    fault = _chosen_fault(args, profile)
-    meter = SimulatedMeter(profile, fault, seed=args.seed)
+    seed = args.seed if args.seed is not None else random.SystemRandom().randrange(1_000_000)
+    fault = _chosen_fault(args, profile, seed)
+    meter = SimulatedMeter(profile, fault, seed=seed)
     server = PtyMeter(meter, args.protocol, say=_say, command_gap_s=args.command_gap)
     try:
         _say(server.port)
-        shown = "fault hidden" if args.hidden else f"fault: {_fault_words(fault, profile)}"
+        shown = (
+            "fault hidden" if args.hidden else f"fault: {_fault_words(fault, profile)}, seed {seed}"
+        )
         _say(f"simulated {args.protocol.upper()} meter on {profile.name}, {shown}")
         _say("solving the board...")
         meter.connect()
@@ -154,11 +165,12 @@ def run_sim_meter(args: argparse.Namespace) -> int:
         _say(server.where())
         server.serve(sys.stdin.fileno())
     except KeyboardInterrupt:
-        pass  # Ctrl-C is the normal way to stop
+        if sys.stdout.isatty():
+            print()  # Ctrl-C is the normal way to stop; end the line the terminal's ^C began
     finally:
         server.close()
     if args.hidden:
-        _say(f"the fault was: {_fault_words(fault, profile)}")
+        _say(f"the fault was: {_fault_words(fault, profile)} (seed {seed})")
     _say("sim-meter stopped")
     return 0
 

@@ -183,7 +183,7 @@ class PtyMeter:
             self.running = False
         elif word.lower() in _HELP_WORDS:
             self.say("nodes: " + ", ".join(self.meter.describe_node(n) for n in self.meter.nodes))
-            self.say("type a node or test point to move the probe, 'lift' or 'quit'")
+            self.say("type a node or test point (or GND) to move the probe, 'lift' or 'quit'")
         elif word.lower() in _LIFT_WORDS:
             self.meter.touch(None)
             self.say(self.where())

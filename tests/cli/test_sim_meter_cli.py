@@ -19,8 +19,9 @@ import pytest
 
 from fieldtool.cli import main
 from fieldtool.core.expect import expect
-from fieldtool.core.faults import parse_fault
+from fieldtool.core.faults import describe, parse_fault
 from fieldtool.core.profile import load_profile
+from fieldtool.meters.simulated import random_fault
 from tests.conftest import ROOT
 
 BOARD = ROOT / "profiles" / "tidegauge-apd-bias.toml"
@@ -146,7 +147,17 @@ def test_stream_with_a_hidden_fault(sim_meter, board, capsys):
     sim.type("quit")
     code, _ = sim.finish()
     assert code == 0
-    assert "the fault was: C4 shorted (C4:short)" in sim.seen
+    assert "the fault was: C4 shorted (C4:short) (seed 6)" in sim.seen
+
+
+def test_random_hidden_fault_is_revealed_at_the_end_of_input(sim_meter, board):
+    sim = sim_meter("--fault", "random", "--hidden", "--seed", "11")
+    sim.proc.stdin.close()  # end of console input (Ctrl-D) stops it like 'quit'
+    code, err = sim.finish()
+    assert (code, err) == (0, "")
+    fault = random_fault(board, 11)
+    words = f"{describe(fault, board)} ({fault.spec(board)})" if fault else "none (healthy board)"
+    assert sim.seen[-2:] == [f"the fault was: {words} (seed 11)", "sim-meter stopped"]
 
 
 def test_ctrl_c_stops_cleanly(sim_meter):
@@ -156,6 +167,13 @@ def test_ctrl_c_stops_cleanly(sim_meter):
     assert code == 0
     assert "Traceback" not in err and err == ""
     assert sim.seen[-1] == "sim-meter stopped"
+
+
+def test_negative_command_gap_is_refused(capsys):
+    assert main(["sim-meter", str(BOARD), "--command-gap", "-1"]) == 2
+    assert capsys.readouterr().err == (
+        "fieldtool: bad input: --command-gap -1: expected seconds, 0 or more\n"
+    )
 
 
 def test_bad_fault_spec_is_one_line_exit_2(capsys):
