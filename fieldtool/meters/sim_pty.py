@@ -25,6 +25,8 @@ NO_ERROR = '0,"No error"'
 UNDEFINED_HEADER = '-113,"Undefined header"'
 DATA_STALE = '-230,"Data corrupt or stale"'
 QUEUE_OVERFLOW = '-350,"Queue overflow"'
+INPUT_OVERRUN = '-363,"Input buffer overrun"'
+INPUT_BUFFER_BYTES = 1024
 ERROR_QUEUE_SIZE = 10
 SCPI_OVERLOAD = "+9.90000000E+37"
 
@@ -85,7 +87,8 @@ class ScpiResponder:
         self.errors: deque[str] = deque()
         self.last: Reading | None = None
 
-    def _error(self, entry: str) -> None:
+    def error(self, entry: str) -> None:
+        """Queue an SCPI error; a full queue ends in a queue-overflow entry."""
         if len(self.errors) >= ERROR_QUEUE_SIZE:
             self.errors[-1] = QUEUE_OVERFLOW
         else:
@@ -97,7 +100,7 @@ class ScpiResponder:
 
     def _fetch(self) -> str | None:
         if self.last is None:
-            self._error(DATA_STALE)
+            self.error(DATA_STALE)
             return None
         return scpi_number(self.last)
 
@@ -138,7 +141,7 @@ class ScpiResponder:
         }
         action = table.get(header)
         if action is None:
-            self._error(UNDEFINED_HEADER)
+            self.error(UNDEFINED_HEADER)
             return None
         return action()
 
@@ -165,6 +168,7 @@ class PtyMeter:
         self.running = True
         self._from_port = b""
         self._from_console = b""
+        self._skipping = False
         self._last_command: float | None = None
 
     # -- the console ----------------------------------------------------------------------
@@ -199,7 +203,7 @@ class PtyMeter:
 
     def send(self, text: str) -> None:
         """Write to the port; bytes nobody reads are lost, as on a real line."""
-        data = text.encode("ascii")
+        data = text.encode("ascii", errors="replace")
         while data:
             try:
                 written = os.write(self.master, data)
@@ -231,9 +235,17 @@ class PtyMeter:
             return
         if self.protocol != "scpi":
             return  # a streaming meter ignores what it is sent
-        lines, self._from_port = self._lines(self._from_port + chunk)
+        lines, rest = self._lines(self._from_port + chunk)
+        if len(rest) > INPUT_BUFFER_BYTES:  # a line that does not end: drop it up to its end
+            rest, self._skipping = b"", True
+            self.responder.error(INPUT_OVERRUN)
+        self._from_port = rest
         for line in lines:
-            if line.strip():
+            if self._skipping:
+                self._skipping = False  # the tail of the overrun line
+            elif len(line) > INPUT_BUFFER_BYTES:
+                self.responder.error(INPUT_OVERRUN)
+            elif line.strip():
                 self.command(line)
 
     def _console_input(self, fd: int) -> None:

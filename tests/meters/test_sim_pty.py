@@ -136,6 +136,18 @@ def test_unknown_command_goes_to_the_error_queue(scpi):
         transport.close()
 
 
+def test_endless_line_is_an_input_overrun_not_a_hang(scpi):
+    transport = open_port(scpi.server.port, timeout=2.0)
+    try:
+        transport.write(b"\x00\xff" * 1500)  # more than the meter can hold in one line
+        transport.write(b"\n")
+        assert ask(transport, "SYST:ERR?") == '-363,"Input buffer overrun"'
+        assert ask(transport, "*OPC?") == "1"
+        assert ask(transport, "SYST:ERR?") == '0,"No error"'  # reported once
+    finally:
+        transport.close()
+
+
 def test_stream_lines_and_a_lifted_probe(stream, board, healthy):
     transport = open_port(stream.server.port, timeout=2.0)
     try:
