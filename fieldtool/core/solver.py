@@ -82,6 +82,7 @@ class Network:
         )
         self._h_cache: dict[float, tuple[np.ndarray, np.ndarray, np.ndarray]] = {}
         self.kinds = [s.kind for s in circuit.sources]
+        self.has_sink = bool(np.any(params.i_load != 0))
 
     def sources_on(self, times: np.ndarray) -> np.ndarray:
         """Source voltages (B, T, s) at the given times."""
@@ -90,9 +91,9 @@ class Network:
         return p.s_low[:, None, :] + (p.s_high - p.s_low)[:, None, :] * shape[None]
 
     def injections(self, src: np.ndarray) -> np.ndarray:
-        """Current injected into each node (B, T, n) by the sources and constant loads."""
+        """Current injected into each node (B, T, n) by the sources."""
         p = self.params
-        return (p.s_g[:, None, :] * src) @ self.Es - p.i_load[:, None, :]
+        return (p.s_g[:, None, :] * src) @ self.Es
 
     def for_step(self, h: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """(G_h, g_c, a) for step length h: Jacobian without diodes, capacitor companions."""
@@ -119,6 +120,27 @@ def _incidence(pairs: np.ndarray, n: int) -> np.ndarray:
 
 def _outer(a: np.ndarray) -> np.ndarray:
     return (a[:, :, None] * a[:, None, :]).reshape(a.shape[0], -1)
+
+
+SINK_KNEE_VOLTS = 0.5
+
+
+def sink_current(i_load: np.ndarray, v: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Current drawn by constant-current loads at node voltages v, and its conductance.
+
+    A current-sink load (a regulator, a programming pin) draws its rated current only while
+    its supply has headroom; as the supply collapses it stops drawing, and it never pushes
+    current back. Modelled as I·(1 − exp(−u/Vk)) for u > 0 and I·u/Vk below, u the node
+    voltage in the load's polarity and Vk = 0.5 V (a modelling choice: common practice, no
+    source). Above a few volts this is the rated current within exp(−u/Vk).
+    """
+    mag = np.abs(i_load)
+    sign = np.where(i_load < 0, -1.0, 1.0)
+    u = v * sign
+    ex = np.exp(-np.maximum(u, 0.0) / SINK_KNEE_VOLTS)
+    phi = np.where(u > 0, 1.0 - ex, u / SINK_KNEE_VOLTS)
+    dphi = np.where(u > 0, ex, 1.0) / SINK_KNEE_VOLTS
+    return sign * mag * phi, mag * dphi
 
 
 def _pnjlim(vnew: np.ndarray, vold: np.ndarray, nvt: np.ndarray, vcrit: np.ndarray) -> np.ndarray:
@@ -156,6 +178,7 @@ def step(
     B, n = v.shape
     it = 0
     J = G
+    diag = np.arange(n)
     for it in range(1, MAX_NEWTON + 1):  # noqa: B007 (the count is returned)
         e = np.exp(np.minimum(vj / p.d_nvt, 80.0))
         f = p.d_is * (e - 1.0)
@@ -164,7 +187,12 @@ def step(
         geq = gj / den
         ieq = (f - gj * vj) / den
         J = G + (geq @ net.Pd).reshape(B, n, n)
-        v_new = np.linalg.solve(J, (b - ieq @ net.Ad)[..., None])[..., 0]
+        rhs = b - ieq @ net.Ad
+        if net.has_sink:
+            i_s, g_s = sink_current(p.i_load, v)
+            J[:, diag, diag] += g_s
+            rhs = rhs - (i_s - g_s * v)
+        v_new = np.linalg.solve(J, rhs[..., None])[..., 0]
         vb = v_new @ net.Ad.T
         vj_raw = (vb - p.d_rs * f + p.d_rs * gj * vj) / den
         vj_new = _pnjlim(vj_raw, vj, p.d_nvt, net.vcrit)
