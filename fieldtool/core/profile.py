@@ -83,6 +83,7 @@ class Profile:
     designators: dict[str, str] = field(default_factory=dict)
     labels: dict[str, str] = field(default_factory=dict)
     digest: str = ""
+    meter_range_volts: float | None = None  # beyond it the meter shows overload; None: no limit
 
     @property
     def thermal_volts(self) -> float:
@@ -377,6 +378,9 @@ def profile_from_dict(data: dict[str, Any], path: str = "<profile>", digest: str
     meter_ohms = meter.number("input_ohms", 10e6, positive=True)
     meter_percent = meter.number("accuracy_percent", 0.5, minimum=0.0, below=50.0)
     meter_volts = meter.number("accuracy_volts", 0.01, minimum=0.0)
+    meter_range = meter.number(
+        "range_volts", required=False, positive=True, hint=" (the highest |V| it shows, or omit)"
+    )
     meter.finish()
 
     designators = _string_map(path, "designators", data.get("designators", {}))
@@ -427,6 +431,7 @@ def profile_from_dict(data: dict[str, Any], path: str = "<profile>", digest: str
         designators=designators,
         labels=labels,
         digest=digest,
+        meter_range_volts=meter_range,
     )
     _check_names(profile)
     return profile
