@@ -61,3 +61,13 @@ def run_ngspice(netlist: str, workdir: Path) -> tuple[np.ndarray, np.ndarray]:
         )
     data = np.loadtxt(out)
     return data[:, 0], data[:, 1:]
+
+
+@pytest.fixture(scope="session")
+def dictionary_cache(tmp_path_factory) -> Path:
+    """One fault-dictionary cache folder for the whole test session.
+
+    Cold dictionaries of the shipped profiles take seconds each; every test that needs one
+    (CLI or core) shares this folder, so each board's dictionary is built once per session.
+    """
+    return tmp_path_factory.mktemp("fieldtool-cache")

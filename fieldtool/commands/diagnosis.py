@@ -205,6 +205,7 @@ def run_calibrate(args: argparse.Namespace) -> int:
         "chi2": result.chi2,
         "residuals": result.residuals,
         "iterations": result.iterations,
+        "notes": list(result.notes),
     }
     if args.json:
         print(json.dumps(summary, indent=2))
@@ -220,6 +221,8 @@ def run_calibrate(args: argparse.Namespace) -> int:
     print(f"\nresidual {result.rms_volts * 1000:.1f} mV rms over {len(result.residuals)} nodes")
     for node, e in result.residuals.items():
         print(f"  {node:<6}{e * 1000:+9.1f} mV")
+    for note in result.notes:
+        print(f"note: {note}")
     if result.chi2 > 4 * max(len(result.residuals), 1):
         print("WARNING: the fit is poor for a known-good board; is it really healthy?")
     return 0

@@ -4,7 +4,8 @@ Simulate-after-test (Bandler & Salama, Proc. IEEE 73(8), 1985): the drive swing,
 shift of every diode's forward drop and, where S0 was read, the DC supply are adjusted so the
 predicted as-read node voltages match the golden readings in the least-squares sense,
 weighting each reading by the meter's accuracy. Gauss–Newton on the steady-state solver, with
-the Jacobian from the linear response (``fieldtool.core.response``).
+the Jacobian from the linear response (``fieldtool.core.response``); see ``calibrate`` for
+what DC readings can and cannot tell apart.
 """
 
 from __future__ import annotations
@@ -23,6 +24,8 @@ from fieldtool.core.response import linear_response
 from fieldtool.core.solver import steady_state
 
 MAX_ITERATIONS = 12
+BACKTRACK_STEPS = 6
+RCOND = 1e-4  # relative singular value below which a direction counts as unseen
 RECT = 1.0 / math.sqrt(3.0)  # accuracy bound → 1σ, rectangular (JCGM 100:2008 §4.3.7)
 
 
@@ -38,6 +41,7 @@ class Calibration:
     rms_volts: float
     chi2: float
     iterations: int
+    notes: tuple[str, ...] = ()  # what the readings could not determine, in plain words
 
 
 def _apply(base: Profile, theta: np.ndarray, with_supply: bool) -> Profile:
@@ -80,7 +84,17 @@ def _predict(profile: Profile, nodes: list[int]) -> tuple[np.ndarray, np.ndarray
 
 
 def calibrate(profile: Profile, readings: Sequence[NodeReading]) -> Calibration:
-    """Least-squares fit of drive swing, diode drop (and supply) to a known-good board."""
+    """Least-squares fit of drive swing, diode drop (and supply) to a known-good board.
+
+    Gauss–Newton with a rank-revealing step: directions of the parameter space that the
+    readings cannot see (singular values below ``RCOND`` of the largest) are left at the
+    profile's values instead of being stepped along at random, and a step that does not lower
+    the misfit is halved until it does (backtracking line search; Nocedal & Wright, *Numerical
+    Optimization*, 2nd ed., 2006, §3.1 and §10.3). On a DC-fed ladder every stage adds the
+    drive swing less two diode drops, so DC readings fix only that combination: the fit then
+    keeps the split between drive and diode closest to the profile's, and says so in
+    ``notes``.
+    """
     circuit, _ = build_circuit(profile)
     names = [circuit.name(i) for i in circuit.probe_nodes]
     used = [r for r in readings if r.volts is not None]
@@ -91,17 +105,45 @@ def calibrate(profile: Profile, readings: Sequence[NodeReading]) -> Calibration:
     sigma = (np.abs(y) * profile.meter_percent / 100 + profile.meter_volts) * RECT
     with_supply = profile.topology != "ac-ladder" and "S0" in [r.node for r in used]
     theta = np.zeros(3 if with_supply else 2)
+
+    def misfit(v: np.ndarray) -> float:
+        return float((((y - v) / sigma) ** 2).sum())
+
+    v, jac = _predict(_apply(profile, theta, with_supply), cols)
+    cost = misfit(v)
+    notes: list[str] = []
+    pair = np.linalg.svd(jac[:, :2] / sigma[:, None], compute_uv=False)
+    if pair[-1] <= RCOND * pair[0]:
+        notes.append(
+            "these readings fix only the drive swing less the diode drops, not each one: "
+            "the split between them is kept as close to the profile's as the fit allows"
+        )
     iterations = 0
     for iterations in range(1, MAX_ITERATIONS + 1):  # noqa: B007 (reported)
-        v, jac = _predict(_apply(profile, theta, with_supply), cols)
-        jac = jac[:, : len(theta)]
-        step, *_ = np.linalg.lstsq(jac / sigma[:, None], (y - v) / sigma, rcond=None)
+        a = jac[:, : len(theta)] / sigma[:, None]
+        u, s, vt = np.linalg.svd(a, full_matrices=False)
+        keep = s > RCOND * s[0]
+        step = vt[keep].T @ ((u[:, keep].T @ ((y - v) / sigma)) / s[keep])
         step = np.clip(step, -0.3, 0.3)  # a known-good board is near its profile
-        theta = theta + step
-        if np.abs(step).max() < 1e-6:
+        accepted = False
+        for _ in range(BACKTRACK_STEPS):
+            trial = theta + step
+            try:
+                v_t, jac_t = _predict(_apply(profile, trial, with_supply), cols)
+            except SolverError:
+                step = step / 2
+                continue
+            if misfit(v_t) <= cost:
+                accepted = True
+                break
+            step = step / 2
+        if not accepted:
+            break  # no step lowers the misfit: this is the least-squares point
+        theta, v, jac = trial, v_t, jac_t
+        gain, cost = cost - misfit(v_t), misfit(v_t)
+        if np.abs(step).max() < 1e-6 or gain <= 1e-9 * max(cost, 1.0):
             break
     fitted = _apply(profile, theta, with_supply)
-    v, _ = _predict(fitted, cols)
     res = y - v
     return Calibration(
         profile=fitted,
@@ -112,4 +154,5 @@ def calibrate(profile: Profile, readings: Sequence[NodeReading]) -> Calibration:
         rms_volts=float(np.sqrt(np.mean(res**2))),
         chi2=float(((res / sigma) ** 2).sum()),
         iterations=iterations,
+        notes=tuple(notes),
     )

@@ -1,0 +1,220 @@
+"""`fieldtool inject`, `diagnose` and `calibrate` through fieldtool.cli.main, every shipped board.
+
+Fault dictionaries of the shipped profiles take seconds each to build cold, so every test here
+passes the session's shared cache folder (``dictionary_cache`` in conftest).
+"""
+
+from __future__ import annotations
+
+import contextlib
+import io
+import json
+from dataclasses import replace
+
+import pytest
+
+from fieldtool.cli import main
+from fieldtool.core.circuit import build_circuit
+from fieldtool.core.expect import expect
+from fieldtool.core.faults import catalog
+from fieldtool.core.profile import load_profile
+from tests.conftest import PROFILES
+
+FAULT = "D2:open"  # on every topology: stage 1's output diode (ladders), P1 → P2 (Dickson)
+DICKSON = next(p for p in PROFILES if "dickson" in p.name)
+DC_LADDER = next(p for p in PROFILES if "driftbuoy" in p.name)
+
+
+def _run(argv: list[str]) -> tuple[int, str, str]:
+    out, err = io.StringIO(), io.StringIO()
+    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
+        code = main(argv)
+    return code, out.getvalue(), err.getvalue()
+
+
+def _json(argv: list[str]) -> dict:
+    code, out, err = _run(argv)
+    assert code == 0, err
+    return json.loads(out)
+
+
+@pytest.fixture(scope="module")
+def injected():
+    """`inject --json` output per shipped profile (computed once, used by several tests)."""
+    return {p.stem: _json(["inject", str(p), "--fault", FAULT, "--json"]) for p in PROFILES}
+
+
+# --- inject -------------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("profile", PROFILES, ids=lambda p: p.stem)
+def test_inject_json_is_expect_plus_the_fault(profile, injected):
+    healthy = _json(["expect", str(profile), "--json"])
+    faulted = injected[profile.stem]
+    assert set(faulted) - set(healthy) >= {"fault"}
+    assert set(healthy) <= set(faulted)
+    assert faulted["fault"] == FAULT
+    assert [n["node"] for n in faulted["nodes"]] == [n["node"] for n in healthy["nodes"]]
+    for node in faulted["nodes"]:
+        assert set(node) == set(healthy["nodes"][0])
+    assert faulted["converged"] is True
+    # an open diode early in the chain starves everything after it
+    assert abs(faulted["output_volts"]) < abs(healthy["output_volts"]) - 1.0
+
+
+def test_inject_bad_fault_is_one_line_exit_2():
+    code, out, err = _run(["inject", str(PROFILES[0]), "--fault", "D99:open"])
+    assert code == 2 and out == ""
+    assert "not on this board" in err
+    assert err.count("\n") == 1 and "Traceback" not in err
+
+
+# --- diagnose -----------------------------------------------------------------------------
+
+
+def _readings_csv(tmp_path, nodes, volts_by_node) -> str:
+    path = tmp_path / "readings.csv"
+    rows = ["node,volts"] + [f"{n},{volts_by_node[n]!r}" for n in nodes]
+    path.write_text("\n".join(rows) + "\n")
+    return str(path)
+
+
+@pytest.mark.parametrize("profile", PROFILES, ids=lambda p: p.stem)
+def test_diagnose_json_shape(profile, injected, dictionary_cache, tmp_path):
+    faulted = injected[profile.stem]
+    volts = {n["node"]: n["volts"] for n in faulted["nodes"]}
+    names = list(volts)
+    read = [names[0], names[len(names) // 2], faulted["output_node"]]
+    csv = _readings_csv(tmp_path, read, volts)
+    out = _json(
+        ["diagnose", str(profile), "--readings", csv, "--cache", str(dictionary_cache), "--json"]
+    )
+
+    board = load_profile(profile)
+    circuit, _ = build_circuit(board)
+    suspects = out["suspects"]
+    assert len(suspects) == len(catalog(board, circuit))  # every hypothesis carries its odds
+    probs = [s["probability"] for s in suspects]
+    assert probs == sorted(probs, reverse=True)
+    assert sum(probs) == pytest.approx(1.0, abs=1e-4)
+    assert all(0.0 <= p <= 1.0 for p in probs)
+    healthy = [s for s in suspects if s["mode"] == "healthy"]
+    assert len(healthy) == 1 and healthy[0]["component"] is None
+    assert all(isinstance(s["component"], str) for s in suspects if s["mode"] != "healthy")
+    assert out["next_probe"] is None or (
+        out["next_probe"] in names and out["next_probe"] not in read
+    )
+    assert isinstance(out["ambiguity"], list)
+    for group in out["ambiguity"]:
+        assert len(group) >= 2 and all(isinstance(k, str) for k in group)
+        assert all(k == "healthy" or ":" in k for k in group)
+    fit = out["fit"]
+    assert 0.0 <= fit["score"] <= 1.0 and isinstance(fit["no_fit"], bool)
+    assert isinstance(fit["text"], str) and fit["text"]
+
+
+def test_diagnose_text_has_the_caution(injected, dictionary_cache, tmp_path):
+    faulted = injected[DICKSON.stem]
+    volts = {n["node"]: n["volts"] for n in faulted["nodes"]}
+    csv = _readings_csv(tmp_path, list(volts)[:2], volts)
+    code, out, err = _run(
+        ["diagnose", str(DICKSON), "--readings", csv, "--cache", str(dictionary_cache)]
+    )
+    assert code == 0, err
+    assert "most likely:" in out and "CAUTION" in out
+
+
+@pytest.mark.parametrize(
+    "text, message",
+    [
+        ("node,volts\nX9,1.0\n", "node 'X9' is not on this board"),
+        ("node,volts\nP1,abc\n", "volts 'abc' is not a number"),
+        ("volts,node\n1.0,P1\n", "expected 'node,volts'"),
+    ],
+)
+def test_diagnose_bad_readings_one_line_exit_2(text, message, dictionary_cache, tmp_path):
+    path = tmp_path / "bad.csv"
+    path.write_text(text)
+    code, out, err = _run(
+        ["diagnose", str(DICKSON), "--readings", str(path), "--cache", str(dictionary_cache)]
+    )
+    assert code == 2 and out == ""
+    assert message in err and str(path) in err
+    assert err.count("\n") == 1 and "Traceback" not in err
+
+
+# --- calibrate ----------------------------------------------------------------------------
+
+
+def _golden_csv(tmp_path, profile_path, drive_factor: float) -> str:
+    """Readings of a board whose drive is ``drive_factor`` of its profile's (as expected)."""
+    board = load_profile(profile_path)
+    real = replace(board, drive_volts=board.drive_volts * drive_factor)
+    volts = {n.node: n.volts for n in expect(real).nodes}
+    return _readings_csv(tmp_path, list(volts), volts)
+
+
+def test_calibrate_writes_a_loadable_profile_and_refuses_to_overwrite(tmp_path):
+    csv = _golden_csv(tmp_path, DICKSON, 0.97)
+    out_path = tmp_path / "fitted.toml"
+    args = ["calibrate", str(DICKSON), "--readings", csv, "--out", str(out_path)]
+    summary = _json(args + ["--json"])
+    fitted = load_profile(out_path)
+    original = load_profile(DICKSON)
+    assert fitted.name == original.name and fitted.stages == original.stages
+    assert fitted.drive_volts == pytest.approx(original.drive_volts * 0.97, rel=0.005)
+    assert summary["drive_volts"] == pytest.approx(fitted.drive_volts)
+    assert summary["rms_residual_volts"] < original.meter_volts
+    assert set(summary["residuals"]) == {n.node for n in expect(original).nodes}
+
+    before = out_path.read_bytes()
+    code, out, err = _run(args)
+    assert code == 2 and out == ""
+    assert "--force" in err and str(out_path) in err
+    assert err.count("\n") == 1 and "Traceback" not in err
+    assert out_path.read_bytes() == before
+
+    code, out, err = _run(args + ["--force"])
+    assert code == 0, err
+    assert f"wrote {out_path}" in out and "residual" in out
+    load_profile(out_path)
+
+
+def test_calibrate_dc_ladder_says_what_it_cannot_split(tmp_path):
+    csv = _golden_csv(tmp_path, DC_LADDER, 0.97)
+    out_path = tmp_path / "fitted.toml"
+    code, out, err = _run(["calibrate", str(DC_LADDER), "--readings", csv, "--out", str(out_path)])
+    assert code == 0, err
+    assert "note: these readings fix only the drive swing less the diode drops" in out
+    load_profile(out_path)
+
+
+@pytest.mark.parametrize(
+    "text, message",
+    [
+        ("node,volts\nQ7,1.0\n", "node 'Q7' is not on this board"),
+        ("node,volts\nS0,3.3\nP1,1;2\n", "volts '1;2' is not a number"),
+        ("node;volts\nS0;3.3\n", "expected 'node,volts'"),
+        ("node,volts\nS0,3.3\n", "two or more nodes"),
+        ("", "no readings"),
+    ],
+)
+def test_calibrate_bad_readings_one_line_exit_2(text, message, tmp_path):
+    path = tmp_path / "golden.csv"
+    path.write_text(text)
+    out_path = tmp_path / "fitted.toml"
+    code, out, err = _run(
+        ["calibrate", str(DICKSON), "--readings", str(path), "--out", str(out_path)]
+    )
+    assert code == 2 and out == ""
+    assert message in err
+    assert err.count("\n") == 1 and "Traceback" not in err
+    assert not out_path.exists()
+
+
+def test_calibrate_missing_readings_file(tmp_path):
+    missing = tmp_path / "nope.csv"
+    code, _, err = _run(
+        ["calibrate", str(DICKSON), "--readings", str(missing), "--out", str(tmp_path / "o.toml")]
+    )
+    assert code == 2 and "readings file not found" in err and err.count("\n") == 1
