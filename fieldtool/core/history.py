@@ -1,7 +1,9 @@
 """Board histories: one JSON Lines file per board serial, grouped by profile.
 
 Layout: ``<logs>/<profile-name>/<serial>.jsonl``. Every line is one record carrying
-``schema``, ``id``, ``time``, ``board``, ``profile`` and ``kind``. A line is appended with a
+``schema``, ``id``, ``time``, ``board``, ``profile`` and ``kind``, and, since sessions from two
+terminals can interleave in one file, the ``session`` id it belongs to (records written before
+that field existed have none and are grouped by position). A line is appended with a
 single ``os.write`` under an exclusive ``flock`` and fsynced before ``append`` returns, so
 two processes never interleave and a crash can at worst leave one torn last line, which
 readers report as damaged and leave on disk untouched.
@@ -14,164 +16,76 @@ HistoryError(FieldtoolError)
 
 from __future__ import annotations
 
-import dataclasses
 import errno
 import json
-import math
 import os
 import unicodedata
 import uuid
-from collections.abc import Mapping
-from dataclasses import dataclass, field
-from datetime import UTC, datetime
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+from datetime import UTC, datetime, timedelta
 from pathlib import Path
-from typing import Any, ClassVar
+from typing import Any
 
-from fieldtool.core.errors import FieldtoolError
+from fieldtool.core.history_events import (
+    EVENT_TYPES,
+    OUTCOMES,
+    Action,
+    BadNameError,
+    Diagnosis,
+    Event,
+    HistoryError,
+    NotFoundError,
+    Reading,
+    SaveError,
+    SessionClosed,
+    SessionOpened,
+    Suspect,
+    Verification,
+    event_fields,
+    event_from_fields,
+)
 from fieldtool.core.history_io import append_lines, fsync_dir, locked_file
+
+__all__ = [
+    "EVENT_TYPES",
+    "OUTCOMES",
+    "Action",
+    "BadNameError",
+    "BoardHistory",
+    "Damaged",
+    "Diagnosis",
+    "Event",
+    "HistoryError",
+    "NotFoundError",
+    "Reading",
+    "Record",
+    "SaveError",
+    "SessionClosed",
+    "SessionOpened",
+    "Suspect",
+    "Verification",
+    "append",
+    "append_many",
+    "board_files",
+    "board_path",
+    "check_name",
+    "event_fields",
+    "event_from_fields",
+    "format_time",
+    "last_session_open",
+    "now_utc",
+    "parse_lines",
+    "parse_record",
+    "read_board",
+    "read_file",
+    "resolve_logs_dir",
+    "time_key",
+]
 
 SCHEMA = 1
 ENV_VAR = "FIELDTOOL_LOGS"
-OUTCOMES = ("fixed", "not-fixed", "escalated")
 _BASE_KEYS = ("schema", "id", "time", "board", "profile", "kind")
-
-
-class HistoryError(FieldtoolError):
-    """A board history that cannot be read or written."""
-
-    title = "History"
-
-
-class BadNameError(HistoryError):
-    """A board serial or profile name that is unsafe as a file name."""
-
-    title = "Bad board serial"
-
-
-class SaveError(HistoryError):
-    """A record that could not be saved; nothing was written."""
-
-    title = "History not saved"
-
-
-class NotFoundError(HistoryError):
-    """No history exists for the board or profile asked for."""
-
-    title = "No history"
-
-
-# --- events -------------------------------------------------------------------------------
-
-
-@dataclass(frozen=True)
-class SessionOpened:
-    """A technician starts working on a board."""
-
-    kind: ClassVar[str] = "session-opened"
-    technician: str
-    profile_hash: str
-    tool_version: str
-    session_id: str = field(default_factory=lambda: uuid.uuid4().hex)
-    ambient_c: float | None = None
-
-
-@dataclass(frozen=True)
-class Reading:
-    """A node voltage measured during diagnosis; ``volts`` is None on overload."""
-
-    kind: ClassVar[str] = "reading"
-    node: str
-    volts: float | None
-    unit: str = "V"
-    source: str = "typed"
-    spread: float | None = None
-    overload: bool = False
-
-    def __post_init__(self) -> None:
-        _check_measurement(self)
-
-
-@dataclass(frozen=True)
-class Verification(Reading):
-    """A node voltage measured after a repair to confirm it (same fields as a reading)."""
-
-    kind: ClassVar[str] = "verification"
-
-
-@dataclass(frozen=True)
-class Suspect:
-    """One ranked suspect: a part, how it failed, and its probability."""
-
-    designator: str
-    mode: str
-    probability: float
-
-
-@dataclass(frozen=True)
-class Diagnosis:
-    """The top suspects the engine ranked from the readings so far."""
-
-    kind: ClassVar[str] = "diagnosis"
-    suspects: tuple[Suspect, ...]
-
-
-@dataclass(frozen=True)
-class Action:
-    """Something done to one part: replaced, resoldered, cleaned."""
-
-    kind: ClassVar[str] = "action"
-    designator: str
-    done: str
-    mode: str | None = None
-    part_used: str | None = None
-    note: str = ""
-
-
-@dataclass(frozen=True)
-class SessionClosed:
-    """The session ends with an outcome: fixed, not-fixed or escalated."""
-
-    kind: ClassVar[str] = "session-closed"
-    outcome: str
-
-    def __post_init__(self) -> None:
-        if self.outcome not in OUTCOMES:
-            raise HistoryError(
-                f"unknown outcome {self.outcome!r}; use one of {', '.join(OUTCOMES)}"
-            )
-
-
-Event = SessionOpened | Reading | Verification | Diagnosis | Action | SessionClosed
-EVENT_TYPES: dict[str, type] = {
-    t.kind: t for t in (SessionOpened, Reading, Verification, Diagnosis, Action, SessionClosed)
-}
-
-
-def _check_measurement(m: Reading) -> None:
-    if m.volts is None and not m.overload:
-        raise HistoryError(f"{m.kind} at {m.node}: no volts given and not marked overload")
-    if m.volts is not None and not math.isfinite(m.volts):
-        raise HistoryError(f"{m.kind} at {m.node}: volts must be a finite number")
-
-
-def event_fields(event: Event) -> dict[str, Any]:
-    """The JSON fields an event contributes to its record."""
-    return dataclasses.asdict(event)
-
-
-def event_from_fields(kind: str, fields: Mapping[str, Any]) -> Event | None:
-    """Rebuild an event from stored fields, or None if the kind or fields are unknown."""
-    cls = EVENT_TYPES.get(kind)
-    if cls is None:
-        return None
-    names = {f.name for f in dataclasses.fields(cls)}
-    args = {k: v for k, v in fields.items() if k in names}
-    if cls is Diagnosis:
-        args["suspects"] = tuple(Suspect(**s) for s in args.get("suspects", ()))
-    try:
-        return cls(**args)
-    except (TypeError, HistoryError):
-        return None
 
 
 # --- records ------------------------------------------------------------------------------
@@ -189,11 +103,24 @@ class Record:
     kind: str
     fields: dict[str, Any]
     newer_schema: bool = False
+    session: str | None = None
 
     def to_dict(self) -> dict[str, Any]:
         """The record as it is stored, unknown fields included."""
         base = {k: getattr(self, k) for k in _BASE_KEYS}
+        if self.session is not None:
+            base["session"] = self.session
         return {**base, **self.fields}
+
+    @property
+    def session_id(self) -> str | None:
+        """The session this record belongs to, if it says (an opening record always does)."""
+        if self.session is not None:
+            return self.session
+        if self.kind == SessionOpened.kind:
+            sid = self.fields.get("session_id")
+            return sid if isinstance(sid, str) and sid else None
+        return None
 
     @property
     def event(self) -> Event | None:
@@ -256,6 +183,11 @@ def parse_record(text: str) -> Record | str:
     for key in ("id", "time", "kind"):
         if not isinstance(obj.get(key), str) or not obj[key]:
             return f"missing {key}"
+    session = obj.get("session")
+    if isinstance(session, str) and session:
+        del obj["session"]
+    else:
+        session = None  # absent, or a shape this version does not know: kept in fields
     fields = {k: v for k, v in obj.items() if k not in _BASE_KEYS}
     return Record(
         schema=schema,
@@ -266,6 +198,7 @@ def parse_record(text: str) -> Record | str:
         kind=obj["kind"],
         fields=fields,
         newer_schema=schema > SCHEMA,
+        session=session,
     )
 
 
@@ -351,6 +284,42 @@ def _save_error(what: str, path: Path, exc: OSError) -> SaveError:
     )
 
 
+def _make_record(
+    profile: str, serial: str, event: Event, stamp: str, session: str | None, record_id: str
+) -> Record:
+    if type(event) not in EVENT_TYPES.values():
+        raise HistoryError(f"cannot store {type(event).__name__}: not a history event")
+    if isinstance(event, SessionOpened):
+        session = event.session_id  # an opening record names its own session
+    return Record(
+        schema=SCHEMA,
+        id=record_id,
+        time=stamp,
+        board=serial,
+        profile=profile,
+        kind=event.kind,
+        fields=event_fields(event),
+        session=session,
+    )
+
+
+def _store(path: Path, records: list[Record]) -> None:
+    lines = [json.dumps(r.to_dict(), ensure_ascii=False, separators=(",", ":")) for r in records]
+    try:
+        with locked_file(path) as fd:
+            new_file = os.fstat(fd).st_size == 0
+            append_lines(fd, lines)
+            if new_file:
+                fsync_dir(path.parent)
+    except OSError as exc:
+        if len(records) == 1:
+            raise _save_error(records[0].kind, path, exc) from None
+        raise SaveError(
+            f"could not save {len(records)} records to {path}: {_reason(exc)}; nothing was "
+            "written, all of them are kept in memory"
+        ) from None
+
+
 def append(
     logs_dir: Path | str,
     profile: str,
@@ -359,30 +328,54 @@ def append(
     *,
     time: datetime | None = None,
     record_id: str | None = None,
+    session: str | None = None,
 ) -> Record:
-    """Durably append one event to a board's history and return the stored record."""
+    """Durably append one event to a board's history and return the stored record.
+
+    Args:
+        session: the id of the session the event belongs to (``SessionOpened.session_id``);
+            pass it on every record so sessions from two terminals never mix.
+    """
     path = board_path(logs_dir, profile, serial)
-    if type(event) not in EVENT_TYPES.values():
-        raise HistoryError(f"cannot store {type(event).__name__}: not a history event")
-    record = Record(
-        schema=SCHEMA,
-        id=record_id or uuid.uuid4().hex,
-        time=format_time(time) if time else now_utc(),
-        board=serial,
-        profile=profile,
-        kind=event.kind,
-        fields=event_fields(event),
-    )
-    line = json.dumps(record.to_dict(), ensure_ascii=False, separators=(",", ":"))
-    try:
-        with locked_file(path) as fd:
-            new_file = os.fstat(fd).st_size == 0
-            append_lines(fd, [line])
-            if new_file:
-                fsync_dir(path.parent)
-    except OSError as exc:
-        raise _save_error(event.kind, path, exc) from None
+    stamp = format_time(time) if time else now_utc()
+    record = _make_record(profile, serial, event, stamp, session, record_id or uuid.uuid4().hex)
+    _store(path, [record])
     return record
+
+
+def append_many(
+    logs_dir: Path | str,
+    profile: str,
+    serial: str,
+    events: Sequence[Event],
+    *,
+    time: datetime | None = None,
+    session: str | None = None,
+) -> tuple[Record, ...]:
+    """Append several events with one write: all are saved or none is.
+
+    Each record is stamped one microsecond after the one before, so they keep their order.
+    Without ``session``, the session opened among ``events`` (if any) is used.
+    """
+    if not events:
+        return ()
+    path = board_path(logs_dir, profile, serial)
+    if session is None:
+        session = next((e.session_id for e in events if isinstance(e, SessionOpened)), None)
+    start = time.astimezone(UTC) if time and time.tzinfo else (time or datetime.now(UTC))
+    records = [
+        _make_record(
+            profile,
+            serial,
+            event,
+            format_time(start + timedelta(microseconds=i)),
+            session,
+            uuid.uuid4().hex,
+        )
+        for i, event in enumerate(events)
+    ]
+    _store(path, records)
+    return tuple(records)
 
 
 # --- reading ------------------------------------------------------------------------------

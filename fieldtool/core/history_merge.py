@@ -18,11 +18,16 @@ from fieldtool.core.history import (
     Record,
     check_name,
     parse_lines,
-    parse_record,
     read_file,
     time_key,
 )
-from fieldtool.core.history_io import append_lines, locked_file, read_locked, rewrite
+from fieldtool.core.history_io import (
+    append_lines,
+    fsync_dir,
+    locked_file,
+    read_locked,
+    rewrite,
+)
 
 
 @dataclass(frozen=True)
@@ -51,10 +56,20 @@ def _canonical(text: str) -> str:
 
 
 def _source_files(src: Path) -> list[tuple[str, str, Path]]:
+    try:
+        folders = sorted(p for p in src.iterdir() if p.is_dir() and not p.name.startswith("."))
+    except OSError as exc:
+        raise HistoryError(f"cannot read {src}: {exc.strerror or exc}") from None
+    if not folders and any(src.glob("*.jsonl")):
+        raise HistoryError(
+            f"{src} holds board files directly: it looks like one profile's folder; "
+            f"pass the logs folder above it ({src.parent})"
+        )
     found = []
-    for folder in sorted(p for p in src.iterdir() if p.is_dir()):
+    for folder in folders:
         for path in sorted(folder.glob("*.jsonl")):
-            found.append((folder.name, path.stem, path))
+            if path.is_file():
+                found.append((folder.name, path.stem, path))
     return found
 
 
@@ -76,7 +91,11 @@ def merge(src_dir: Path | str, dst_dir: Path | str) -> MergeReport:
         except BadNameError as exc:
             skipped.append(f"{path}: {exc.message}")
             continue
-        records, bad = read_file(path)
+        try:
+            records, bad = read_file(path)
+        except HistoryError as exc:
+            skipped.append(exc.message)  # unreadable (permissions): the rest still merges
+            continue
         damaged.extend(bad)
         if not records:
             continue
@@ -102,6 +121,7 @@ def _merge_into(
     """Merge records into one locked destination file; return (added, present, conflicts)."""
     data = read_locked(fd)
     existing, bad = parse_lines(data, str(target))
+    damaged_lines = {d.line for d in bad}
     seen: dict[str, set[str]] = {}
     for record, text in existing:
         seen.setdefault(record.id, set()).add(text)
@@ -125,35 +145,44 @@ def _merge_into(
     latest = max((time_key(r.time) for r, _ in existing), default="")
     new.sort(key=lambda pair: time_key(pair[0].time))
     if not bad and all(time_key(r.time) >= latest for r, _ in new):
+        was_empty = not data
         append_lines(fd, [text for _, text in new])
+        if was_empty:
+            fsync_dir(target.parent)  # a new file: make its name durable too
     else:
-        rewrite(target, _ordered_lines(data, existing + new))
+        rewrite(target, _ordered_lines(data, damaged_lines, existing, new))
     return len(new), present, clashes
 
 
-def _ordered_lines(data: bytes, records: list[tuple[Record, str]]) -> list[str]:
-    """All records ordered by time; damaged lines kept verbatim after the record before them."""
-    after: dict[str | None, list[str]] = {}
-    anchor: str | None = None
-    for raw in data.split(b"\n"):
+def _ordered_lines(
+    data: bytes,
+    damaged_lines: set[int],
+    existing: list[tuple[Record, str]],
+    new: list[tuple[Record, str]],
+) -> list[str]:
+    """All records ordered by time; damaged lines kept verbatim after the record before them.
+
+    ``parse_lines`` makes every non-blank line either a record (in file order) or a damaged
+    line (by number), so the n-th non-damaged line is ``existing[n]``.
+    """
+    leading: list[str] = []
+    after: dict[int, list[str]] = {}
+    index = -1
+    for number, raw in enumerate(data.split(b"\n"), start=1):
         if not raw.strip():
             continue
-        text = raw.decode("utf-8", "surrogateescape")
-        parsed_id = _record_id(text)
-        if parsed_id is None:
-            after.setdefault(anchor, []).append(text)
+        if number in damaged_lines:
+            text = raw.decode("utf-8", "surrogateescape")  # bytes go back out unchanged
+            (after.setdefault(index, []) if index >= 0 else leading).append(text)
         else:
-            anchor = parsed_id
-    ordered = sorted(records, key=lambda pair: time_key(pair[0].time))
-    lines = list(after.pop(None, []))
-    for record, text in ordered:
+            index += 1
+    if index + 1 != len(existing):  # pragma: no cover - would mean parse_lines changed
+        raise HistoryError("internal error: destination lines and records do not line up")
+    tagged = [(time_key(r.time), i, text) for i, (r, text) in enumerate(existing)]
+    tagged += [(time_key(r.time), len(existing) + j, text) for j, (r, text) in enumerate(new)]
+    tagged.sort(key=lambda item: (item[0], item[1]))
+    lines = list(leading)
+    for _, i, text in tagged:
         lines.append(text)
-        lines.extend(after.pop(record.id, []))
-    for rest in after.values():
-        lines.extend(rest)
+        lines.extend(after.get(i, ()))
     return lines
-
-
-def _record_id(text: str) -> str | None:
-    parsed = parse_record(text)
-    return parsed.id if isinstance(parsed, Record) else None
