@@ -1,0 +1,184 @@
+"""Per-board summaries for the fleet view, and a cache of them that cannot go stale.
+
+The fleet view needs only a little from each board file: its sessions' outcomes and the
+failures each repair confirmed. ``summarize_file`` reads that (skipping reading and diagnosis
+lines unparsed, which it never needs). The cache ``<logs>/<profile>/.fleet-cache.json`` keeps
+one summary per file together with the file's identity at the moment it was read: inode,
+device, size, modification and change times in nanoseconds, taken with ``fstat`` on the open
+file *before* its bytes are read. Every way the store changes a file moves one of those: an
+append (or a crash mid-append) changes the size, a merge rewrite makes a new inode. A summary
+is used only when all of them still match, so a stale entry is recomputed, never believed.
+The cache is written like the history (temporary file, fsync, atomic rename); a crash leaves
+the old cache or the new one, both safe; a damaged, foreign or older-format cache is ignored
+and rebuilt; a read-only folder just means no cache is kept.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+from collections.abc import Iterator
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+from fieldtool.core.history import Record, parse_record, time_key
+from fieldtool.core.history_io import rewrite
+from fieldtool.core.history_sessions import confirmed_in, group_sessions
+
+CACHE_NAME = ".fleet-cache.json"
+CACHE_FORMAT = 1  # bump when the summary's meaning changes: old caches are then ignored
+_NEEDED = (b'"kind":"action"', b'"kind":"session-', b'"kind":"verification"')
+_NOT_NEEDED = (b'"kind":"reading"', b'"kind":"diagnosis"')
+
+
+@dataclass(frozen=True)
+class Repair:
+    """A session closed ``fixed`` that confirmed failures: (designator, mode, verified)."""
+
+    start: str
+    failures: tuple[tuple[str, str, bool], ...]
+
+
+@dataclass(frozen=True)
+class BoardSummary:
+    """What the fleet view needs from one board file."""
+
+    board: str
+    outcomes: dict[str, int]  # fixed, not-fixed, escalated, open -> sessions
+    repairs: tuple[Repair, ...]  # oldest first
+    damaged: int  # unreadable lines among those the summary needed
+
+    def to_json(self) -> dict[str, Any]:
+        """A compact JSON form for the cache."""
+        return {
+            "board": self.board,
+            "outcomes": self.outcomes,
+            "repairs": [[r.start, [list(f) for f in r.failures]] for r in self.repairs],
+            "damaged": self.damaged,
+        }
+
+    @classmethod
+    def from_json(cls, obj: dict[str, Any]) -> BoardSummary:
+        """Rebuild from ``to_json`` output (raises on anything else)."""
+        repairs = tuple(
+            Repair(str(start), tuple((str(d), str(m), bool(v)) for d, m, v in failures))
+            for start, failures in obj["repairs"]
+        )
+        outcomes = {str(k): int(v) for k, v in obj["outcomes"].items()}
+        return cls(str(obj["board"]), outcomes, repairs, int(obj["damaged"]))
+
+
+def _needed(line: bytes) -> bool:
+    # A bare `"kind":"reading"` can only be structure, never inside a string (quotes there are
+    # escaped); a line naming a needed kind anywhere is always parsed, so nothing is misread.
+    if any(marker in line for marker in _NOT_NEEDED):
+        return any(marker in line for marker in _NEEDED)
+    return True
+
+
+def summarize_bytes(board: str, data: bytes) -> BoardSummary:
+    """The summary of one board file's content."""
+    records: list[Record] = []
+    damaged = 0
+    for raw in data.split(b"\n"):
+        if not raw.strip() or not _needed(raw):
+            continue
+        try:
+            parsed = parse_record(raw.decode("utf-8"))
+        except UnicodeDecodeError:
+            damaged += 1
+            continue
+        if isinstance(parsed, str):
+            damaged += 1
+        else:
+            records.append(parsed)
+    records.sort(key=lambda r: time_key(r.time))
+    outcomes: dict[str, int] = {}
+    repairs = []
+    for session in group_sessions(records):
+        if session.id is None:
+            continue
+        outcome = session.outcome or "open"
+        outcomes[outcome] = outcomes.get(outcome, 0) + 1
+        found = confirmed_in(session)
+        if found:
+            failures = tuple((f.designator, f.mode, f.verified) for f in found)
+            repairs.append(Repair(time_key(session.start), failures))
+    return BoardSummary(board, outcomes, tuple(repairs), damaged)
+
+
+def _read_with_identity(path: Path) -> tuple[list[int], bytes]:
+    fd = os.open(path, os.O_RDONLY | os.O_CLOEXEC)
+    try:
+        st = os.fstat(fd)  # identity first: bytes appended after this make it stale
+        data = os.pread(fd, st.st_size, 0) if st.st_size else b""
+    finally:
+        os.close(fd)
+    return _identity(st), data[: st.st_size]
+
+
+def _identity(st: os.stat_result) -> list[int]:
+    return [st.st_ino, st.st_dev, st.st_size, st.st_mtime_ns, st.st_ctime_ns]
+
+
+def _board_files(folder: Path) -> Iterator[os.DirEntry[str]]:
+    with os.scandir(folder) as entries:
+        for entry in entries:
+            if entry.name.endswith(".jsonl") and not entry.name.startswith("."):
+                if entry.is_file():
+                    yield entry
+
+
+def _load_cache(folder: Path) -> dict[str, Any]:
+    try:
+        obj = json.loads((folder / CACHE_NAME).read_bytes())
+    except (OSError, ValueError):
+        return {}
+    if not isinstance(obj, dict) or obj.get("format") != CACHE_FORMAT:
+        return {}
+    files = obj.get("files")
+    return files if isinstance(files, dict) else {}
+
+
+def _cached(entry: Any, identity: list[int]) -> BoardSummary | None:
+    if not isinstance(entry, dict) or entry.get("identity") != identity:
+        return None
+    try:
+        return BoardSummary.from_json(entry["summary"])
+    except (KeyError, TypeError, ValueError):
+        return None  # a damaged entry: read the file again
+
+
+def summaries(folder: Path, *, use_cache: bool = True) -> list[BoardSummary]:
+    """Summaries of every board file in one profile folder, from the cache where it is valid."""
+    cache = _load_cache(folder) if use_cache else {}
+    fresh: dict[str, Any] = {}
+    result = []
+    changed = False
+    for entry in sorted(_board_files(folder), key=lambda e: e.name):
+        board = entry.name[: -len(".jsonl")]
+        st = entry.stat()
+        summary = _cached(cache.get(entry.name), _identity(st))
+        if summary is None:
+            try:
+                identity, data = _read_with_identity(Path(entry.path))
+            except OSError:
+                continue  # vanished or unreadable: `history` on that board says why
+            summary = summarize_bytes(board, data)
+            fresh[entry.name] = {"identity": identity, "summary": summary.to_json()}
+            changed = True
+        else:
+            fresh[entry.name] = cache[entry.name]
+        result.append(summary)
+    if use_cache and (changed or len(fresh) != len(cache)):
+        _save_cache(folder, fresh)
+    return result
+
+
+def _save_cache(folder: Path, files: dict[str, Any]) -> None:
+    text = json.dumps({"format": CACHE_FORMAT, "files": files}, separators=(",", ":"))
+    try:
+        rewrite(folder / CACHE_NAME, [text])
+    except OSError:
+        pass  # a read-only or full logs folder: the view is still right, only slower next time
