@@ -67,6 +67,7 @@ class Reading:
     source: str = "typed"
     spread: float | None = None
     overload: bool = False
+    ripple_vpp: float | None = None
 
     def __post_init__(self) -> None:
         _check_measurement(self)
@@ -133,6 +134,8 @@ def _check_measurement(m: Reading) -> None:
         raise HistoryError(f"{m.kind} at {m.node}: no volts given and not marked overload")
     if m.volts is not None and not math.isfinite(m.volts):
         raise HistoryError(f"{m.kind} at {m.node}: volts must be a finite number")
+    if m.ripple_vpp is not None and not (math.isfinite(m.ripple_vpp) and m.ripple_vpp >= 0):
+        raise HistoryError(f"{m.kind} at {m.node}: ripple must be a finite number of volts >= 0")
 
 
 def event_fields(event: Event) -> dict[str, Any]:

@@ -240,3 +240,17 @@ def test_concurrent_writer_during_merge_loses_nothing(tmp_path):
 def _append_many_readings(logs: str, count: int) -> None:
     for i in range(count):
         h.append(logs, "cw6", "SN1", h.Reading(node="S2", volts=float(i)))
+
+
+def test_cli_merge_into_a_read_only_folder_is_one_clear_line(tmp_path, capsys, read_only_dir):
+    """`fieldtool logs merge` into a folder it may not write: exit 2, one line, nothing made."""
+    from fieldtool.cli import main
+
+    logs = tmp_path / "laptop"
+    _reading(logs, "SN1", 0, 1.0)
+    shop = read_only_dir(tmp_path / "shop")
+    code = main(["logs", "merge", str(logs), "--logs", str(shop)])
+    out, err = capsys.readouterr()
+    assert code == 2 and out == "" and err.count("\n") == 1
+    assert err.startswith("fieldtool: history: could not merge into")
+    assert list(shop.iterdir()) == []
