@@ -28,8 +28,8 @@ from fieldtool.core.history_sessions import confirmed_in, group_sessions
 
 CACHE_NAME = ".fleet-cache.json"
 CACHE_FORMAT = 1  # bump when the summary's meaning changes: old caches are then ignored
-_NEEDED = (b'"kind":"action"', b'"kind":"session-', b'"kind":"verification"')
-_NOT_NEEDED = (b'"kind":"reading"', b'"kind":"diagnosis"')
+_KIND = b'"kind":"'
+_NOT_NEEDED = frozenset((b"reading", b"diagnosis"))
 
 
 @dataclass(frozen=True)
@@ -70,11 +70,17 @@ class BoardSummary:
 
 
 def _needed(line: bytes) -> bool:
-    # A bare `"kind":"reading"` can only be structure, never inside a string (quotes there are
-    # escaped); a line naming a needed kind anywhere is always parsed, so nothing is misread.
-    if any(marker in line for marker in _NOT_NEEDED):
-        return any(marker in line for marker in _NEEDED)
-    return True
+    # A bare `"kind":"` can only be JSON structure, never text inside a string (quotes there
+    # are escaped). A line is skipped unparsed only when its one and only kind is a reading or
+    # a diagnosis; anything else, or any doubt, is parsed.
+    at = line.find(_KIND)
+    if at < 0:
+        return True
+    start = at + len(_KIND)
+    end = line.find(b'"', start)
+    if line[start:end] not in _NOT_NEEDED:
+        return True
+    return line.find(_KIND, end) >= 0
 
 
 def summarize_bytes(board: str, data: bytes) -> BoardSummary:

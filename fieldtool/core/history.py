@@ -79,6 +79,7 @@ __all__ = [
     "parse_record",
     "read_board",
     "read_file",
+    "record_id_time",
     "resolve_logs_dir",
     "time_key",
 ]
@@ -169,34 +170,68 @@ def time_key(stamp: str) -> str:
         return stamp
 
 
-def parse_record(text: str) -> Record | str:
-    """One JSON line as a Record, or the reason it is not one."""
+_DECODER = json.JSONDecoder()
+
+
+def loads_line(text: str) -> Any:
+    """``json.loads`` of one line (same results and errors), quicker on the usual line."""
     try:
-        obj = json.loads(text)
+        obj, end = _DECODER.raw_decode(text)
     except ValueError:
-        return "not valid JSON (torn or corrupted line)"
+        return json.loads(text)  # e.g. leading whitespace: json.loads decides (and raises)
+    if end != len(text) and text[end:].strip(" \t\n\r"):
+        raise ValueError("extra data after the JSON value")
+    return obj
+
+
+def _envelope_problem(obj: Any) -> str | None:
+    """Why a parsed JSON value is not a record, or None when it is one."""
     if not isinstance(obj, dict):
         return "not a JSON object"
     schema = obj.get("schema")
     if not isinstance(schema, int) or isinstance(schema, bool):
         return "no schema version"
     for key in ("id", "time", "kind"):
-        if not isinstance(obj.get(key), str) or not obj[key]:
+        value = obj.get(key)
+        if not isinstance(value, str) or not value:
             return f"missing {key}"
+    return None
+
+
+def record_id_time(text: str) -> tuple[str, str] | str:
+    """A line's record id and time (checked exactly as ``parse_record`` does), or the reason."""
+    try:
+        obj = loads_line(text)
+    except ValueError:
+        return "not valid JSON (torn or corrupted line)"
+    problem = _envelope_problem(obj)
+    return problem if problem else (obj["id"], obj["time"])
+
+
+def parse_record(text: str) -> Record | str:
+    """One JSON line as a Record, or the reason it is not one."""
+    try:
+        obj = loads_line(text)
+    except ValueError:
+        return "not valid JSON (torn or corrupted line)"
+    problem = _envelope_problem(obj)
+    if problem:
+        return problem
+    schema, rid, stamp, kind = obj.pop("schema"), obj.pop("id"), obj.pop("time"), obj.pop("kind")
     session = obj.get("session")
     if isinstance(session, str) and session:
         del obj["session"]
     else:
         session = None  # absent, or a shape this version does not know: kept in fields
-    fields = {k: v for k, v in obj.items() if k not in _BASE_KEYS}
+    board, profile = obj.pop("board", ""), obj.pop("profile", "")
     return Record(
         schema=schema,
-        id=obj["id"],
-        time=obj["time"],
-        board=str(obj.get("board", "")),
-        profile=str(obj.get("profile", "")),
-        kind=obj["kind"],
-        fields=fields,
+        id=rid,
+        time=stamp,
+        board=board if isinstance(board, str) else str(board),
+        profile=profile if isinstance(profile, str) else str(profile),
+        kind=kind,
+        fields=obj,
         newer_schema=schema > SCHEMA,
         session=session,
     )
