@@ -19,7 +19,13 @@ HOSTILE_NOTE = '<script>alert("x")</script> <img src=x onerror=alert(1)> | *b* [
 HOSTILE_SERIAL = "<b>DL&1"
 
 
-@pytest.fixture(scope="module")
+@pytest.fixture(autouse=True)
+def _engine_cache(tmp_path_factory, monkeypatch):
+    """Keep the fault-dictionary cache of this test run out of the user's cache folder."""
+    monkeypatch.setenv("FIELDTOOL_CACHE", str(tmp_path_factory.getbasetemp() / "dictionary"))
+
+
+@pytest.fixture
 def expected():
     return expectations_for(load_profile(ROOT / "profiles" / f"{PROFILE}.toml"))
 
@@ -145,3 +151,24 @@ def test_report_for_an_unknown_board(tmp_path, capsys, expected):
     code, _, err = _report(capsys, "DL-0002", "--logs", str(logs), "--out", str(tmp_path / "r.md"))
     assert code == 2 and "no history for board 'DL-0002'" in err
     assert not (tmp_path / "r.md").exists()
+
+
+def test_report_says_so_when_the_engine_is_missing(tmp_path, capsys, expected, monkeypatch):
+    logs = tmp_path / "logs"
+    _write_session(logs, "DL-0001", expected, day(0))
+    monkeypatch.setitem(sys.modules, "fieldtool.core.dictionary", None)
+    out = tmp_path / "r.md"
+    code, _, _ = _report(capsys, "DL-0001", "--logs", str(logs), "--out", str(out))
+    text = out.read_text()
+    assert code == 0 and "diagnosis engine is not installed" in text
+    assert "band = meter accuracy only" in text and "| OUT |" in text
+
+
+def test_report_bands_come_from_the_fault_dictionary(expected):
+    from fieldtool.core.dictionary import load_or_build
+
+    d = load_or_build(load_profile(ROOT / "profiles" / f"{PROFILE}.toml"))
+    assert "fault dictionary" in expected.source
+    assert [e.node for e in expected.nodes] == list(d.nodes)
+    band = d.band("OUT")
+    assert (expected.get("OUT").low, expected.get("OUT").high) == (band.low, band.high)

@@ -254,3 +254,23 @@ def test_cli_merge_into_a_read_only_folder_is_one_clear_line(tmp_path, capsys, r
     assert code == 2 and out == "" and err.count("\n") == 1
     assert err.startswith("fieldtool: history: could not merge into")
     assert list(shop.iterdir()) == []
+
+
+def test_cli_record_into_a_read_only_folder_is_one_clear_line(
+    tmp_path, capsys, read_only_dir, monkeypatch
+):
+    """`fieldtool record` into a folder it may not write: exit 2, one line, nothing made."""
+    from fieldtool.cli import main
+    from tests.conftest import ROOT
+
+    monkeypatch.setenv("FIELDTOOL_CACHE", str(tmp_path / "dictionary"))
+    logs = read_only_dir(tmp_path / "logs")
+    readings = tmp_path / "r.csv"
+    readings.write_text("node,volts\nS0,3.3\nOUT,9.0\n")
+    profile = ROOT / "profiles" / "datalogger-eeprom-dickson.toml"
+    argv = ["record", str(profile), "--board", "DL-1", "--readings", str(readings)]
+    code = main([*argv, "--logs", str(logs)])
+    out, err = capsys.readouterr()
+    assert code == 2 and out == "" and err.count("\n") == 1
+    assert "could not save 4 records" in err and "nothing was written" in err
+    assert list(logs.iterdir()) == []
