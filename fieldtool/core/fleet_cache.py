@@ -16,8 +16,11 @@ and rebuilt; a read-only folder just means no cache is kept.
 from __future__ import annotations
 
 import json
+import multiprocessing
 import os
+import threading
 from collections.abc import Iterator
+from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -156,30 +159,50 @@ def _cached(entry: Any, identity: list[int]) -> BoardSummary | None:
         return None  # a damaged entry: read the file again
 
 
+PARALLEL_FILES = 200  # from this many files to read, the summaries use every core
+
+
+def _summarize_path(path: str) -> tuple[list[int], BoardSummary] | None:
+    """Read and summarise one board file (runs in a worker too); None if it is unreadable."""
+    try:
+        identity, data = _read_with_identity(Path(path))
+    except OSError:
+        return None  # vanished or unreadable: `history` on that board says why
+    return identity, summarize_bytes(Path(path).name[: -len(".jsonl")], data)
+
+
+def _summarize_all(paths: list[str]) -> list[tuple[list[int], BoardSummary] | None]:
+    can_fork = "fork" in multiprocessing.get_all_start_methods()
+    cores = min(os.cpu_count() or 1, 4)
+    if len(paths) < PARALLEL_FILES or cores < 2 or not can_fork or threading.active_count() > 1:
+        return [_summarize_path(p) for p in paths]
+    # forked workers (see history_merge.merge): only from a process with no other thread
+    with ProcessPoolExecutor(cores, mp_context=multiprocessing.get_context("fork")) as pool:
+        return list(pool.map(_summarize_path, paths, chunksize=64))
+
+
 def summaries(folder: Path, *, use_cache: bool = True) -> list[BoardSummary]:
     """Summaries of every board file in one profile folder, from the cache where it is valid."""
     cache = _load_cache(folder) if use_cache else {}
+    found: dict[str, BoardSummary] = {}
     fresh: dict[str, Any] = {}
-    result = []
-    changed = False
-    for entry in sorted(_board_files(folder), key=lambda e: e.name):
-        board = entry.name[: -len(".jsonl")]
-        st = entry.stat()
-        summary = _cached(cache.get(entry.name), _identity(st))
+    stale: list[str] = []
+    for entry in _board_files(folder):
+        summary = _cached(cache.get(entry.name), _identity(entry.stat()))
         if summary is None:
-            try:
-                identity, data = _read_with_identity(Path(entry.path))
-            except OSError:
-                continue  # vanished or unreadable: `history` on that board says why
-            summary = summarize_bytes(board, data)
-            fresh[entry.name] = {"identity": identity, "summary": summary.to_json()}
-            changed = True
+            stale.append(entry.path)
         else:
+            found[entry.name] = summary
             fresh[entry.name] = cache[entry.name]
-        result.append(summary)
-    if use_cache and (changed or len(fresh) != len(cache)):
+    for path, result in zip(stale, _summarize_all(stale), strict=True):
+        if result is not None:
+            identity, summary = result
+            name = Path(path).name
+            found[name] = summary
+            fresh[name] = {"identity": identity, "summary": summary.to_json()}
+    if use_cache and (stale or len(fresh) != len(cache)):
         _save_cache(folder, fresh)
-    return result
+    return [found[name] for name in sorted(found)]
 
 
 def _save_cache(folder: Path, files: dict[str, Any]) -> None:

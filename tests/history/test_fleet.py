@@ -196,3 +196,14 @@ def test_kind_markers_inside_text_do_not_fool_the_fast_path(tmp_path):
     )
     h.append(tmp_path, "cw6", "SN1", h.SessionClosed(outcome="fixed"), time=day(1), session=sid)
     assert confirmed_failures(tmp_path, "cw6") == {("D5", "open"): 1}
+
+
+def test_summaries_read_by_worker_processes_match_one_process(tmp_path, monkeypatch):
+    import fieldtool.core.fleet_cache as fc
+
+    _small_fleet(tmp_path)
+    one = fleet_view(tmp_path, "cw6", use_cache=False)
+    monkeypatch.setattr(fc, "PARALLEL_FILES", 2)  # four files: use the worker pool
+    assert fleet_view(tmp_path, "cw6", use_cache=False) == one
+    assert fleet_view(tmp_path, "cw6") == one  # the cache written from the workers' results
+    assert fleet_view(tmp_path, "cw6") == one

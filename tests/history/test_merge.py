@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import shutil
 from datetime import UTC, datetime, timedelta
 from pathlib import Path
 
@@ -274,3 +275,25 @@ def test_cli_record_into_a_read_only_folder_is_one_clear_line(
     assert code == 2 and out == "" and err.count("\n") == 1
     assert "could not save 4 records" in err and "nothing was written" in err
     assert list(logs.iterdir()) == []
+
+
+def test_merge_by_worker_processes_matches_one_process(tmp_path):
+    src = tmp_path / "laptop"
+    for serial in ("SN1", "SN2", "SN3", "SN4", "SN5"):
+        for i in range(6):
+            _reading(src, serial, 2 * i, float(i))
+    rid = "d" * 32
+    h.append(src, "cw6", "SN1", h.Reading(node="S9", volts=1.0), time=_at(50), record_id=rid)
+    shop = tmp_path / "shop"
+    for serial in ("SN1", "SN2", "SN3"):
+        _reading(shop, serial, 3, 9.0)
+    h.append(shop, "cw6", "SN1", h.Reading(node="S9", volts=2.0), time=_at(50), record_id=rid)
+    results = {}
+    for workers in (1, 2):
+        dst = tmp_path / f"shop{workers}"
+        shutil.copytree(shop, dst)
+        results[workers] = (merge(src, dst, workers=workers), _tree(dst))
+    (one, tree_one), (two, tree_two) = results[1], results[2]
+    assert (one.added, one.already_present, one.boards) == (two.added, two.already_present, 5)
+    assert one.conflicts == two.conflicts and len(one.conflicts) == 1
+    assert tree_one == tree_two and len(tree_one) == 5
