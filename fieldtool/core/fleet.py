@@ -18,7 +18,7 @@ from __future__ import annotations
 import statistics
 from collections import Counter, defaultdict
 from dataclasses import dataclass
-from datetime import datetime
+from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any
 
@@ -124,9 +124,13 @@ def profile_folder(logs_dir: Path | str, profile_name: str) -> Path:
     return folder
 
 
+def _instant(stamp: str) -> datetime:
+    moment = datetime.fromisoformat(stamp)
+    return moment if moment.tzinfo else moment.replace(tzinfo=UTC)
+
+
 def _days(earlier: str, later: str) -> float:
-    span = datetime.fromisoformat(later) - datetime.fromisoformat(earlier)
-    return span.total_seconds() / 86400.0
+    return (_instant(later) - _instant(earlier)).total_seconds() / 86400.0
 
 
 def fleet_view(logs_dir: Path | str, profile_name: str, *, use_cache: bool = True) -> FleetView:
@@ -145,18 +149,23 @@ def build_view(profile_name: str, boards: list[BoardSummary]) -> FleetView:
     recurring: list[RecurringBoard] = []
     gaps: list[float] = []
     repairs = 0
+    epoch = datetime(1970, 1, 1, tzinfo=UTC)
     for board in boards:
         outcomes.update(board.outcomes)
+        if not board.repairs:
+            continue
         repairs += len(board.repairs)
         by_part: dict[str, list[tuple[str, str]]] = defaultdict(list)
-        for repair in board.repairs:
-            for designator, mode, checked in repair.failures:
-                counts[(designator, mode)] += 1
-                verified[(designator, mode)] += checked
-                on_boards[(designator, mode)].add(board.board)
-                by_part[designator].append((repair.start, mode))
-        starts = [r.start for r in board.repairs]
-        gaps.extend(_days(a, b) for a, b in zip(starts, starts[1:], strict=False))
+        for start, found in board.repairs:
+            for designator, mode, checked in found:
+                key = (designator, mode)
+                counts[key] += 1
+                verified[key] += checked
+                on_boards[key].add(board.board)
+                by_part[designator].append((start, mode))
+        starts = [start for start, _ in board.repairs]
+        days = [(_instant(t) - epoch).total_seconds() / 86400.0 for t in starts]
+        gaps.extend(b - a for a, b in zip(days, days[1:], strict=False))
         for designator, seen in by_part.items():
             if len(seen) > 1:
                 times = tuple(t for t, _ in seen)
@@ -164,7 +173,7 @@ def build_view(profile_name: str, boards: list[BoardSummary]) -> FleetView:
                 modes = tuple(m for _, m in seen)
                 repeats.append(RepeatRepair(board.board, designator, modes, times, shortest))
         if len(board.repairs) > 1:
-            tally = Counter((d, m) for r in board.repairs for d, m, _ in r.failures)
+            tally = Counter((d, m) for _, found in board.repairs for d, m, _ in found)
             failures = tuple((d, m, n) for (d, m), n in sorted(tally.items()))
             recurring.append(
                 RecurringBoard(board.board, len(board.repairs), failures, starts[0], starts[-1])

@@ -9,17 +9,19 @@ file *before* its bytes are read. Every way the store changes a file moves one o
 append (or a crash mid-append) changes the size, a merge rewrite makes a new inode. A summary
 is used only when all of them still match, so a stale entry is recomputed, never believed.
 The cache is written like the history (temporary file, fsync, atomic rename); a crash leaves
-the old cache or the new one, both safe; a damaged, foreign or older-format cache is ignored
-and rebuilt; a read-only folder just means no cache is kept.
+the old cache or the new one, both safe. Its first line holds the format and a SHA-256 of the
+rest; a damaged, foreign or older-format cache is ignored and rebuilt; a read-only folder
+just means no cache is kept.
 """
 
 from __future__ import annotations
 
+import hashlib
 import json
 import multiprocessing
 import os
 import threading
-from collections.abc import Iterator
+from collections.abc import Iterator, Sequence
 from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass
 from pathlib import Path
@@ -30,26 +32,25 @@ from fieldtool.core.history_io import rewrite
 from fieldtool.core.history_sessions import confirmed_in, group_sessions
 
 CACHE_NAME = ".fleet-cache.json"
-CACHE_FORMAT = 1  # bump when the summary's meaning changes: old caches are then ignored
+CACHE_FORMAT = 2  # bump when the summary's meaning changes: old caches are then ignored
 _KIND = b'"kind":"'
 _NOT_NEEDED = frozenset((b"reading", b"diagnosis"))
 
 
-@dataclass(frozen=True)
-class Repair:
-    """A session closed ``fixed`` that confirmed failures: (designator, mode, verified)."""
-
-    start: str
-    failures: tuple[tuple[str, str, bool], ...]
+Repair = tuple[str, tuple[tuple[str, str, bool], ...]]  # (start, ((designator, mode, verified),))
 
 
 @dataclass(frozen=True)
 class BoardSummary:
-    """What the fleet view needs from one board file."""
+    """What the fleet view needs from one board file.
+
+    ``repairs`` lists the sessions closed ``fixed`` that confirmed failures, oldest first, as
+    (start, ((designator, mode, verified), ...)); read from the cache they are JSON lists.
+    """
 
     board: str
     outcomes: dict[str, int]  # fixed, not-fixed, escalated, open -> sessions
-    repairs: tuple[Repair, ...]  # oldest first
+    repairs: Sequence[Repair]
     damaged: int  # unreadable lines among those the summary needed
 
     def to_json(self) -> dict[str, Any]:
@@ -57,19 +58,16 @@ class BoardSummary:
         return {
             "board": self.board,
             "outcomes": self.outcomes,
-            "repairs": [[r.start, [list(f) for f in r.failures]] for r in self.repairs],
+            "repairs": self.repairs,
             "damaged": self.damaged,
         }
 
     @classmethod
     def from_json(cls, obj: dict[str, Any]) -> BoardSummary:
-        """Rebuild from ``to_json`` output (raises on anything else)."""
-        repairs = tuple(
-            Repair(str(start), tuple((str(d), str(m), bool(v)) for d, m, v in failures))
-            for start, failures in obj["repairs"]
-        )
-        outcomes = {str(k): int(v) for k, v in obj["outcomes"].items()}
-        return cls(str(obj["board"]), outcomes, repairs, int(obj["damaged"]))
+        """Rebuild from ``to_json`` output as read back from the (checksummed) cache."""
+        if not isinstance(obj["repairs"], list) or not isinstance(obj["outcomes"], dict):
+            raise ValueError("not a board summary")
+        return cls(str(obj["board"]), obj["outcomes"], obj["repairs"], int(obj["damaged"]))
 
 
 def _needed(line: bytes) -> bool:
@@ -113,7 +111,7 @@ def summarize_bytes(board: str, data: bytes) -> BoardSummary:
         found = confirmed_in(session)
         if found:
             failures = tuple((f.designator, f.mode, f.verified) for f in found)
-            repairs.append(Repair(time_key(session.start), failures))
+            repairs.append((time_key(session.start), failures))
     return BoardSummary(board, outcomes, tuple(repairs), damaged)
 
 
@@ -141,12 +139,18 @@ def _board_files(folder: Path) -> Iterator[os.DirEntry[str]]:
 
 def _load_cache(folder: Path) -> dict[str, Any]:
     try:
-        obj = json.loads((folder / CACHE_NAME).read_bytes())
+        raw = (folder / CACHE_NAME).read_bytes()
+        head, _, payload = raw.partition(b"\n")
+        payload = payload.removesuffix(b"\n")  # the store's writer ends every line
+
+        header = json.loads(head)
+        if not isinstance(header, dict) or header.get("format") != CACHE_FORMAT:
+            return {}
+        if header.get("sha256") != hashlib.sha256(payload).hexdigest():
+            return {}  # damaged on disk (the rename is atomic, so not by us): rebuild
+        files = json.loads(payload)
     except (OSError, ValueError):
         return {}
-    if not isinstance(obj, dict) or obj.get("format") != CACHE_FORMAT:
-        return {}
-    files = obj.get("files")
     return files if isinstance(files, dict) else {}
 
 
@@ -206,8 +210,9 @@ def summaries(folder: Path, *, use_cache: bool = True) -> list[BoardSummary]:
 
 
 def _save_cache(folder: Path, files: dict[str, Any]) -> None:
-    text = json.dumps({"format": CACHE_FORMAT, "files": files}, separators=(",", ":"))
+    payload = json.dumps(files, separators=(",", ":")).encode("utf-8")
+    header = {"format": CACHE_FORMAT, "sha256": hashlib.sha256(payload).hexdigest()}
     try:
-        rewrite(folder / CACHE_NAME, [text])
+        rewrite(folder / CACHE_NAME, [json.dumps(header).encode("utf-8"), payload])
     except OSError:
         pass  # a read-only or full logs folder: the view is still right, only slower next time

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import hashlib
 import json
 
 import pytest
@@ -11,6 +12,19 @@ from fieldtool.core.fleet import confirmed_failures, fleet_view
 from fieldtool.core.fleet_cache import CACHE_NAME
 from fieldtool.core.history_merge import merge
 from tests.history.helpers import day, session
+
+
+def _read_cache(logs):
+    """The cache's header and its files (the payload after the checksummed header line)."""
+    head, _, payload = (logs / "cw6" / CACHE_NAME).read_bytes().partition(b"\n")
+    return json.loads(head), json.loads(payload)
+
+
+def _write_cache(logs, files, *, sha=None, fmt=2):
+    """A cache file with a correct checksum unless ``sha`` is given."""
+    payload = json.dumps(files).encode()
+    header = {"format": fmt, "sha256": sha or hashlib.sha256(payload).hexdigest()}
+    (logs / "cw6" / CACHE_NAME).write_bytes(json.dumps(header).encode() + b"\n" + payload + b"\n")
 
 
 def _small_fleet(logs):
@@ -86,8 +100,9 @@ def _same(logs):
 def test_cache_is_written_and_gives_the_same_view(tmp_path):
     _small_fleet(tmp_path)
     first = _same(tmp_path)
-    cache = json.loads((tmp_path / "cw6" / CACHE_NAME).read_text())
-    assert sorted(cache["files"]) == ["SN1.jsonl", "SN2.jsonl", "SN3.jsonl", "SN4.jsonl"]
+    header, files = _read_cache(tmp_path)
+    assert header["format"] == 2 and len(header["sha256"]) == 64
+    assert sorted(files) == ["SN1.jsonl", "SN2.jsonl", "SN3.jsonl", "SN4.jsonl"]
     assert _same(tmp_path) == first
 
 
@@ -130,38 +145,59 @@ def test_cache_drops_deleted_boards(tmp_path):
     _same(tmp_path)
     (tmp_path / "cw6" / "SN1.jsonl").unlink()
     assert _same(tmp_path).boards == 3
-    cache = json.loads((tmp_path / "cw6" / CACHE_NAME).read_text())
-    assert "SN1.jsonl" not in cache["files"]
+    assert "SN1.jsonl" not in _read_cache(tmp_path)[1]
 
 
 @pytest.mark.parametrize(
-    "content",
-    [
-        b"{not json",
-        b"[]",
-        b'{"format": 999, "files": {}}',
-        b'{"format": 1, "files": {"SN1.jsonl": {"identity": "x", "summary": 3}}}',
-        b'{"format": 1, "files": {"SN1.jsonl": {"identity": [], "summary": {"board": 1}}}}',
-    ],
-    ids=["garbage", "not-object", "other-format", "bad-identity", "bad-summary"],
+    "damage",
+    ["garbage", "truncated", "other-format", "bad-checksum", "bad-identity", "bad-summary"],
 )
-def test_damaged_or_foreign_cache_is_ignored_and_rebuilt(tmp_path, content):
+def test_damaged_or_foreign_cache_is_ignored_and_rebuilt(tmp_path, damage):
     _small_fleet(tmp_path)
     expected = fleet_view(tmp_path, "cw6", use_cache=False)
-    (tmp_path / "cw6" / CACHE_NAME).write_bytes(content)
+    fleet_view(tmp_path, "cw6")
+    path = tmp_path / "cw6" / CACHE_NAME
+    good = path.read_bytes()
+    _, files = _read_cache(tmp_path)
+    entry = files["SN1.jsonl"]
+    if damage == "garbage":
+        path.write_bytes(b"{not json")
+    elif damage == "truncated":
+        path.write_bytes(good[: len(good) // 2])
+    elif damage == "other-format":
+        _write_cache(tmp_path, files, fmt=999)
+    elif damage == "bad-checksum":  # a flipped byte inside the payload
+        files["SN1.jsonl"]["summary"]["repairs"] = []
+        _write_cache(tmp_path, files, sha="0" * 64)
+    elif damage == "bad-identity":
+        entry["identity"] = "x"
+        _write_cache(tmp_path, files)
+    else:
+        entry["summary"] = {"board": 1}
+        _write_cache(tmp_path, files)
     assert fleet_view(tmp_path, "cw6") == expected
-    assert json.loads((tmp_path / "cw6" / CACHE_NAME).read_text())["format"] == 1
+    assert _read_cache(tmp_path)[0]["format"] == 2
+
+
+def test_the_cache_is_what_is_read_while_files_are_unchanged(tmp_path):
+    """A summary whose identity still matches is used as is (so the cache really saves work)."""
+    _small_fleet(tmp_path)
+    _same(tmp_path)
+    _, files = _read_cache(tmp_path)
+    files["SN1.jsonl"]["summary"]["repairs"] = []  # a lie, for the same bytes on disk
+    _write_cache(tmp_path, files)
+    assert fleet_view(tmp_path, "cw6").recurring_boards == ()
+    assert len(fleet_view(tmp_path, "cw6", use_cache=False).recurring_boards) == 1
 
 
 def test_a_cache_entry_for_other_bytes_is_not_believed(tmp_path):
     """An entry whose identity no longer matches the file is recomputed, never used."""
     _small_fleet(tmp_path)
     _same(tmp_path)
-    path = tmp_path / "cw6" / CACHE_NAME
-    cache = json.loads(path.read_text())
-    cache["files"]["SN1.jsonl"]["summary"]["repairs"] = []  # a lie ...
-    cache["files"]["SN1.jsonl"]["identity"][2] -= 1  # ... recorded for a different size
-    path.write_text(json.dumps(cache))
+    _, files = _read_cache(tmp_path)
+    files["SN1.jsonl"]["summary"]["repairs"] = []  # a lie ...
+    files["SN1.jsonl"]["identity"][2] -= 1  # ... recorded for a different size
+    _write_cache(tmp_path, files)
     assert len(fleet_view(tmp_path, "cw6").recurring_boards) == 1
 
 
