@@ -161,7 +161,7 @@ def timed(fn, *args, **kwargs):
 
 
 def machine() -> str:
-    """CPU model, cores and Python version."""
+    """CPU model, cores, Python version and how busy the machine already is."""
     model = "unknown CPU"
     try:
         out = subprocess.run(["lscpu"], capture_output=True, text=True, check=True).stdout
@@ -170,8 +170,10 @@ def machine() -> str:
         )
     except (OSError, subprocess.CalledProcessError, StopIteration):
         pass
+    load = ", ".join(f"{x:.1f}" for x in os.getloadavg())
     return (
-        f"{model}, {os.cpu_count()} cores, Python {platform.python_version()}, {platform.system()}"
+        f"{model}, {os.cpu_count()} cores, Python {platform.python_version()}, "
+        f"{platform.system()}; load average before the run {load} (1, 5, 15 min)"
     )
 
 
