@@ -50,7 +50,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         "dropped or rewritten; the same id with different content is kept and reported.",
     )
     m.add_argument("src_dir", help="the logs folder to merge from (it is not changed)")
-    m.add_argument("--logs", help=f"the logs folder to merge into ({LOGS_HELP[12:]}")
+    m.add_argument("--logs", help=f"the folder to merge into (default: ${ENV_VAR}, else ./logs)")
     m.add_argument("--json", action="store_true", help="one JSON object on stdout")
     m.set_defaults(handler=run_merge)
 
