@@ -173,8 +173,8 @@ def _staged_steady_state(circuit: Circuit, params: Params, steps: int, progress)
 
     1. From the healthy board's steady state (most faults are near it; its waveforms also
        seed each time step's Newton iteration).
-    2. What is left, from the ideal-formula charge of the faulted board itself; then again
-       after plain transient periods.
+    2. What is left, from the ideal-formula charge of the faulted board itself; then from
+       all capacitors discharged (as at power-up); then after plain transient periods.
     3. What is still left, with damped Newton steps (slow, so only for the few that need it).
     Variants that converge in none are reported as failed, never given a number.
     """
@@ -192,13 +192,17 @@ def _staged_steady_state(circuit: Circuit, params: Params, steps: int, progress)
         max_iterations=12,
         fallback_periods=0,
     )
-    for damped, limit, fallback in ((False, 15, 0), (False, 25, 20), (True, 12, 0)):
+    attempts = (("ideal", False, 15, 0), ("zero", False, 15, 0), ("ideal", False, 25, 20))
+    for start, damped, limit, fallback in (*attempts, ("ideal", True, 12, 0)):
         left = np.flatnonzero(~ss.converged)
         if len(left) == 0:
             break
+        part = params.take(left)
+        x0 = np.zeros_like(ss.period.x_start[left]) if start == "zero" else None
         retry = steady_state(
             circuit,
-            params.take(left),
+            part,
+            x0=x0,
             steps_per_period=steps,
             max_iterations=limit,
             fallback_periods=fallback,
