@@ -120,8 +120,8 @@ def as_read(circuit, rows: list[Params], meter_ohms: float) -> tuple[np.ndarray,
     return volts, ok
 
 
-def make_trials(profile, d, n_trials: int, rng) -> tuple[list[Trial], int, dict[str, int]]:
-    """Sampled trials with their truths; also the count dropped and the population sizes."""
+def make_trials(profile, d, n_trials: int, rng) -> tuple[list[Trial], list[str], dict[str, int]]:
+    """Sampled trials with their truths; also the faults dropped and the population sizes."""
     circuit, nominal = build_circuit(profile)
     pool = fault_instances(d)
     chosen: list[tuple[str, Fault | None]] = []
@@ -141,9 +141,10 @@ def make_trials(profile, d, n_trials: int, rng) -> tuple[list[Trial], int, dict[
         rows.append(board if fault is None else apply_fault(circuit, board, fault, profile))
     volts, ok = as_read(circuit, rows, profile.meter_ohms)
     bands = [d.band(node) for node in d.nodes]
-    trials = []
+    trials, dropped = [], []
     for (cls, fault), v, good in zip(chosen, volts, ok, strict=True):
         if not good:
+            dropped.append("healthy" if fault is None else fault.spec(profile))
             continue
         if cls == "soft":
             outside = any(not b.contains(float(x)) for b, x in zip(bands, v, strict=True))
@@ -155,7 +156,7 @@ def make_trials(profile, d, n_trials: int, rng) -> tuple[list[Trial], int, dict[
             spec = fault.spec(profile)
         trials.append(Trial(key, spec, cls, v))
     sizes = {c: len(pool[c]) for c in DRAWN if c != "healthy"}
-    return trials, int((~ok).sum()), sizes
+    return trials, dropped, sizes
 
 
 def right(result, key: str, k: int) -> bool:
@@ -196,6 +197,9 @@ def run_trial(d, priors, trial: Trial, rng) -> dict:
         "ordered": len(ordered),
         "ordered_ok": order_ok,
         "miss": None if right(result, trial.key, 3) else (trial.spec, result.top.key),
+        "hard_miss": None
+        if trial.cls != "open/short" or right(result, trial.key, 1)
+        else (trial.spec, result.top.key),
     }
 
 
@@ -238,7 +242,7 @@ def main() -> None:
         "| board | class | trials | top-1 | top-3 | no-fit | guided probes | in-order probes |\n"
         "|---|---|---:|---:|---:|---:|---:|---:|"
     )
-    lines, misses, notes = [header], [], []
+    lines, misses, hard_misses, notes = [header], [], [], []
     for profile in boards:
         if args.only and args.only not in profile.name:
             continue
@@ -255,15 +259,21 @@ def main() -> None:
         lines.append(f"| {profile.name} | all faults | {summarise(faults)} |")
         hard = [r for t, r in results if t.cls == "open/short"]
         notes.append(
-            f"{profile.name}: {len(d.nodes)} nodes, population {sizes}, {dropped} truths not "
-            f"converged (dropped); guided/in-order probes: open/short {_ratio(hard):.2f}, "
+            f"{profile.name}: {len(d.nodes)} nodes, population {sizes}, {len(dropped)} truths "
+            f"not converged (dropped: {', '.join(dropped) or 'none'}); "
+            f"guided/in-order probes: open/short {_ratio(hard):.2f}, "
             f"all faults {_ratio(faults):.2f}; {time.perf_counter() - t0:.0f} s"
         )
         misses += [f"{profile.name}: {m[0]} → {m[1]}" for _, r in results if (m := r["miss"])]
+        hard_misses += [
+            f"{profile.name}: {m[0]} → {m[1]}" for _, r in results if (m := r["hard_miss"])
+        ]
         print(lines[-1], file=sys.stderr)
     print("\n".join(lines))
     print()
     print("\n".join(notes))
+    print(f"\nopen/short faults not top-1 ({len(hard_misses)}):")
+    print("\n".join(f"  {m}" for m in hard_misses))
     print(f"\ntop-3 misses ({len(misses)}):")
     print("\n".join(f"  {m}" for m in misses))
 
