@@ -1,0 +1,236 @@
+"""The probing screen's panels: node table, suspects, safety strip."""
+
+from __future__ import annotations
+
+from textual.content import Content
+from textual.widgets import DataTable, Static
+
+from fieldtool.core.diagnosis import Diagnosis
+from fieldtool.core.dictionary import FaultDictionary
+from fieldtool.core.safety import (
+    CAUTION,
+    HAZARD_NOTE,
+    HAZARD_STANDARD,
+    SafetyFigures,
+    format_duration,
+)
+from fieldtool.tui.view import (
+    SHORT,
+    STYLE,
+    Verdict,
+    band_text,
+    bar,
+    deviation_text,
+    percent_text,
+    verdict,
+    volts_text,
+)
+
+WIDE_TABLE = 60  # table width from which the test-point and expected columns show
+
+
+class NodeTable(DataTable):
+    """Node, test point, expected with its band, measured, deviation, verdict; one row a node."""
+
+    def __init__(self, dictionary: FaultDictionary, labels: dict[str, str], **kwargs) -> None:
+        super().__init__(cursor_type="row", zebra_stripes=False, **kwargs)
+        self.dictionary = dictionary
+        self.labels = labels
+        self.values: dict[str, float | None] = {}
+        self.wide: bool | None = None
+
+    def on_mount(self) -> None:
+        """Build the columns for the width the table has."""
+        self.border_title = "Nodes"
+        self.rebuild(self.size.width >= WIDE_TABLE)
+
+    def on_resize(self) -> None:
+        """Show more columns when there is room for them."""
+        wide = self.size.width >= WIDE_TABLE
+        if wide != self.wide:
+            self.rebuild(wide)
+
+    def rebuild(self, wide: bool) -> None:
+        """Lay the table out again (narrow or wide), keeping the cursor's node."""
+        chosen = self.selected_node
+        self.wide = wide
+        self.clear(columns=True)
+        self.add_column("Node", key="node", width=4)
+        if wide:
+            self.add_column("TP", key="tp", width=max([2] + [len(t) for t in self.labels.values()]))
+            self.add_column("Expect V", key="expected", width=8)
+        self.add_column("Band V", key="band", width=11)
+        self.add_column("Read V", key="read", width=7)
+        self.add_column("Δ V", key="dev", width=12 if wide else 6)
+        self.add_column("Verdict", key="verdict", width=12 if wide else 6)
+        for node in self.dictionary.nodes:
+            self.add_row(*self._cells(node), key=node)
+        if chosen is not None:
+            self.move_cursor(row=self.dictionary.nodes.index(chosen))
+
+    def verdict_for(self, node: str) -> Verdict:
+        """The node's verdict from the readings shown."""
+        b = self.dictionary.band(node)
+        return verdict(b.expected, b.low, b.high, self.values.get(node), node in self.values)
+
+    def _cells(self, node: str) -> list:
+        b = self.dictionary.band(node)
+        v = self.verdict_for(node)
+        style = STYLE[v.state]
+        read = volts_text(self.values[node]) if node in self.values else "—"
+        cells: list = [Content.styled(node, "bold")]
+        if self.wide:
+            cells += [self.labels.get(node, ""), volts_text(b.expected)]
+        cells += [
+            band_text(b.low, b.high),
+            Content.styled(read, style),
+            Content.styled(deviation_text(v, percent=bool(self.wide)), style),
+            Content.styled(f"{v.symbol} {v.state if self.wide else SHORT[v.state]}", style),
+        ]
+        return cells
+
+    def show(self, values: dict[str, float | None]) -> None:
+        """Show the readings (node → volts, None for over range); update rows in place."""
+        changed = set(values) ^ set(self.values)
+        changed |= {n for n in values if n in self.values and values[n] != self.values[n]}
+        self.values = dict(values)
+        keys = ["node", "tp", "expected", "band"] if self.wide else ["node", "band"]
+        keys += ["read", "dev", "verdict"]
+        for node in changed:
+            for key, cell in zip(keys, self._cells(node), strict=True):
+                self.update_cell(node, key, cell)
+
+    @property
+    def selected_node(self) -> str | None:
+        """The node under the cursor."""
+        if not self.row_count:
+            return None
+        return self.dictionary.nodes[min(self.cursor_row, len(self.dictionary.nodes) - 1)]
+
+    def select(self, node: str) -> None:
+        """Put the cursor on a node."""
+        self.move_cursor(row=self.dictionary.nodes.index(node))
+
+
+class SuspectsPanel(Static):
+    """Ranked suspects with probability bars, ambiguity in words, the next probe."""
+
+    def __init__(self, labels: dict[str, str], **kwargs) -> None:
+        super().__init__(**kwargs)
+        self.labels = labels
+        self.diagnosis: Diagnosis | None = None
+
+    def on_mount(self) -> None:
+        """Title the panel."""
+        self.border_title = "Suspects"
+
+    def on_resize(self) -> None:
+        """Bars follow the panel's width."""
+        self.refresh_text()
+
+    def show(self, diagnosis: Diagnosis) -> None:
+        """Show a new diagnosis."""
+        self.diagnosis = diagnosis
+        self.refresh_text()
+
+    def next_line(self) -> Content:
+        """Where to probe next, or why nowhere."""
+        d = self.diagnosis
+        if d is None:
+            return Content("")
+        if d.next_probe is None:
+            return Content.styled("No probe left that would change the ranking.", "$text-muted")
+        tp = self.labels.get(d.next_probe, "")
+        where = f"{d.next_probe} ({tp})" if tp else d.next_probe
+        return Content.assemble(
+            "Next ▸ ",
+            (where, "bold $text-accent"),
+            f" {d.next_probe_gain_bits:.2f} bits ",
+            ("[n]", "bold"),
+        )
+
+    def refresh_text(self) -> None:
+        """Redraw for the current width and height."""
+        d = self.diagnosis
+        if d is None:
+            self.update("Waiting for the fault dictionary…")
+            return
+        width = max(self.size.width - 2, 30)
+        lines: list[Content] = []
+        if d.fit.no_fit:
+            lines.append(
+                Content.styled(f"⚠ No single fault fits: {d.fit.text}", "bold $text-error")
+            )
+        lines.insert(0, self.next_line())
+        notes = [Content.styled(f"≈ {g.text}", "$text-warning") for g in d.ambiguity]
+        room = max(3, self.size.height - len(lines) - len(notes) - 1)
+        name_w = min(24, max(10, width - 18))
+        bar_w = max(5, width - name_w - 9)
+        ranked = []
+        for i, s in enumerate(d.suspects[:room], start=1):
+            words = (s.words or s.key)[:name_w].ljust(name_w)
+            style = "bold" if i == 1 else ""
+            ranked.append(
+                Content.assemble(
+                    f"{i:>2} ",
+                    (words, style),
+                    " ",
+                    (bar(s.probability, bar_w), "$text-primary"),
+                    f" {percent_text(s.probability):>4}",
+                )
+            )
+        top = d.suspects[0] if d.suspects else None
+        if top is not None and top.prior_source:
+            notes.append(Content.styled(f"prior: {top.prior_source}", "$text-muted"))
+        self.update(Content("\n").join(lines + ranked + notes))
+
+
+class SafetyStrip(Static):
+    """Highest voltage, stored energy, time to the safe level, caution for the selected node."""
+
+    def on_mount(self) -> None:
+        """Title the strip and show the standing caution until figures arrive."""
+        self.border_title = "Safety"
+        self.figures: SafetyFigures | None = None
+        self.selected_hazard = False
+        self.selected: str | None = None
+        self.redraw()
+
+    def show(self, figures: SafetyFigures | None, selected: str | None, hazard: bool) -> None:
+        """Show new figures and whether the selected node is above the threshold."""
+        self.figures = figures
+        self.selected = selected
+        self.selected_hazard = hazard
+        self.redraw()
+
+    def redraw(self) -> None:
+        """Two lines: figures, then the caution that applies now."""
+        f = self.figures
+        if f is None:
+            first = Content.styled("Safety figures: computing…", "$text-muted")
+        else:
+            where = "read" if f.highest_measured else "expected"
+            stored = f"{f.stored_energy_j:.3g} J"
+            if f.estimated:
+                stored += " (some expected)"
+            first = Content.assemble(
+                ("⚡ ", "bold $text-warning"),
+                f"{f.highest_node} {volts_text(f.highest_volts)} V ({where}) · {stored} · ",
+                f"<{f.safe_volts:g} V {format_duration(f.discharge_s)} after power-off",
+            )
+            if f.overloaded:
+                first += Content.styled(f" · OL at {', '.join(f.overloaded)}", "bold $text-error")
+        if f is not None and self.selected_hazard:
+            why = (
+                f"{HAZARD_STANDARD} threshold, from memory"
+                if f.threshold_source == HAZARD_NOTE
+                else "the profile's safe level"
+            )
+            second = Content.styled(
+                f"⚠ {self.selected} is above {f.safe_volts:g} V ({why}; s for detail) · rated "
+                "probes, one hand · discharge and verify before touching",
+                "bold $text-error",
+            )
+        else:
+            second = Content.styled(CAUTION, "$text-muted")
+        self.update(first + Content("\n") + second)
