@@ -35,6 +35,9 @@ class AppConfig:
     cache_dir: Path | None = None
     technician: str = ""
     settings: MeterSettings = field(default_factory=MeterSettings)
+    rescue_dir: Path | None = (
+        None  # where unsaveable events go at quit (default ~/fieldtool-rescue)
+    )
 
 
 @dataclass(frozen=True)
@@ -133,6 +136,7 @@ class FieldtoolApp(App):
             request.serial,
             on_saved=lambda event: self.post_message(HistorySaved()),
             on_error=lambda exc, event: self.post_message(HistoryFailed(exc)),
+            rescue_dirs=(self.config.rescue_dir,) if self.config.rescue_dir else (),
         )
         session = BoardSession(
             request.profile,
@@ -260,6 +264,7 @@ def make_app(
     cache_dir: str | os.PathLike[str] | None = None,
     technician: str = "",
     settings: MeterSettings | None = None,
+    rescue_dir: str | os.PathLike[str] | None = None,
 ) -> FieldtoolApp:
     """The app, shared by the CLI and the tests."""
     config = AppConfig(
@@ -268,5 +273,6 @@ def make_app(
         cache_dir=Path(cache_dir) if cache_dir else None,
         technician=technician,
         settings=settings or MeterSettings(),
+        rescue_dir=Path(rescue_dir) if rescue_dir else None,
     )
     return FieldtoolApp(config, request)

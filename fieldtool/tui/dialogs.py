@@ -134,7 +134,11 @@ class ActionDialog(ModalScreen[ActionForm | None]):
             return
         mode = self.query_one("#mode", Select)
         ref = event.value if event.value is not Select.NULL else None
-        mode.set_options(self._modes(ref))
+        current = mode.value
+        options = self._modes(ref)
+        mode.set_options(options)
+        if current in [name for _, name in options]:
+            mode.value = current
 
     def on_button_pressed(self, event: Button.Pressed) -> None:
         """Save or cancel."""

@@ -77,7 +77,10 @@ class ProbingScreen(Screen):
             yield NodeTable(self.session.dictionary, p.labels, id="nodes")
             yield SuspectsPanel(p.labels, id="suspects")
         yield Input(
-            id="entry", compact=True, placeholder="type a reading, e.g. 12.9 or 890mV or OL"
+            id="entry",
+            compact=True,
+            select_on_focus=False,
+            placeholder="type a reading, e.g. 12.9 or 890mV or OL",
         )
         yield MeterStrip(self.choice, p, id="meter")
         yield SafetyStrip(id="safety")

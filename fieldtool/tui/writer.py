@@ -30,12 +30,17 @@ class HistoryWriter:
         serial: str,
         on_saved: Callable[[object], None] | None = None,
         on_error: Callable[[FieldtoolError, object], None] | None = None,
+        rescue_dirs: tuple[Path, ...] = (),
     ) -> None:
         self.logs_dir = Path(logs_dir)
         self.profile_name = profile_name
         self.serial = hist.check_name(serial)
         self.on_saved = on_saved
         self.on_error = on_error
+        self.rescue_dirs = rescue_dirs or (
+            Path.home() / "fieldtool-rescue",
+            Path(tempfile.gettempdir()) / "fieldtool-rescue",
+        )
         self.saved = 0
         self.unsaved: list[object] = []  # waiting for a retry after a failure, oldest first
         self._queue: queue.Queue = queue.Queue()
@@ -68,22 +73,17 @@ class HistoryWriter:
         return ok
 
     def rescue(self) -> tuple[int, Path | None]:
-        """Save events that could not be saved into a rescue folder; (count, folder or None)."""
-        if not self.unsaved:
-            return 0, None
-        for folder in (
-            Path.home() / "fieldtool-rescue",
-            Path(tempfile.gettempdir()) / "fieldtool-rescue",
-        ):
-            try:
-                for event in self.unsaved:
-                    hist.append(folder, self.profile_name, self.serial, event)
-            except (FieldtoolError, OSError):
-                continue
-            count = len(self.unsaved)
-            self.unsaved.clear()
-            return count, folder
-        return len(self.unsaved), None
+        """Save what could not be saved into a rescue folder; (count, last folder used)."""
+        count, used = len(self.unsaved), None
+        for folder in self.rescue_dirs:
+            while self.unsaved:
+                try:
+                    hist.append(folder, self.profile_name, self.serial, self.unsaved[0])
+                except FieldtoolError:
+                    break  # try the next folder with what is left
+                self.unsaved.pop(0)
+                used = folder
+        return count, used
 
     def _run(self) -> None:
         while True:
