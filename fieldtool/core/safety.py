@@ -2,8 +2,8 @@
 
 Everything here is an estimate for the technician's judgement, never a clearance. The energy in
 each capacitor is ½CV² with V the DC voltage across that capacitor, taken from the node readings
-where both of its nodes were read and from the expected values (the healthy board with no meter
-on it) where they were not; the figures say which capacitors used expected values. The time to
+where both of its nodes were read and from the expected values the caller gives (the healthy
+board) where they were not; the figures say which capacitors used expected values. The time to
 fall below the safe level after power-off comes from ``core.expect.discharge_time`` started from
 that charge, through the board's load, bleeder, diodes and capacitor leakage as the profile gives
 them: a failed bleeder or an open diode can strand charge far longer, so treat it as a lower
@@ -31,8 +31,8 @@ HAZARD_NOTE = (
     "(from memory: check the edition in force)"
 )
 CAUTION = (
-    "Power off, discharge every capacitor through a rated resistor, then verify with the "
-    "meter before touching. Estimates only: local codes and licensed practice come first."
+    "Power off, discharge through a rated resistor, verify with the meter before touching. "
+    "Estimates only: local codes and licensed practice come first."
 )
 
 
@@ -86,11 +86,21 @@ def above_threshold(volts: float | None, safe_volts: float) -> bool:
     return volts is None or abs(volts) >= safe_volts
 
 
-def node_hazard(node: str, expectation: Expectation, readings: Mapping[str, float | None]) -> bool:
+def expected_volts(expectation: Expectation) -> dict[str, float]:
+    """Node → expected DC volts with no meter on the board, from a full expectation."""
+    return {n.node: n.unloaded_volts for n in expectation.nodes}
+
+
+def node_hazard(
+    node: str,
+    expected: Mapping[str, float],
+    readings: Mapping[str, float | None],
+    safe_volts: float,
+) -> bool:
     """True when the node is above the hazard threshold: as read, or as expected if unread."""
     if node in readings:
-        return above_threshold(readings[node], expectation.safe_volts)
-    return above_threshold(expectation.node(node).volts, expectation.safe_volts)
+        return above_threshold(readings[node], safe_volts)
+    return above_threshold(expected[node], safe_volts)
 
 
 def _source_average(profile: Profile, kind: str) -> float:
@@ -103,7 +113,7 @@ def _source_average(profile: Profile, kind: str) -> float:
 
 
 def node_voltages(
-    profile: Profile, expectation: Expectation, readings: Mapping[str, float | None]
+    profile: Profile, expected: Mapping[str, float], readings: Mapping[str, float | None]
 ) -> tuple[dict[str, float], set[str]]:
     """Every circuit node's DC volts (readings first, expected otherwise) and the nodes read.
 
@@ -113,13 +123,13 @@ def node_voltages(
     circuit, _ = build_circuit(profile)
     volts: dict[str, float] = {}
     read: set[str] = set()
-    for n in expectation.nodes:
-        value = readings.get(n.node)
+    for node in (circuit.name(i) for i in circuit.probe_nodes):
+        value = readings.get(node)
         if value is not None and math.isfinite(value):
-            volts[n.node] = float(value)
-            read.add(n.node)
+            volts[node] = float(value)
+            read.add(node)
         else:
-            volts[n.node] = n.unloaded_volts
+            volts[node] = float(expected[node])
     for s in circuit.sources:
         name = circuit.name(s.node)
         if name not in volts:
@@ -129,14 +139,16 @@ def node_voltages(
 
 
 def safety_figures(
-    profile: Profile, expectation: Expectation, readings: Mapping[str, float | None]
+    profile: Profile, expected: Mapping[str, float], readings: Mapping[str, float | None]
 ) -> SafetyFigures:
     """Highest voltage, stored energy (½CV²) and time to the safe level, from the readings.
 
-    ``readings`` maps node name → volts read (None where the meter was over range).
+    ``expected`` maps every probe node to its expected DC volts (``expected_volts`` of an
+    expectation, or the healthy centre of each band); ``readings`` maps node name → volts read
+    (None where the meter was over range).
     """
     circuit, params = build_circuit(profile)
-    volts, read = node_voltages(profile, expectation, readings)
+    volts, read = node_voltages(profile, expected, readings)
     volts["GND"] = 0.0
     read.add("GND")
     x_on = np.zeros(len(circuit.cap_refs))
@@ -157,10 +169,11 @@ def safety_figures(
                 from_readings=a in read and b in read,
             )
         )
-    probed = [n.node for n in expectation.nodes]
+    probed = [circuit.name(i) for i in circuit.probe_nodes]
     overloaded = tuple(n for n in probed if n in readings and readings[n] is None)
     highest = max(probed, key=lambda n: abs(volts[n]))
-    hazards = tuple(n for n in probed if node_hazard(n, expectation, readings))
+    safe = profile.safe_volts
+    hazards = tuple(n for n in probed if node_hazard(n, volts, readings, safe))
     return SafetyFigures(
         highest_volts=abs(volts[highest]),
         highest_node=highest,

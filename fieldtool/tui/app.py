@@ -90,9 +90,10 @@ class FieldtoolApp(App):
         """Open on the start screen, or straight on a board."""
         from fieldtool.tui.start import StartScreen
 
-        self.push_screen(StartScreen(self.config))
         if self.request is not None:
-            self.begin(self.request)
+            self.begin(self.request)  # the start screen comes after the session, if at all
+        else:
+            self.push_screen(StartScreen(self.config))
 
     def begin(self, request: SessionRequest) -> None:
         """Load the board's fault dictionary and history, then open its session."""
@@ -193,6 +194,13 @@ class FieldtoolApp(App):
             self.push_screen(ErrorDialog(message.error))
 
     # --- app-wide actions ----------------------------------------------------------------
+
+    def loading_failed(self, error: FieldtoolError) -> None:
+        """The board could not be opened: the start screen, with the error over it."""
+        from fieldtool.tui.start import StartScreen
+
+        self.switch_screen(StartScreen(self.config))
+        self.show_error(error)
 
     def show_error(self, error: FieldtoolError) -> None:
         """Show an error in a dialog."""

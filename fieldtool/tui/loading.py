@@ -67,5 +67,4 @@ class LoadingScreen(Screen):
         self.query_one("#loading-bar", ProgressBar).update(total=total, progress=done)
 
     def _failed(self, error: FieldtoolError) -> None:
-        self.app.pop_screen()
-        self.app.show_error(error)
+        self.app.loading_failed(error)

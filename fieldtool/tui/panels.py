@@ -26,7 +26,7 @@ from fieldtool.tui.view import (
     volts_text,
 )
 
-WIDE_TABLE = 60  # table width from which the test-point and expected columns show
+WIDE_TABLE = 62  # table width from which the test-point and expected columns show
 
 
 class NodeTable(DataTable):
@@ -58,11 +58,12 @@ class NodeTable(DataTable):
         self.add_column("Node", key="node", width=4)
         if wide:
             self.add_column("TP", key="tp", width=max([2] + [len(t) for t in self.labels.values()]))
-            self.add_column("Expect V", key="expected", width=8)
-        self.add_column("Band V", key="band", width=11)
+            self.add_column("Expected (band) V", key="band", width=17)
+        else:
+            self.add_column("Band V", key="band", width=11)
         self.add_column("Read V", key="read", width=7)
         self.add_column("Δ V", key="dev", width=12 if wide else 6)
-        self.add_column("Verdict", key="verdict", width=12 if wide else 6)
+        self.add_column("Verdict", key="verdict", width=12 if wide else 7)
         for node in self.dictionary.nodes:
             self.add_row(*self._cells(node), key=node)
         if chosen is not None:
@@ -80,9 +81,13 @@ class NodeTable(DataTable):
         read = volts_text(self.values[node]) if node in self.values else "—"
         cells: list = [Content.styled(node, "bold")]
         if self.wide:
-            cells += [self.labels.get(node, ""), volts_text(b.expected)]
+            cells += [
+                self.labels.get(node, ""),
+                f"{volts_text(b.expected)} [{band_text(b.low, b.high)}]",
+            ]
+        else:
+            cells.append(band_text(b.low, b.high))
         cells += [
-            band_text(b.low, b.high),
             Content.styled(read, style),
             Content.styled(deviation_text(v, percent=bool(self.wide)), style),
             Content.styled(f"{v.symbol} {v.state if self.wide else SHORT[v.state]}", style),
@@ -94,7 +99,7 @@ class NodeTable(DataTable):
         changed = set(values) ^ set(self.values)
         changed |= {n for n in values if n in self.values and values[n] != self.values[n]}
         self.values = dict(values)
-        keys = ["node", "tp", "expected", "band"] if self.wide else ["node", "band"]
+        keys = ["node", "tp", "band"] if self.wide else ["node", "band"]
         keys += ["read", "dev", "verdict"]
         for node in changed:
             for key, cell in zip(keys, self._cells(node), strict=True):
@@ -167,7 +172,11 @@ class SuspectsPanel(Static):
         name_w = min(24, max(10, width - 18))
         bar_w = max(5, width - name_w - 9)
         ranked = []
+        shown = 0.0
         for i, s in enumerate(d.suspects[:room], start=1):
+            if i > 5 and shown >= 0.999:
+                break  # the long tail of hypotheses the readings have ruled out
+            shown += s.probability
             words = (s.words or s.key)[:name_w].ljust(name_w)
             style = "bold" if i == 1 else ""
             ranked.append(

@@ -13,7 +13,6 @@ from textual.screen import Screen
 from textual.widgets import DataTable, Footer, Input, Static
 
 from fieldtool.core.errors import FieldtoolError
-from fieldtool.core.expect import Expectation, expect
 from fieldtool.core.faults import describe, display_name
 from fieldtool.core.safety import node_hazard, safety_figures
 from fieldtool.meters.parse import parse_typed
@@ -32,6 +31,7 @@ from fieldtool.tui.session import BoardSession
 from fieldtool.tui.view import volts_text
 
 TYPING_KEYS = set("0123456789-.+,")
+SAFETY_DELAY_S = 0.15  # let the panels repaint before the safety figures are recomputed
 
 
 def suspect_ref(key: str) -> str | None:
@@ -62,8 +62,12 @@ class ProbingScreen(Screen):
         self.session = session
         self.choice = choice
         self.demo_fault = demo_fault
-        self.expectation: Expectation | None = None
+        # Unread nodes count at their healthy expected value (the band's centre) for safety.
+        d = session.dictionary
+        self.expected = {n: d.band(n).expected for n in d.nodes}
         self.figures = None
+        self.figures_for: dict | None = None
+        self._safety_timer = None
         self.last_problem = ""
 
     # --- layout --------------------------------------------------------------------------
@@ -86,11 +90,14 @@ class ProbingScreen(Screen):
         yield SafetyStrip(id="safety")
         yield Footer()
 
+    def on_resize(self) -> None:
+        """Tall terminals draw the whole ladder on more rows."""
+        self.set_class(self.size.height >= 34, "-tall")
+
     def on_mount(self) -> None:
         """Show the session and start the safety computation."""
         self.refresh_all()
         self.query_one(NodeTable).focus()
-        self._load_expectation()
 
     # --- state to widgets ----------------------------------------------------------------
 
@@ -147,44 +154,36 @@ class ProbingScreen(Screen):
                 break
         return ranks
 
-    def _update_safety(self) -> None:
-        strip = self.query_one(SafetyStrip)
-        if self.expectation is None:
-            strip.show(None, self.selected, False)
-            return
-        node = self.selected
-        hazard = node is not None and node_hazard(
-            node, self.expectation, self.session.volts_by_node()
+    def _hazard(self, node: str | None) -> bool:
+        values = self.session.volts_by_node()
+        return node is not None and node_hazard(
+            node, self.expected, values, self.session.profile.safe_volts
         )
-        strip.show(self.figures, node, hazard)
-        self._compute_safety()
 
-    @work(thread=True, exclusive=True, group="expect", exit_on_error=False)
-    def _load_expectation(self) -> None:
-        try:
-            e = expect(self.session.profile)
-        except FieldtoolError as exc:
-            self.app.call_from_thread(self.app.push_screen, ErrorDialog(exc))
-            return
-        self.app.call_from_thread(self._expectation_ready, e)
+    def _update_safety(self) -> None:
+        self.query_one(SafetyStrip).show(self.figures, self.selected, self._hazard(self.selected))
+        # After the panels have repainted: the figures follow a moment later, off the UI thread.
+        if self._safety_timer is not None:
+            self._safety_timer.stop()
+        self._safety_timer = self.set_timer(SAFETY_DELAY_S, self._compute_safety)
 
-    def _expectation_ready(self, e: Expectation) -> None:
-        self.expectation = e
-        self._update_safety()
+    @property
+    def safety_current(self) -> bool:
+        """True when the safety figures are for the readings now held."""
+        return self.figures is not None and self.figures_for == self.session.volts_by_node()
 
     @work(thread=True, exclusive=True, group="safety", exit_on_error=False)
     def _compute_safety(self) -> None:
         values = self.session.volts_by_node()
-        figures = safety_figures(self.session.profile, self.expectation, values)
+        figures = safety_figures(self.session.profile, self.expected, values)
         self.app.call_from_thread(self._safety_ready, figures, values)
 
     def _safety_ready(self, figures, values) -> None:
         if values != self.session.volts_by_node():
             return  # a newer reading is on its way
         self.figures = figures
-        node = self.selected
-        hazard = node is not None and node_hazard(node, self.expectation, values)
-        self.query_one(SafetyStrip).show(figures, node, hazard)
+        self.figures_for = values
+        self.query_one(SafetyStrip).show(figures, self.selected, self._hazard(self.selected))
 
     # --- events --------------------------------------------------------------------------
 
@@ -196,9 +195,7 @@ class ProbingScreen(Screen):
         self.query_one(
             "#entry", Input
         ).placeholder = f"volts at {node}: 12.9, 890mV, 1.2kV or OL, then Enter"
-        if self.expectation is not None:
-            hazard = node_hazard(node, self.expectation, self.session.volts_by_node())
-            self.query_one(SafetyStrip).show(self.figures, node, hazard)
+        self.query_one(SafetyStrip).show(self.figures, node, self._hazard(node))
 
     def on_key(self, event) -> None:
         """A digit typed anywhere but the entry starts a typed reading."""

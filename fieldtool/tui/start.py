@@ -72,7 +72,7 @@ def board_summary(logs_dir: Path, serial: str) -> str:
 class StartScreen(Screen):
     """Pick what to work on."""
 
-    BINDINGS = [Binding("ctrl+s", "start", "Start"), Binding("ctrl+h", "board_history", "History")]
+    BINDINGS = [Binding("ctrl+s", "start", "Start"), Binding("ctrl+r", "board_history", "History")]
 
     def __init__(self, config) -> None:
         super().__init__()
