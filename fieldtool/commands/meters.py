@@ -1,13 +1,20 @@
-"""``fieldtool ports`` and ``fieldtool read``: list serial ports and take one meter reading."""
+"""``fieldtool ports``, ``read`` and ``sim-meter``: list ports, take a reading, practise."""
 
 from __future__ import annotations
 
 import argparse
 import json
+import random
+import sys
 
+from fieldtool.core.errors import InputError
+from fieldtool.core.faults import describe, parse_fault
+from fieldtool.core.profile import load_profile
 from fieldtool.meters.scpi import ScpiMeter
 from fieldtool.meters.settings import MeterSettings, load_settings, with_overrides
 from fieldtool.meters.settle import settle
+from fieldtool.meters.sim_pty import PtyMeter
+from fieldtool.meters.simulated import SimulatedMeter, random_fault
 from fieldtool.meters.stream import StreamMeter
 from fieldtool.meters.transport import open_port
 
@@ -26,6 +33,37 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     read.add_argument("--settle", action="store_true", help="wait for the reading to settle")
     read.add_argument("--json", action="store_true", help="print JSON")
     read.set_defaults(handler=run_read)
+
+    sim = subparsers.add_parser(
+        "sim-meter",
+        help="a simulated meter on a pseudo-terminal, for practice without hardware",
+        description=(
+            "Serve a simulated meter on a new pseudo-terminal: connect 'fieldtool read' or the"
+            " app to the path it prints, and type node names here to move the probe."
+        ),
+    )
+    sim.add_argument("profile", help="board profile (.toml), e.g. profiles/tidegauge-apd-bias.toml")
+    sim.add_argument(
+        "--fault", help="fault spec such as D5:open or C3:lowcap=0.3; 'random' picks one"
+    )
+    sim.add_argument("--hidden", action="store_true", help="keep the fault off the screen")
+    sim.add_argument(
+        "--protocol",
+        choices=("scpi", "stream"),
+        default="scpi",
+        help="answer SCPI queries (default) or print a reading line four times a second",
+    )
+    sim.add_argument(
+        "--seed", type=int, help="noise (and random fault) seed; a new one each run by default"
+    )
+    sim.add_argument(
+        "--command-gap",
+        type=float,
+        default=0.0,
+        metavar="SECONDS",
+        help="act as a slow meter that loses commands sent sooner than this after the last",
+    )
+    sim.set_defaults(handler=run_sim_meter)
 
 
 def list_ports() -> list[dict]:
@@ -93,3 +131,57 @@ def run_read(args: argparse.Namespace) -> int:
     else:
         print(f"{out['volts']:.6g} V")
     return 0
+
+
+def _chosen_fault(args: argparse.Namespace, profile, seed: int):
+    """The fault asked for on the command line (None: healthy)."""
+    if args.fault is None:
+        return None
+    if args.fault.strip().lower() == "random":
+        return random_fault(profile, seed)
+    return parse_fault(args.fault, profile)
+
+
+def run_sim_meter(args: argparse.Namespace) -> int:
+    """Serve a simulated meter on a pty until quit, end of input or Ctrl-C."""
+    if args.command_gap < 0:
+        raise InputError(f"--command-gap {args.command_gap:g}: expected seconds, 0 or more")
+    profile = load_profile(args.profile)
+    seed = args.seed if args.seed is not None else random.SystemRandom().randrange(1_000_000)
+    fault = _chosen_fault(args, profile, seed)
+    meter = SimulatedMeter(profile, fault, seed=seed)
+    server = PtyMeter(meter, args.protocol, say=_say, command_gap_s=args.command_gap)
+    try:
+        _say(server.port)
+        shown = (
+            "fault hidden" if args.hidden else f"fault: {_fault_words(fault, profile)}, seed {seed}"
+        )
+        _say(f"simulated {args.protocol.upper()} meter on {profile.name}, {shown}")
+        _say("solving the board...")
+        meter.connect()
+        extra = " --protocol stream" if args.protocol == "stream" else ""
+        _say(f"ready; connect with: fieldtool read --port {server.port}{extra} --settle")
+        server.console("nodes")
+        _say(server.where())
+        server.serve(sys.stdin.fileno())
+    except KeyboardInterrupt:
+        if sys.stdout.isatty():
+            print()  # Ctrl-C is the normal way to stop; end the line the terminal's ^C began
+    finally:
+        server.close()
+    if args.hidden:
+        _say(f"the fault was: {_fault_words(fault, profile)} (seed {seed})")
+    _say("sim-meter stopped")
+    return 0
+
+
+def _fault_words(fault, profile) -> str:
+    """A fault in plain words with its spec, or 'none (healthy board)'."""
+    if fault is None:
+        return "none (healthy board)"
+    return f"{describe(fault, profile)} ({fault.spec(profile)})"
+
+
+def _say(text: str) -> None:
+    """One line on the sim-meter's console, shown at once."""
+    print(text, flush=True)

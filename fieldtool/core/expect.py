@@ -16,6 +16,7 @@ from fieldtool.core.solver import (
     Period,
     StepState,
     initial_state,
+    sink_current,
     steady_state,
     step,
     transient,
@@ -191,7 +192,8 @@ def expect(profile: Profile, steps: int = 80, fault: Fault | None = None) -> Exp
 
 
 def _output_current(params: Params, row: int, o: int, v_out: float) -> float:
-    return abs(params.g_shunt[row, o] * v_out + params.i_load[row, o])
+    sink, _ = sink_current(params.i_load[row, o], np.float64(v_out))
+    return abs(params.g_shunt[row, o] * v_out + float(sink))
 
 
 def startup_time(circuit: Circuit, params: Params, per: Period) -> float | None:
@@ -254,6 +256,7 @@ def discharge_time(circuit: Circuit, params: Params, x_on: np.ndarray, safe_volt
     p = params.take([0]).copy()
     p.s_high[:] = 0.0
     p.s_low[:] = 0.0
+    p.i_load[:] = 0.0  # a current-sink load stops with its supply
     net = Network(circuit, p)
     state = StepState(np.zeros((1, circuit.n)), np.zeros((1, len(circuit.diode_refs))))
     x = x_on[None, :].copy()

@@ -347,9 +347,9 @@ def severity_grid(profile: Profile, mode: Mode) -> tuple[float, ...]:
     if mode.name == "lowcap":
         return (0.5, 0.2, 0.05)
     if mode.name == "low":
-        return (0.8, 0.5)
+        return (0.9, 0.75, 0.6, 0.45, 0.3)
     if mode.name == "heavy":
-        return (2.0, 5.0, 20.0)
+        return (1.5, 2.0, 3.0, 5.0, 10.0, 20.0)
     raise ValueError(mode.name)
 
 

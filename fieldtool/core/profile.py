@@ -18,6 +18,9 @@ from fieldtool.core.errors import ProfileError
 
 TOPOLOGIES = ("dc-ladder", "dickson", "ac-ladder")
 POLARITIES = ("positive", "negative")
+DIODE_FAMILIES = ("general", "rectifier", "small-signal")
+DIELECTRICS = ("aluminium-electrolytic", "ceramic")
+ELECTROLYTIC_FROM_FARADS = 1e-6  # default dielectric by value (common practice, no source)
 WAVEFORMS = ("square", "sine")
 THERMAL_VOLTS_PER_KELVIN = 8.617333262e-5  # Boltzmann constant / electron charge (CODATA 2018)
 DEFAULT_SAFE_VOLTS = 50.0  # NFPA 70E shock threshold (from memory: check the edition in force)
@@ -31,6 +34,7 @@ class DiodeSpec:
     emission_coefficient: float
     series_ohms: float
     leakage_siemens: float = 1e-12  # SPICE GMIN across each junction (Nagel, SPICE2, 1975)
+    family: str = "general"  # for failure-mode priors: general | rectifier | small-signal
 
 
 @dataclass(frozen=True)
@@ -41,6 +45,7 @@ class CapacitorSpec:
     tolerance: float
     esr_ohms: float = 0.0
     leakage_ohms: float = 1e10
+    dielectric: str = "aluminium-electrolytic"  # for failure-mode priors; or "ceramic"
 
 
 @dataclass(frozen=True)
@@ -78,6 +83,7 @@ class Profile:
     designators: dict[str, str] = field(default_factory=dict)
     labels: dict[str, str] = field(default_factory=dict)
     digest: str = ""
+    meter_range_volts: float | None = None  # beyond it the meter shows overload; None: no limit
 
     @property
     def thermal_volts(self) -> float:
@@ -214,8 +220,9 @@ def _diode(table: _Table, thermal_volts: float, base: DiodeSpec | None = None) -
         rs = t.number("series_ohms", 0.0 if required else base.series_ohms, minimum=0.0)
     leak_default = 1e12 if base is None else 1.0 / base.leakage_siemens
     leak_ohms = t.number("leakage_ohms", leak_default, positive=True)
+    family = t.text("family", "general" if base is None else base.family, DIODE_FAMILIES)
     t.finish()
-    return DiodeSpec(i_s, n, rs, 1.0 / leak_ohms)
+    return DiodeSpec(i_s, n, rs, 1.0 / leak_ohms, family)
 
 
 def _capacitor(table: _Table, base: CapacitorSpec | None = None) -> CapacitorSpec:
@@ -238,8 +245,12 @@ def _capacitor(table: _Table, base: CapacitorSpec | None = None) -> CapacitorSpe
     leak = t.number("leakage_ohms", 1e10 if base is None else base.leakage_ohms, positive=True)
     if base is None:
         t.used.add("stray_farads")  # read by the caller
+        by_value = DIELECTRICS[0] if farads >= ELECTROLYTIC_FROM_FARADS else DIELECTRICS[1]
+    else:
+        by_value = base.dielectric
+    dielectric = t.text("dielectric", by_value, DIELECTRICS)
     t.finish()
-    return CapacitorSpec(farads, tol, esr, leak)
+    return CapacitorSpec(farads, tol, esr, leak, dielectric)
 
 
 def _string_map(path: str, name: str, data: Any) -> dict[str, str]:
@@ -367,6 +378,9 @@ def profile_from_dict(data: dict[str, Any], path: str = "<profile>", digest: str
     meter_ohms = meter.number("input_ohms", 10e6, positive=True)
     meter_percent = meter.number("accuracy_percent", 0.5, minimum=0.0, below=50.0)
     meter_volts = meter.number("accuracy_volts", 0.01, minimum=0.0)
+    meter_range = meter.number(
+        "range_volts", required=False, positive=True, hint=" (the highest |V| it shows, or omit)"
+    )
     meter.finish()
 
     designators = _string_map(path, "designators", data.get("designators", {}))
@@ -417,6 +431,7 @@ def profile_from_dict(data: dict[str, Any], path: str = "<profile>", digest: str
         designators=designators,
         labels=labels,
         digest=digest,
+        meter_range_volts=meter_range,
     )
     _check_names(profile)
     return profile

@@ -13,6 +13,7 @@ not converged, never returned as an answer.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
@@ -62,8 +63,8 @@ def waveform_shape(kind: str, times: np.ndarray, circuit: Circuit) -> np.ndarray
 class Network:
     """Matrices of one circuit for a batch of variants, reused across every time step."""
 
-    def __init__(self, circuit: Circuit, params: Params) -> None:
-        self.circuit, self.params = circuit, params
+    def __init__(self, circuit: Circuit, params: Params, reltol: float = RELTOL) -> None:
+        self.circuit, self.params, self.reltol = circuit, params, reltol
         n = circuit.n
         self.Ad = _incidence(circuit.diode_nodes, n)
         self.Ac = _incidence(circuit.cap_nodes, n)
@@ -82,6 +83,7 @@ class Network:
         )
         self._h_cache: dict[float, tuple[np.ndarray, np.ndarray, np.ndarray]] = {}
         self.kinds = [s.kind for s in circuit.sources]
+        self.has_sink = bool(np.any(params.i_load != 0))
 
     def sources_on(self, times: np.ndarray) -> np.ndarray:
         """Source voltages (B, T, s) at the given times."""
@@ -90,9 +92,9 @@ class Network:
         return p.s_low[:, None, :] + (p.s_high - p.s_low)[:, None, :] * shape[None]
 
     def injections(self, src: np.ndarray) -> np.ndarray:
-        """Current injected into each node (B, T, n) by the sources and constant loads."""
+        """Current injected into each node (B, T, n) by the sources."""
         p = self.params
-        return (p.s_g[:, None, :] * src) @ self.Es - p.i_load[:, None, :]
+        return (p.s_g[:, None, :] * src) @ self.Es
 
     def for_step(self, h: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """(G_h, g_c, a) for step length h: Jacobian without diodes, capacitor companions."""
@@ -121,6 +123,27 @@ def _outer(a: np.ndarray) -> np.ndarray:
     return (a[:, :, None] * a[:, None, :]).reshape(a.shape[0], -1)
 
 
+SINK_KNEE_VOLTS = 0.5
+
+
+def sink_current(i_load: np.ndarray, v: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Current drawn by constant-current loads at node voltages v, and its conductance.
+
+    A current-sink load (a regulator, a programming pin) draws its rated current only while
+    its supply has headroom; as the supply collapses it stops drawing, and it never pushes
+    current back. Modelled as I·(1 − exp(−u/Vk)) for u > 0 and I·u/Vk below, u the node
+    voltage in the load's polarity and Vk = 0.5 V (a modelling choice: common practice, no
+    source). Above a few volts this is the rated current within exp(−u/Vk).
+    """
+    mag = np.abs(i_load)
+    sign = np.where(i_load < 0, -1.0, 1.0)
+    u = v * sign
+    ex = np.exp(-np.maximum(u, 0.0) / SINK_KNEE_VOLTS)
+    phi = np.where(u > 0, 1.0 - ex, u / SINK_KNEE_VOLTS)
+    dphi = np.where(u > 0, ex, 1.0) / SINK_KNEE_VOLTS
+    return sign * mag * phi, mag * dphi
+
+
 def _pnjlim(vnew: np.ndarray, vold: np.ndarray, nvt: np.ndarray, vcrit: np.ndarray) -> np.ndarray:
     """SPICE junction-voltage limiting (Nagel, SPICE2, 1975)."""
     big = (vnew > vcrit) & (np.abs(vnew - vold) > 2 * nvt)
@@ -141,6 +164,53 @@ class StepState:
     vj: np.ndarray  # (B, k)
 
 
+def newton(
+    net: Network, x_prev: np.ndarray, state: StepState, b_src: np.ndarray, h: float
+) -> tuple[np.ndarray, int]:
+    """Solve one backward-Euler step's node voltages into ``state``; return (Jacobian, count).
+
+    Each variant stops iterating once it has converged, so one hard variant does not make the
+    whole batch iterate. The Jacobian is the one each variant's last update used, i.e. at its
+    converged point.
+    """
+    p = net.params
+    G, gc, _ = net.for_step(h)
+    b = b_src + (gc * x_prev) @ net.Ac
+    v, vj = state.v.copy(), state.vj.copy()
+    B, n = v.shape
+    J = np.empty((B, n, n))
+    diag = np.arange(n)
+    rows: np.ndarray | slice = slice(None)
+    it = 0
+    for it in range(1, MAX_NEWTON + 1):  # noqa: B007 (the count is returned)
+        d_is, nvt, rs = p.d_is[rows], p.d_nvt[rows], p.d_rs[rows]
+        vr, vjr = v[rows], vj[rows]
+        e = np.exp(np.minimum(vjr / nvt, 80.0))
+        f = d_is * (e - 1.0)
+        gj = d_is * e / nvt
+        den = 1.0 + gj * rs
+        Jr = G[rows] + ((gj / den) @ net.Pd).reshape(-1, n, n)
+        rhs = b[rows] - ((f - gj * vjr) / den) @ net.Ad
+        if net.has_sink:
+            i_s, g_s = sink_current(p.i_load[rows], vr)
+            Jr[:, diag, diag] += g_s
+            rhs = rhs - (i_s - g_s * vr)
+        v_new = np.linalg.solve(Jr, rhs[..., None])[..., 0]
+        vj_raw = (v_new @ net.Ad.T - rs * f + rs * gj * vjr) / den
+        vj_new = _pnjlim(vj_raw, vjr, nvt, net.vcrit[rows])
+        tol = net.reltol
+        done = (np.abs(v_new - vr) <= VNTOL + tol * np.abs(v_new)).all(axis=1) & (
+            np.abs(vj_new - vjr) <= VNTOL + tol * np.abs(vj_new)
+        ).all(axis=1)
+        J[rows], v[rows], vj[rows] = Jr, v_new, vj_new
+        if done.all():
+            break
+        index = np.arange(B)[rows]
+        rows = index[~done]
+    state.v, state.vj = v, vj
+    return J, it
+
+
 def step(
     net: Network, x_prev: np.ndarray, state: StepState, b_src: np.ndarray, h: float, sens: bool
 ) -> tuple[np.ndarray, np.ndarray | None, int]:
@@ -149,33 +219,9 @@ def step(
     Returns the new capacitor voltages, their sensitivity to the old ones (or None) and the
     number of Newton iterations.
     """
-    p = net.params
-    G, gc, a = net.for_step(h)
-    b = b_src + (gc * x_prev) @ net.Ac
-    v, vj = state.v, state.vj
-    B, n = v.shape
-    it = 0
-    J = G
-    for it in range(1, MAX_NEWTON + 1):  # noqa: B007 (the count is returned)
-        e = np.exp(np.minimum(vj / p.d_nvt, 80.0))
-        f = p.d_is * (e - 1.0)
-        gj = p.d_is * e / p.d_nvt
-        den = 1.0 + gj * p.d_rs
-        geq = gj / den
-        ieq = (f - gj * vj) / den
-        J = G + (geq @ net.Pd).reshape(B, n, n)
-        v_new = np.linalg.solve(J, (b - ieq @ net.Ad)[..., None])[..., 0]
-        vb = v_new @ net.Ad.T
-        vj_raw = (vb - p.d_rs * f + p.d_rs * gj * vj) / den
-        vj_new = _pnjlim(vj_raw, vj, p.d_nvt, net.vcrit)
-        dv = np.abs(v_new - v)
-        done = (dv <= VNTOL + RELTOL * np.abs(v_new)).all() and (
-            np.abs(vj_new - vj) <= VNTOL + RELTOL * np.abs(vj_new)
-        ).all()
-        v, vj = v_new, vj_new
-        if done:
-            break
-    state.v, state.vj = v, vj
+    _, gc, a = net.for_step(h)
+    J, it = newton(net, x_prev, state, b_src, h)
+    v = state.v
     x_new = x_prev + a * (v @ net.Ac.T - x_prev)
     if not sens:
         return x_new, None, it
@@ -255,19 +301,32 @@ def steady_state(
     steps_per_period: int = 80,
     tol: float = 1e-6,
     max_iterations: int = 25,
+    reltol: float = RELTOL,
+    fallback_periods: int = 20,
+    progress: Callable[[int, int], None] | None = None,
+    damped: bool = False,
 ) -> SteadyState:
-    """Periodic steady state of every variant in ``params`` by the shooting method."""
-    net = Network(circuit, params)
+    """Periodic steady state of every variant in ``params`` by the shooting method.
+
+    Variants leave the batch as they converge, so the hard ones do not make the easy ones
+    iterate. ``progress(converged, total)`` is called after each shooting iteration. With
+    ``damped``, each Newton step is shortened until the next simplified Newton correction
+    shrinks (Deuflhard's natural monotonicity test, *Newton Methods for Nonlinear Problems*,
+    Springer 2004): slower per iteration, but it tames starts where the diodes barely conduct
+    and the linearised period map overshoots.
+    """
+    B = params.batch
     times = period_grid(circuit, steps_per_period)
     x = initial_state(circuit, params) if x0 is None else np.array(x0, dtype=float)
-    state = StepState(
-        np.zeros((params.batch, circuit.n)), np.zeros((params.batch, len(circuit.diode_refs)))
-    )
     m = x.shape[1]
     eye = np.eye(m)
-    fallback = 0
-    iterations = 0
-    best = None
+    active = np.arange(B)
+    net = Network(circuit, params, reltol)
+    state = StepState(np.zeros((B, circuit.n)), np.zeros((B, len(circuit.diode_refs))))
+    ok_all = np.zeros(B, dtype=bool)
+    res_all = np.full(B, np.inf)
+    store: dict[str, np.ndarray] = {}
+    fallback = iterations = 0
     per = None
     for attempt in range(2):
         for _ in range(max_iterations):
@@ -280,20 +339,81 @@ def steady_state(
             # The Newton correction estimates the distance to the fixed point; the residual
             # alone does not (slow reservoir modes have monodromy eigenvalues near 1).
             ok = (res <= tol * scale) & (np.abs(dx).max(axis=1) <= 10 * tol * scale)
-            best = (per, ok, np.maximum(res, np.abs(dx).max(axis=1)))
+            _store_rows(store, per, active, B)
+            ok_all[active] = ok
+            res_all[active] = np.maximum(res, np.abs(dx).max(axis=1))
+            if progress is not None:
+                progress(int(ok_all.sum()), B)
             if ok.all():
-                return SteadyState(per, ok, best[2], iterations, fallback)
+                break
             limit = 4.0 * scale[:, None]
             dx = np.clip(dx, -limit, limit)
-            x = np.where(ok[:, None], x, x + dx)
+            if damped:
+                x = _damp(net, x, dx, per, times, scale)
+            else:
+                x = x + dx
+            if ok.any():
+                keep = ~ok
+                active, x = active[keep], x[keep]
+                net = Network(circuit, params.take(active), reltol)
+                state = StepState(state.v[keep], state.vj[keep])
+                per = _take_period(per, keep)
+        if ok_all.all() or fallback_periods == 0:
+            break
         if attempt == 0:
             # Fallback: plain transient periods from the last iterate, then shoot again.
-            for _ in range(20):
+            for _ in range(fallback_periods):
                 x = run_period(net, x, times, state, sens=False).x_end
                 fallback += 1
             per = None
-    per, ok, res = best
-    return SteadyState(per, ok, res, iterations, fallback)
+    return SteadyState(Period(times=times, **store), ok_all, res_all, iterations, fallback)
+
+
+def _damp(
+    net: Network, x: np.ndarray, dx: np.ndarray, per: Period, times: np.ndarray, scale: np.ndarray
+) -> np.ndarray:
+    """The next shooting iterate with each variant's step shortened until it is trusted."""
+    m = x.shape[1]
+    A = per.monodromy - np.eye(m)
+    size = np.linalg.norm(dx, axis=1)
+    lam = np.ones(len(x))
+    trial = size > 0.01 * scale  # small steps are already in Newton's quadratic region
+    out = x + dx
+    for _ in range(6):
+        rows = np.flatnonzero(trial)
+        if len(rows) == 0:
+            break
+        sub = Network(net.circuit, net.params.take(rows), net.reltol)
+        xt = x[rows] + lam[rows, None] * dx[rows]
+        state = StepState(per.v[rows, -1].copy(), per.vj[rows, -1].copy())
+        guess = _take_period(per, rows)
+        rt = run_period(sub, xt, times, state, sens=False, guess=guess).x_end - xt
+        dbar = np.linalg.solve(A[rows], -rt[..., None])[..., 0]
+        good = np.linalg.norm(dbar, axis=1) <= (1.0 - lam[rows] / 4.0) * size[rows]
+        good |= lam[rows] < 0.02
+        out[rows[good]] = xt[good]
+        trial[rows[good]] = False
+        lam[rows[~good]] *= 0.3
+    return out
+
+
+_PERIOD_ROWS = ("x_start", "x_end", "v", "x", "src", "monodromy", "vj")
+
+
+def _store_rows(store: dict[str, np.ndarray], per: Period, rows: np.ndarray, B: int) -> None:
+    """Copy one period's rows into the full-batch result arrays."""
+    for name in _PERIOD_ROWS:
+        value = getattr(per, name)
+        if name not in store:
+            store[name] = np.zeros((B, *value.shape[1:]))
+        store[name][rows] = value
+    store["newton_iterations"] = per.newton_iterations
+
+
+def _take_period(per: Period, keep: np.ndarray) -> Period:
+    """The same period for a subset of its variants."""
+    rows = {name: getattr(per, name)[keep] for name in _PERIOD_ROWS}
+    return Period(times=per.times, newton_iterations=per.newton_iterations, **rows)
 
 
 def transient(

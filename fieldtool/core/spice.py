@@ -8,7 +8,7 @@ from __future__ import annotations
 import numpy as np
 
 from fieldtool.core.circuit import Circuit, Params
-from fieldtool.core.solver import GMIN
+from fieldtool.core.solver import GMIN, SINK_KNEE_VOLTS
 
 
 def spice_netlist(
@@ -68,7 +68,14 @@ def spice_netlist(
         g = p.g_shunt[0, i - 1] + GMIN
         lines.append(f"RG{i} {node(i)} 0 {1 / g:.9e}")
         if p.i_load[0, i - 1] != 0:
-            lines.append(f"IL{i} {node(i)} 0 DC {p.i_load[0, i - 1]:.9g}")
+            # the same current-sink load as the solver (fieldtool.core.solver.sink_current)
+            amps, nd = p.i_load[0, i - 1], node(i)
+            s = -1.0 if amps < 0 else 1.0
+            u = f"({s:g}*v({nd}))"
+            k = SINK_KNEE_VOLTS
+            lines.append(
+                f"BIL{i} {nd} 0 I = {amps:.9g} * ({u} > 0 ? (1 - exp(-{u}/{k:g})) : {u}/{k:g})"
+            )
     step = T / points_per_period
     vectors = " ".join(f"v({node(i)})" for i in range(1, circuit.n + 1))
     lines += [

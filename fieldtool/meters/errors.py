@@ -9,7 +9,8 @@ FieldtoolError
     ├── MeterTimeout       no complete line arrived in time
     ├── MeterGarbage       bytes arrived that are not a reading
     ├── ReadingParseError  a typed reading that cannot be understood
-    └── MeterSettingsError a meter settings file that cannot be used
+    ├── MeterSettingsError a meter settings file that cannot be used
+    └── UnknownNode        the simulated probe was put on a node the board does not have
 """
 
 from __future__ import annotations
@@ -73,6 +74,12 @@ class MeterSettingsError(MeterError):
     """A meter settings file with an unknown key, wrong type or bad value."""
 
     title = "Bad meter settings"
+
+
+class UnknownNode(MeterError):
+    """A node name or test point that is not on the simulated board."""
+
+    title = "Unknown node"
 
 
 def permission_message(port: str) -> str:

@@ -2,6 +2,9 @@
 
 from __future__ import annotations
 
+import time
+from collections.abc import Callable
+
 from fieldtool.meters.errors import MeterGarbage
 from fieldtool.meters.parse import Reading, parse_scpi_number
 from fieldtool.meters.settings import MeterSettings
@@ -11,13 +14,30 @@ from fieldtool.meters.transport import Transport
 class ScpiMeter:
     """Ask a SCPI meter who it is, set it to DC volts, then read on request."""
 
-    def __init__(self, transport: Transport, settings: MeterSettings | None = None) -> None:
+    def __init__(
+        self,
+        transport: Transport,
+        settings: MeterSettings | None = None,
+        *,
+        clock: Callable[[], float] = time.monotonic,
+        sleep: Callable[[float], None] = time.sleep,
+    ) -> None:
         self.transport = transport
         self.settings = settings or MeterSettings()
         self.identity: str | None = None
+        self.clock = clock
+        self.sleep = sleep
+        self._last_sent: float | None = None
 
     def _send(self, command: str) -> None:
+        """Send one command, first waiting out ``command_delay_s`` since the previous one."""
+        delay = self.settings.command_delay_s
+        if delay > 0 and self._last_sent is not None:
+            wait = delay - (self.clock() - self._last_sent)
+            if wait > 0:
+                self.sleep(wait)
         self.transport.write((command + self.settings.terminator).encode("ascii"))
+        self._last_sent = self.clock()
 
     def _ask(self, command: str) -> str:
         self._send(command)

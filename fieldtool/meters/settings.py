@@ -17,7 +17,10 @@ DEFAULT_STREAM_REGEX = (
 
 @dataclass(frozen=True)
 class SettleRule:
-    """When a reading counts as settled: ``count`` in a row within percent*|v| + volts."""
+    """When a reading counts as settled: ``count`` in a row within percent*|v|/100 + volts.
+
+    ``percent`` is a percentage: 0.2 means 0.2 % of the reading, not 20 %.
+    """
 
     count: int = 3
     percent: float = 0.2
@@ -36,6 +39,7 @@ class MeterSettings:
     configure_command: str = "CONF:VOLT:DC"
     stream_regex: str = DEFAULT_STREAM_REGEX
     timeout_s: float = 2.0
+    command_delay_s: float = 0.0  # pause between commands, for meters that drop fast ones
     settle: SettleRule = field(default_factory=SettleRule)
 
 
@@ -82,6 +86,10 @@ def validate(settings: MeterSettings, where: str = "settings") -> MeterSettings:
     if settings.terminator not in TERMINATORS:
         raise MeterSettingsError(
             f'{where}: terminator must be "\\n" or "\\r\\n", not {settings.terminator!r}'
+        )
+    if not 0 <= settings.command_delay_s <= 10:
+        raise MeterSettingsError(
+            f"{where}: command_delay_s must be 0 to 10 seconds, not {settings.command_delay_s:g}"
         )
     if settings.timeout_s <= 0 or settings.settle.timeout_s <= 0:
         raise MeterSettingsError(f"{where}: timeouts must be positive seconds")

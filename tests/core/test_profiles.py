@@ -39,6 +39,7 @@ def test_shipped_profiles_load():
         ({"labels": {"S9": "TP9"}}, "node 'S9' is not on this board"),
         ({"overrides": {"D99": {"series_ohms": 1.0}}}, "designator 'D99' is not on this board"),
         ({"diode": {"forward_volts": 0.6}}, "given together with forward_volts"),
+        ({"meter": {"range_volts": 0}}, "[meter.range_volts] is 0, expected a number greater"),
     ],
 )
 def test_profile_mistakes_have_clear_messages(sections, expected):
@@ -46,6 +47,11 @@ def test_profile_mistakes_have_clear_messages(sections, expected):
         make_profile(**sections)
     assert expected in str(info.value)
     assert str(info.value).startswith("<test>: ")
+
+
+def test_meter_range_is_optional():
+    assert make_profile().meter_range_volts is None
+    assert make_profile(meter={"range_volts": 1000}).meter_range_volts == 1000.0
 
 
 def test_missing_file_and_bad_toml(tmp_path: Path):

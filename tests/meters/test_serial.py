@@ -210,3 +210,59 @@ def test_busy_port_is_port_busy():
         first.close()
         os.close(slave)
         os.close(master)
+
+
+@pytest.mark.parametrize("line", [b"OL\r\n", b"  OL  V DC\n"])
+def test_stream_overload_line_is_overload_never_a_number(pty_pair, line):
+    master, transport = pty_pair
+    _start(lambda: (time.sleep(0.2), os.write(master, line)))
+    reading = StreamMeter(transport, MeterSettings(protocol="stream", timeout_s=2)).read()
+    assert (reading.overload, reading.volts) == (True, None)
+
+
+def test_settle_percent_is_a_percentage():
+    # percent = 0.2 means 0.2 % of the reading: at 100 V a band of 0.2 V (+ volts = 0)
+    from fieldtool.meters.parse import Reading
+
+    rule = SettleRule(count=3, percent=0.2, volts=0.0)
+    inside = iter([100.0, 100.1, 100.19])
+    assert settle(lambda: Reading(next(inside)), rule, clock=lambda: 0.0).settled is True
+    outside = iter([100.0, 100.1, 100.3, 100.6, 100.9])
+    ticks = iter([0.0, 1.0, 2.0, 3.0, 11.0])
+    result = settle(lambda: Reading(next(outside)), rule, clock=lambda: next(ticks))
+    assert (result.settled, result.count) == (False, 4)
+
+
+def test_command_delay_spaces_out_scpi_commands():
+    # loop:// echoes each command back, which serves as the answer to a query here
+    now = [0.0]
+    waits = []
+
+    def sleep(seconds):
+        waits.append(round(seconds, 9))
+        now[0] += seconds
+
+    transport = open_port("loop://", timeout=0.5)
+    meter = ScpiMeter(
+        transport, MeterSettings(command_delay_s=0.2), clock=lambda: now[0], sleep=sleep
+    )
+    try:
+        assert meter.connect() == "*IDN?"
+        now[0] += 0.05  # the meter took 50 ms to answer before the next command
+        with pytest.raises(MeterGarbage):
+            meter.read()  # 'READ?' echoed back is not a number; it is asked twice
+    finally:
+        transport.close()
+    # *IDN? goes at once; CONF:VOLT:DC waits 0.2 s; each READ? waits what is left of 0.2 s
+    assert waits == [0.2, 0.15, 0.2]
+
+
+def test_no_command_delay_by_default():
+    waits = []
+    transport = open_port("loop://", timeout=0.5)
+    meter = ScpiMeter(transport, MeterSettings(), clock=lambda: 0.0, sleep=waits.append)
+    try:
+        meter.connect()
+    finally:
+        transport.close()
+    assert waits == []

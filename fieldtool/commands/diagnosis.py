@@ -1,0 +1,258 @@
+"""``fieldtool inject``, ``diagnose`` and ``calibrate``: faults, ranking and fitting a profile."""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import sys
+import tomllib
+from datetime import UTC, datetime
+from pathlib import Path
+
+from fieldtool.commands.expect import to_json as expectation_json
+from fieldtool.commands.expect import to_text as expectation_text
+from fieldtool.core.calibrate import calibrate
+from fieldtool.core.diagnosis import Diagnosis, diagnose
+from fieldtool.core.dictionary import FaultDictionary
+from fieldtool.core.dictionary_cache import default_cache_dir, load_or_build
+from fieldtool.core.errors import InputError, ProfileError
+from fieldtool.core.expect import expect
+from fieldtool.core.faults import describe, parse_fault
+from fieldtool.core.priors import Priors, fleet_priors, published_priors
+from fieldtool.core.profile import Profile, load_profile, profile_from_dict
+from fieldtool.core.profile_write import to_toml
+from fieldtool.core.readings import load_readings
+
+FAULT_HELP = (
+    "TARGET:MODE[=SEVERITY], e.g. D5:open, C4:short, C3:lowcap=0.3 (fraction left), "
+    "D2:leaky=47k (ohms), D6:weak=220 (ohms), C8:esr=22 (ohms), C2:leaky=1M, "
+    "drive:stuck-low, drive:stuck-high, drive:missing (ac-ladder), drive:low=0.7, "
+    "supply:low=0.8, load:heavy=3"
+)
+
+
+def register(subparsers: argparse._SubParsersAction) -> None:
+    """Add the ``inject``, ``diagnose`` and ``calibrate`` subcommands."""
+    inj = subparsers.add_parser(
+        "inject",
+        help="expected readings with one fault injected",
+        description="What every node should read with the given fault (same output as expect).",
+    )
+    inj.add_argument("profile", help="board profile (.toml)")
+    inj.add_argument("--fault", required=True, help=FAULT_HELP)
+    inj.add_argument("--json", action="store_true", help="one JSON object on stdout")
+    inj.set_defaults(handler=run_inject)
+
+    dia = subparsers.add_parser(
+        "diagnose",
+        help="rank the likely failed part from node readings, and the next node to probe",
+        description="Readings CSV: header node,volts (optional ripple_vpp); OL for overload.",
+    )
+    dia.add_argument("profile", help="board profile (.toml)")
+    dia.add_argument("--readings", required=True, help="CSV file: node,volts[,ripple_vpp]")
+    dia.add_argument("--logs", help="history folder whose confirmed repairs set the priors")
+    dia.add_argument("--cache", help="dictionary cache folder (default: $FIELDTOOL_CACHE)")
+    dia.add_argument("--json", action="store_true", help="one JSON object on stdout")
+    dia.set_defaults(handler=run_diagnose)
+
+    cal = subparsers.add_parser(
+        "calibrate",
+        help="fit drive swing and diode drop to readings from a known-good board",
+        description="Least-squares fit to a golden board; writes a new profile.",
+    )
+    cal.add_argument("profile", help="board profile (.toml)")
+    cal.add_argument("--readings", required=True, help="CSV of a known-good board's readings")
+    cal.add_argument("--out", required=True, help="where to write the fitted profile (.toml)")
+    cal.add_argument("--force", action="store_true", help="overwrite --out if it exists")
+    cal.add_argument("--json", action="store_true", help="one JSON object on stdout")
+    cal.set_defaults(handler=run_calibrate)
+
+
+# --- inject -------------------------------------------------------------------------------
+
+
+def run_inject(args: argparse.Namespace) -> int:
+    """Handle ``fieldtool inject``."""
+    profile = load_profile(args.profile)
+    fault = parse_fault(args.fault, profile)
+    result = expect(profile, fault=fault)
+    if args.json:
+        out = expectation_json(result)
+        out["fault"] = fault.spec(profile)
+        out["fault_words"] = describe(fault, profile)
+        print(json.dumps(out, indent=2))
+    else:
+        print(f"INJECTED FAULT: {describe(fault, profile)} ({fault.spec(profile)})")
+        print(expectation_text(result))
+    return 0
+
+
+# --- diagnose -----------------------------------------------------------------------------
+
+
+def dictionary_for(profile: Profile, cache: str | None) -> FaultDictionary:
+    """The profile's fault dictionary, with a progress bar on stderr while it is built."""
+    folder = Path(cache) if cache else default_cache_dir(os.environ)
+    if not sys.stderr.isatty():
+        return load_or_build(profile, folder)
+    from rich.console import Console
+    from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
+
+    with Progress(
+        TextColumn("building the fault dictionary for {task.fields[board]}"),
+        BarColumn(),
+        TextColumn("{task.percentage:>3.0f} %"),
+        TimeElapsedColumn(),
+        console=Console(stderr=True),
+        transient=True,
+    ) as bar:
+        task = bar.add_task("build", total=100, board=profile.name)
+        return load_or_build(
+            profile, folder, lambda done, total: bar.update(task, completed=100 * done / total)
+        )
+
+
+def priors_for(profile: Profile, d: FaultDictionary, logs: str | None) -> Priors:
+    """Fleet priors from a history folder, or the published ones."""
+    if not logs:
+        return published_priors(profile, d.hypotheses)
+    try:
+        from fieldtool.core.fleet import confirmed_failures
+    except ImportError:  # history fleet view not installed in this build
+        return published_priors(profile, d.hypotheses)
+    if not Path(logs).is_dir():
+        raise InputError(f"--logs {logs}: no such folder")
+    return fleet_priors(profile, d.hypotheses, confirmed_failures(logs, profile.name))
+
+
+def run_diagnose(args: argparse.Namespace) -> int:
+    """Handle ``fieldtool diagnose``."""
+    profile = load_profile(args.profile)
+    d = dictionary_for(profile, args.cache)
+    readings = load_readings(args.readings, d.nodes, d.labels)
+    result = diagnose(d, readings, priors_for(profile, d, args.logs))
+    if args.json:
+        print(json.dumps(result.to_json(), indent=2))
+    else:
+        print(diagnosis_text(d, readings, result))
+    return 0
+
+
+def diagnosis_text(d: FaultDictionary, readings, result: Diagnosis) -> str:
+    """Readings against the healthy bands, the ranked suspects and the advice."""
+    lines = [f"{d.profile.name}: {len(readings)} reading(s)", ""]
+    lines.append(f"{'node':<6}{'test pt':<9}{'read':>10}{'healthy band':>24}  verdict")
+    for r in readings:
+        band = d.band(r.node)
+        label = d.labels.get(r.node, "")
+        if r.volts is None:
+            lines.append(f"{r.node:<6}{label:<9}{'OL':>10}{'':>24}  over range")
+            continue
+        verdict = "in band" if band.contains(r.volts) else ("LOW" if r.volts < band.low else "HIGH")
+        span = f"{band.low:.2f} … {band.high:.2f} V"
+        lines.append(f"{r.node:<6}{label:<9}{r.volts:>8.3f} V{span:>24}  {verdict}")
+    lines += ["", "most likely:"]
+    for s in result.suspects[:8]:
+        bar = "#" * round(s.probability * 20)
+        lines.append(f"  {s.probability:6.1%}  {bar:<20}  {s.words}")
+    for a in result.ambiguity:
+        lines.append(f"ambiguous: {a.text}")
+    if result.next_probe:
+        label = d.labels.get(result.next_probe)
+        where = f"{result.next_probe} ({label})" if label else result.next_probe
+        lines.append(f"next: probe {where} ({result.next_probe_gain_bits:.2f} bits expected)")
+    elif result.top.probability >= 0.9:
+        lines.append(f"next: none needed; {result.top.words} at {result.top.probability:.0%}")
+    else:
+        lines.append("next: no node left that would tell more; check suspects out of circuit")
+    lines.append(("WARNING: " if result.fit.no_fit else "fit: ") + result.fit.text)
+    lines += [f"note: {text}" for text in result.ignored]
+    lines.append(
+        "CAUTION: power off and discharge before touching parts; verify with the meter. "
+        "Local codes and licensed practice take precedence."
+    )
+    return "\n".join(lines)
+
+
+# --- calibrate ----------------------------------------------------------------------------
+
+
+def run_calibrate(args: argparse.Namespace) -> int:
+    """Handle ``fieldtool calibrate``."""
+    out = Path(args.out)
+    if out.exists() and not args.force:
+        raise InputError(f"{out} exists; pass --force to overwrite it, or choose another --out")
+    profile = load_profile(args.profile)
+    from fieldtool.core.circuit import build_circuit
+
+    circuit, _ = build_circuit(profile)
+    nodes = [circuit.name(i) for i in circuit.probe_nodes]
+    readings = load_readings(args.readings, nodes, profile.labels)
+    result = calibrate(profile, readings)
+    text = fitted_toml(args.profile, profile, result, args.readings)
+    try:
+        out.write_text(text, encoding="utf-8")
+    except OSError as exc:
+        raise InputError(f"cannot write {out}: {exc.strerror or exc}") from None
+    summary = {
+        "out": str(out),
+        "drive_volts": result.profile.drive_volts,
+        "drive_scale": result.drive_scale,
+        "diode_shift_volts": result.diode_shift_v,
+        "supply_volts": result.profile.supply_volts if result.supply_scale else None,
+        "rms_residual_volts": result.rms_volts,
+        "chi2": result.chi2,
+        "residuals": result.residuals,
+        "iterations": result.iterations,
+    }
+    if args.json:
+        print(json.dumps(summary, indent=2))
+        return 0
+    print(f"wrote {out}")
+    print(
+        f"drive {profile.drive_volts:g} → {result.profile.drive_volts:.4g} V; diode drop "
+        f"{result.diode_shift_v * 1000:+.1f} mV",
+        end="",
+    )
+    if result.supply_scale:
+        print(f"; supply {profile.supply_volts:g} → {result.profile.supply_volts:.4g} V", end="")
+    print(f"\nresidual {result.rms_volts * 1000:.1f} mV rms over {len(result.residuals)} nodes")
+    for node, e in result.residuals.items():
+        print(f"  {node:<6}{e * 1000:+9.1f} mV")
+    if result.chi2 > 4 * max(len(result.residuals), 1):
+        print("WARNING: the fit is poor for a known-good board; is it really healthy?")
+    return 0
+
+
+def fitted_toml(source: str, original: Profile, result, readings_path: str) -> str:
+    """The source profile's TOML with the fitted drive, diode and supply values."""
+    try:
+        data = tomllib.loads(Path(source).read_text(encoding="utf-8"))
+    except (OSError, tomllib.TOMLDecodeError) as exc:
+        raise ProfileError(f"{source}: cannot re-read for writing ({exc})") from None
+    fitted = result.profile
+    data["drive"]["volts"] = fitted.drive_volts
+    if result.supply_scale is not None:
+        data["supply"]["volts"] = fitted.supply_volts
+    _shift_diode(data["diode"], fitted.diode.saturation_current_a, result.diode_shift_v)
+    for ref, spec in fitted.diode_overrides.items():
+        table = data.get("overrides", {}).get(ref, {})
+        if "saturation_current_a" in table or "forward_volts" in table:
+            _shift_diode(table, spec.saturation_current_a, result.diode_shift_v)
+    stamp = datetime.now(UTC).strftime("%Y-%m-%d %H:%M UTC")
+    header = (
+        f"Calibrated from {original.name} ({source}) with {readings_path} on {stamp}.\n"
+        f"Drive ×{result.drive_scale:.4f}, diode drop {result.diode_shift_v * 1000:+.1f} mV, "
+        f"residual {result.rms_volts * 1000:.1f} mV rms."
+    )
+    text = to_toml(data, header)
+    profile_from_dict(tomllib.loads(text), "<calibrated>")  # refuse to write what won't load
+    return text
+
+
+def _shift_diode(table: dict, saturation: float, shift: float) -> None:
+    if "forward_volts" in table:
+        table["forward_volts"] = float(table["forward_volts"]) + shift
+    else:
+        table["saturation_current_a"] = saturation

@@ -1,0 +1,115 @@
+"""Fit a profile to readings from a known-good board (parameter identification).
+
+Simulate-after-test (Bandler & Salama, Proc. IEEE 73(8), 1985): the drive swing, a common
+shift of every diode's forward drop and, where S0 was read, the DC supply are adjusted so the
+predicted as-read node voltages match the golden readings in the least-squares sense,
+weighting each reading by the meter's accuracy. Gauss–Newton on the steady-state solver, with
+the Jacobian from the linear response (``fieldtool.core.response``).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from fieldtool.core.circuit import build_circuit
+from fieldtool.core.errors import InputError, SolverError
+from fieldtool.core.profile import DiodeSpec, Profile
+from fieldtool.core.readings import NodeReading
+from fieldtool.core.response import linear_response
+from fieldtool.core.solver import steady_state
+
+MAX_ITERATIONS = 12
+RECT = 1.0 / math.sqrt(3.0)  # accuracy bound → 1σ, rectangular (JCGM 100:2008 §4.3.7)
+
+
+@dataclass(frozen=True)
+class Calibration:
+    """The fitted profile and how well it matches the golden readings."""
+
+    profile: Profile
+    drive_scale: float
+    diode_shift_v: float
+    supply_scale: float | None
+    residuals: dict[str, float]  # node → reading − fitted prediction (volts)
+    rms_volts: float
+    chi2: float
+    iterations: int
+
+
+def _apply(base: Profile, theta: np.ndarray, with_supply: bool) -> Profile:
+    """The profile with drive scale, diode shift and (optionally) supply scale applied."""
+    scale, shift = float(np.exp(theta[0])), float(theta[1])
+    p = base
+    if p.topology == "ac-ladder":
+        p = replace(p, drive_volts=p.drive_volts * scale)
+    else:
+        p = replace(p, drive_volts=p.drive_low_volts + (p.drive_volts - p.drive_low_volts) * scale)
+    vt = p.thermal_volts
+
+    def shifted(d: DiodeSpec) -> DiodeSpec:
+        factor = math.exp(-shift / (d.emission_coefficient * vt))
+        return replace(d, saturation_current_a=d.saturation_current_a * factor)
+
+    p = replace(
+        p,
+        diode=shifted(p.diode),
+        diode_overrides={k: shifted(v) for k, v in p.diode_overrides.items()},
+    )
+    if with_supply:
+        p = replace(p, supply_volts=p.supply_volts * float(np.exp(theta[2])))
+    return p
+
+
+def _predict(profile: Profile, nodes: list[int]) -> tuple[np.ndarray, np.ndarray]:
+    """As-read volts at the given probe columns and their sensitivities (drive, diode, supply)."""
+    circuit, params = build_circuit(profile)
+    ss = steady_state(circuit, params)
+    if not ss.converged.all():
+        raise SolverError(f"{profile.path}: steady state not reached while calibrating")
+    r = linear_response(circuit, params, ss.period.x_start)
+    load = 1.0 / (1.0 + r.thevenin_ohms[0] / profile.meter_ohms)
+    v = (r.avg[0] * load)[nodes]
+    jac = np.stack(
+        [r.d_drive[0] * load, r.d_diode[0].sum(axis=1) * load, r.d_supply[0] * load], axis=1
+    )
+    return v, jac[nodes]
+
+
+def calibrate(profile: Profile, readings: Sequence[NodeReading]) -> Calibration:
+    """Least-squares fit of drive swing, diode drop (and supply) to a known-good board."""
+    circuit, _ = build_circuit(profile)
+    names = [circuit.name(i) for i in circuit.probe_nodes]
+    used = [r for r in readings if r.volts is not None]
+    if len(used) < 2:
+        raise InputError("calibration needs readings at two or more nodes (OL rows do not count)")
+    cols = [names.index(r.node) for r in used]
+    y = np.array([r.volts for r in used], dtype=float)
+    sigma = (np.abs(y) * profile.meter_percent / 100 + profile.meter_volts) * RECT
+    with_supply = profile.topology != "ac-ladder" and "S0" in [r.node for r in used]
+    theta = np.zeros(3 if with_supply else 2)
+    iterations = 0
+    for iterations in range(1, MAX_ITERATIONS + 1):  # noqa: B007 (reported)
+        v, jac = _predict(_apply(profile, theta, with_supply), cols)
+        jac = jac[:, : len(theta)]
+        step, *_ = np.linalg.lstsq(jac / sigma[:, None], (y - v) / sigma, rcond=None)
+        step = np.clip(step, -0.3, 0.3)  # a known-good board is near its profile
+        theta = theta + step
+        if np.abs(step).max() < 1e-6:
+            break
+    fitted = _apply(profile, theta, with_supply)
+    v, _ = _predict(fitted, cols)
+    res = y - v
+    return Calibration(
+        profile=fitted,
+        drive_scale=float(np.exp(theta[0])),
+        diode_shift_v=float(theta[1]),
+        supply_scale=float(np.exp(theta[2])) if with_supply else None,
+        residuals={r.node: float(e) for r, e in zip(used, res, strict=True)},
+        rms_volts=float(np.sqrt(np.mean(res**2))),
+        chi2=float(((res / sigma) ** 2).sum()),
+        iterations=iterations,
+    )

@@ -1,0 +1,136 @@
+"""The fault dictionary cached on disk, keyed by a hash of everything in the profile.
+
+One ``.npz`` file (plain numeric arrays, read with ``allow_pickle=False``) and the metadata as
+JSON inside it. The key hashes every profile value (not its file name or comments) with the
+dictionary format version, so changing any value, or upgrading the tool's dictionary, builds
+anew. Files are written to a temporary name and renamed, so a crash or a second process never
+leaves a half-written cache; a damaged or foreign file is ignored and rebuilt.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import hashlib
+import io
+import json
+import os
+import tempfile
+from collections.abc import Callable, Mapping
+from pathlib import Path
+
+import numpy as np
+
+from fieldtool.core import dictionary as dictionary_module
+from fieldtool.core.dictionary import DICTIONARY_VERSION, STEPS_PER_PERIOD, FaultDictionary
+from fieldtool.core.faults import Hypothesis
+from fieldtool.core.profile import Profile
+
+ENV_VAR = "FIELDTOOL_CACHE"
+_ARRAYS = ("row_hypothesis", "row_severity", "mean", "sigma", "ripple", "unloaded", "meter_solved")
+
+
+def default_cache_dir(env: Mapping[str, str]) -> Path:
+    """$FIELDTOOL_CACHE, else $XDG_CACHE_HOME/fieldtool, else ~/.cache/fieldtool."""
+    if env.get(ENV_VAR):
+        return Path(env[ENV_VAR])
+    if env.get("XDG_CACHE_HOME"):
+        return Path(env["XDG_CACHE_HOME"]) / "fieldtool"
+    return Path.home() / ".cache" / "fieldtool"
+
+
+def cache_key(profile: Profile) -> str:
+    """A hash of every value of the profile and the dictionary's format."""
+    values = dataclasses.asdict(profile)
+    values.pop("path", None)
+    values.pop("digest", None)
+    text = json.dumps(
+        {"profile": values, "version": DICTIONARY_VERSION, "steps": STEPS_PER_PERIOD},
+        sort_keys=True,
+        default=repr,
+    )
+    return hashlib.sha256(text.encode()).hexdigest()[:24]
+
+
+def cache_path(cache_dir: Path | str, profile: Profile) -> Path:
+    """Where one profile's dictionary is cached."""
+    safe = "".join(c if c.isalnum() or c in "-_" else "_" for c in profile.name)[:60]
+    return Path(cache_dir) / f"{safe}-{cache_key(profile)}.npz"
+
+
+def save(d: FaultDictionary, path: Path) -> None:
+    """Write a dictionary atomically (temporary file, then rename)."""
+    meta = {
+        "key": cache_key(d.profile),
+        "nodes": list(d.nodes),
+        "labels": d.labels,
+        "hypotheses": [[h.key, h.target, h.mode, list(h.severities)] for h in d.hypotheses],
+        "failed": list(d.failed),
+    }
+    buffer = io.BytesIO()
+    arrays = {name: getattr(d, name) for name in _ARRAYS}
+    np.savez(buffer, meta=np.frombuffer(json.dumps(meta).encode(), dtype=np.uint8), **arrays)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=".tmp-", suffix=".npz")
+    try:
+        with os.fdopen(fd, "wb") as f:
+            f.write(buffer.getvalue())
+            f.flush()
+            os.fsync(f.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise
+
+
+def load(path: Path, profile: Profile) -> FaultDictionary | None:
+    """A cached dictionary for this profile, or None if missing, foreign or damaged."""
+    try:
+        with np.load(path, allow_pickle=False) as data:
+            meta = json.loads(bytes(data["meta"]).decode())
+            arrays = {name: np.array(data[name]) for name in _ARRAYS}
+    except (OSError, ValueError, KeyError, json.JSONDecodeError, UnicodeDecodeError):
+        return None
+    if meta.get("key") != cache_key(profile):
+        return None
+    try:
+        hyps = tuple(
+            Hypothesis(key, target, mode, tuple(float(s) for s in sev))
+            for key, target, mode, sev in meta["hypotheses"]
+        )
+        d = FaultDictionary(
+            profile=profile,
+            nodes=tuple(meta["nodes"]),
+            labels=dict(meta["labels"]),
+            hypotheses=hyps,
+            failed=tuple(meta["failed"]),
+            **arrays,
+        )
+    except (TypeError, ValueError):
+        return None
+    R, P = len(d.row_hypothesis), len(d.nodes)
+    if any(getattr(d, n).shape != (R, P) for n in _ARRAYS[2:]) or d.row_severity.shape != (R,):
+        return None
+    return d
+
+
+def load_or_build(
+    profile: Profile,
+    cache_dir: Path | str | None = None,
+    progress: Callable[[int, int], None] | None = None,
+) -> FaultDictionary:
+    """The profile's dictionary from the cache, or built (and cached) when not there.
+
+    ``cache_dir`` None means the default location (``default_cache_dir``). A cache folder
+    that cannot be written is not an error: the dictionary is still returned.
+    """
+    folder = Path(cache_dir) if cache_dir is not None else default_cache_dir(os.environ)
+    path = cache_path(folder, profile)
+    cached = load(path, profile)
+    if cached is not None:
+        return cached
+    d = dictionary_module.build(profile, progress=progress)
+    try:
+        save(d, path)
+    except OSError:
+        pass  # a read-only or full cache folder costs speed next time, nothing else
+    return d

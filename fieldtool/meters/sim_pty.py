@@ -1,0 +1,286 @@
+"""A simulated meter served on a pseudo-terminal, so the whole serial path runs without hardware.
+
+The far end of the pty behaves as a SCPI meter (answers ``*IDN?``, ``CONF:VOLT:DC``, ``READ?``,
+``MEAS:VOLT:DC?``, ``SYST:ERR?``; unknown commands go to the SCPI error queue) or as a streaming
+meter (a "value unit" line at a fixed rate). The person running it says where the probe is by
+typing a node name on the console.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+import selectors
+import time
+import tty
+from collections import deque
+from collections.abc import Callable
+
+from fieldtool.meters.errors import UnknownNode
+from fieldtool.meters.parse import Reading
+from fieldtool.meters.simulated import SimulatedMeter
+
+# SCPI-99 error numbers (SCPI Consortium, SCPI 1999.0 Vol. 2, ch. 21; from memory).
+NO_ERROR = '0,"No error"'
+UNDEFINED_HEADER = '-113,"Undefined header"'
+DATA_STALE = '-230,"Data corrupt or stale"'
+QUEUE_OVERFLOW = '-350,"Queue overflow"'
+INPUT_OVERRUN = '-363,"Input buffer overrun"'
+INPUT_BUFFER_BYTES = 1024
+ERROR_QUEUE_SIZE = 10
+SCPI_OVERLOAD = "+9.90000000E+37"
+
+_SHORT = {
+    "CONFIGURE": "CONF",
+    "VOLTAGE": "VOLT",
+    "MEASURE": "MEAS",
+    "SYSTEM": "SYST",
+    "ERROR": "ERR",
+    "FETCH": "FETC",
+    "INITIATE": "INIT",
+    "REMOTE": "REM",
+    "LOCAL": "LOC",
+}
+_LIFT_WORDS = {"lift", "off", "none", "-"}
+_QUIT_WORDS = {"quit", "exit", "q"}
+_HELP_WORDS = {"help", "?", "nodes"}
+
+
+def canonical_header(command: str) -> str:
+    """A SCPI command's header in short form without parameters or optional parts.
+
+    ``:MEASure:VOLTage? AUTO`` → ``MEAS:VOLT:DC?``; ``SYSTem:ERRor:NEXT?`` → ``SYST:ERR?``.
+    """
+    header = command.strip().split(maxsplit=1)[0].upper().lstrip(":") if command.strip() else ""
+    query = header.endswith("?")
+    parts = [_SHORT.get(p, p) for p in header.rstrip("?").split(":")]
+    if parts[0] in ("CONF", "MEAS") and parts[1:] == ["VOLT"]:
+        parts.append("DC")
+    if parts == ["SYST", "ERR", "NEXT"]:
+        parts = ["SYST", "ERR"]
+    return ":".join(parts) + ("?" if query else "")
+
+
+def scpi_number(reading: Reading) -> str:
+    """A reading as an IEEE 488.2 NR3 number; overload as the SCPI +9.9E37."""
+    if reading.overload or reading.volts is None:
+        return SCPI_OVERLOAD
+    return f"{reading.volts:+.8E}"
+
+
+def stream_text(reading: Reading) -> str:
+    """A reading as a 5-digit meter's logging line: ``125.77 V``, ``12.345 mV`` or ``OL``."""
+    if reading.overload or reading.volts is None:
+        return "OL"
+    value, unit = reading.volts, "V"
+    if abs(value) < 1.0:
+        value, unit = value * 1000.0, "mV"
+    digits = max(0, 5 - len(str(int(abs(value)))))
+    return f"{value:.{digits}f} {unit}"
+
+
+class ScpiResponder:
+    """Answer SCPI command lines from a simulated meter, keeping the SCPI error queue."""
+
+    def __init__(self, meter: SimulatedMeter) -> None:
+        self.meter = meter
+        self.errors: deque[str] = deque()
+        self.last: Reading | None = None
+
+    def error(self, entry: str) -> None:
+        """Queue an SCPI error; a full queue ends in a queue-overflow entry."""
+        if len(self.errors) >= ERROR_QUEUE_SIZE:
+            self.errors[-1] = QUEUE_OVERFLOW
+        else:
+            self.errors.append(entry)
+
+    def _measure(self) -> str:
+        self.last = self.meter.read()
+        return scpi_number(self.last)
+
+    def _fetch(self) -> str | None:
+        if self.last is None:
+            self.error(DATA_STALE)
+            return None
+        return scpi_number(self.last)
+
+    def _initiate(self) -> None:
+        self.last = self.meter.read()
+
+    def _reset(self) -> None:
+        self.last = None
+
+    def _next_error(self) -> str:
+        return self.errors.popleft() if self.errors else NO_ERROR
+
+    def handle(self, line: str) -> str | None:
+        """The answer to one line (commands joined by ``;`` allowed), or None if it has none."""
+        answers = []
+        for command in line.split(";"):
+            if not command.strip():
+                continue
+            answer = self._one(canonical_header(command))
+            if answer is not None:
+                answers.append(answer)
+        return ";".join(answers) if answers else None
+
+    def _one(self, header: str) -> str | None:
+        table: dict[str, Callable[[], str | None]] = {
+            "*IDN?": lambda: self.meter.identity,
+            "*OPC?": lambda: "1",
+            "*RST": self._reset,
+            "*CLS": self.errors.clear,
+            "CONF:VOLT:DC": lambda: None,
+            "READ?": self._measure,
+            "MEAS:VOLT:DC?": self._measure,
+            "INIT": self._initiate,
+            "FETC?": self._fetch,
+            "SYST:ERR?": self._next_error,
+            "SYST:REM": lambda: None,
+            "SYST:LOC": lambda: None,
+        }
+        action = table.get(header)
+        if action is None:
+            self.error(UNDEFINED_HEADER)
+            return None
+        return action()
+
+
+class PtyMeter:
+    """Serve a simulated meter on a new pseudo-terminal; the console says where the probe is."""
+
+    def __init__(
+        self,
+        meter: SimulatedMeter,
+        protocol: str = "scpi",
+        say: Callable[[str], None] = print,
+        command_gap_s: float = 0.0,
+    ) -> None:
+        self.meter = meter
+        self.protocol = protocol
+        self.say = say
+        self.command_gap_s = command_gap_s
+        self.responder = ScpiResponder(meter)
+        self.master, self._slave = os.openpty()
+        tty.setraw(self._slave)  # no echo, no line editing: bytes pass as a serial line's would
+        os.set_blocking(self.master, False)
+        self.port = os.ttyname(self._slave)
+        self.running = True
+        self._from_port = b""
+        self._from_console = b""
+        self._skipping = False
+        self._last_command: float | None = None
+
+    # -- the console ----------------------------------------------------------------------
+
+    def where(self) -> str:
+        """Where the probe is, in words."""
+        node = self.meter.probe
+        return "probe lifted" if node is None else f"probe on {self.meter.describe_node(node)}"
+
+    def console(self, line: str) -> None:
+        """Act on one console line: a node, ``lift``, ``nodes`` or ``quit``."""
+        word = line.strip()
+        if not word:
+            self.say(self.where())
+        elif word.lower() in _QUIT_WORDS:
+            self.running = False
+        elif word.lower() in _HELP_WORDS:
+            self.say("nodes: " + ", ".join(self.meter.describe_node(n) for n in self.meter.nodes))
+            self.say("type a node or test point (or GND) to move the probe, 'lift' or 'quit'")
+        elif word.lower() in _LIFT_WORDS:
+            self.meter.touch(None)
+            self.say(self.where())
+        else:
+            try:
+                self.meter.touch(word)
+            except UnknownNode as exc:
+                self.say(exc.message)
+                return
+            self.say(self.where())
+
+    # -- the serial side ------------------------------------------------------------------
+
+    def send(self, text: str) -> None:
+        """Write to the port; bytes nobody reads are lost, as on a real line."""
+        data = text.encode("ascii", errors="replace")
+        while data:
+            try:
+                written = os.write(self.master, data)
+            except (BlockingIOError, OSError):
+                return
+            data = data[written:]
+
+    def command(self, line: str) -> None:
+        """Answer one SCPI line from the port; a slow meter loses commands sent too soon."""
+        now = time.monotonic()
+        last, self._last_command = self._last_command, now
+        if self.command_gap_s > 0 and last is not None and now - last < self.command_gap_s:
+            self.say(f"lost command {line!r}: it came {now - last:.3f} s after the previous one")
+            return
+        answer = self.responder.handle(line)
+        if answer is not None:
+            self.send(answer + "\n")
+
+    @staticmethod
+    def _lines(buffer: bytes) -> tuple[list[str], bytes]:
+        """Complete lines in ``buffer`` (any of CR, LF, CR LF) and the unfinished rest."""
+        *done, rest = re.split(rb"\r\n|\r|\n", buffer)
+        return [d.decode("utf-8", errors="replace") for d in done], rest
+
+    def _port_input(self) -> None:
+        try:
+            chunk = os.read(self.master, 4096)
+        except (BlockingIOError, OSError):
+            return
+        if self.protocol != "scpi":
+            return  # a streaming meter ignores what it is sent
+        lines, rest = self._lines(self._from_port + chunk)
+        if len(rest) > INPUT_BUFFER_BYTES:  # a line that does not end: drop it up to its end
+            rest, self._skipping = b"", True
+            self.responder.error(INPUT_OVERRUN)
+        self._from_port = rest
+        for line in lines:
+            if self._skipping:
+                self._skipping = False  # the tail of the overrun line
+            elif len(line) > INPUT_BUFFER_BYTES:
+                self.responder.error(INPUT_OVERRUN)
+            elif line.strip():
+                self.command(line)
+
+    def _console_input(self, fd: int) -> None:
+        chunk = os.read(fd, 1024)
+        if not chunk:
+            self.running = False  # console closed (Ctrl-D or end of piped input)
+            return
+        lines, self._from_console = self._lines(self._from_console + chunk)
+        for line in lines:
+            self.console(line)
+            if not self.running:
+                return
+
+    def serve(self, console_fd: int) -> None:
+        """Answer the port and the console until ``quit``, end of console input or Ctrl-C."""
+        with selectors.DefaultSelector() as sel:
+            sel.register(console_fd, selectors.EVENT_READ, lambda: self._console_input(console_fd))
+            sel.register(self.master, selectors.EVENT_READ, self._port_input)
+            interval = self.meter.reading_interval_s
+            due = time.monotonic() + interval
+            while self.running:
+                timeout = max(0.0, due - time.monotonic()) if self.protocol == "stream" else None
+                for key, _ in sel.select(timeout):
+                    key.data()
+                    if not self.running:
+                        return
+                now = time.monotonic()
+                if self.protocol == "stream" and now >= due:
+                    self.send(stream_text(self.meter.sample()) + "\r\n")
+                    due = due + interval if due + interval > now else now + interval
+
+    def close(self) -> None:
+        """Close both ends of the pseudo-terminal."""
+        for fd in (self.master, self._slave):
+            try:
+                os.close(fd)
+            except OSError:
+                pass  # already closed
