@@ -235,7 +235,7 @@ class MeterStrip(Horizontal):
             self.history.append(reading.volts)
         self._show()
 
-    def clear(self) -> None:
+    def reset_window(self) -> None:
         """Forget the settle window (after a value was accepted)."""
         self.window = []
         self._show()

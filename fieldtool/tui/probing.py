@@ -286,7 +286,7 @@ class ProbingScreen(Screen):
         if not s.settled:
             source += " (unsettled)"
         self.take(strip.probe_node or self.selected, s.volts, source, s.spread)
-        strip.clear()
+        strip.reset_window()
 
     def action_type_reading(self) -> None:
         """Focus the entry to type a reading."""
@@ -341,13 +341,15 @@ class ProbingScreen(Screen):
         lines = [f"{len(s.taken)} readings in this phase, {len(s.actions)} repairs recorded."]
         if top is not None:
             lines.append(f"Top suspect now: {top.words} ({top.probability:.0%}).")
-        self.app.push_screen(OutcomeDialog(" ".join(lines)), self._closed)
+        self.app.push_screen(OutcomeDialog(" ".join(lines)), self._session_closed)
 
-    def _closed(self, outcome: str | None) -> None:
+    def _session_closed(self, outcome: str | None) -> None:
         if outcome is None:
             return
         self.session.close(outcome)
-        self.app.session_finished(self.reveal() if self.demo_fault is not None else None)
+        reveal = self.reveal() if self.demo_fault is not None else None
+        # Leave the dialog's dismissal to finish before this screen is replaced.
+        self.app.call_later(self.app.session_finished, reveal)
 
     def reveal(self) -> str:
         """Whether the tool (and the technician) found the demo's hidden fault."""
