@@ -188,7 +188,7 @@ class OutcomeDialog(ModalScreen[str | None]):
                 yield Button("Fixed (f)", id="fixed", variant="success")
                 yield Button("Not fixed (n)", id="not-fixed", variant="warning")
                 yield Button("Escalated (e)", id="escalated")
-                yield Button("Keep working (esc)", id="keep")
+                yield Button("Back (esc)", id="keep")
 
     def on_button_pressed(self, event: Button.Pressed) -> None:
         """An outcome, or None to keep working."""

@@ -261,6 +261,6 @@ class MeterStrip(Horizontal):
                 keys = "wait for ●, or A takes it unsettled"
             spread = f" ±{volts_text(s.spread / 2, 2)}" if s.spread else ""
             first = Content.assemble((value, "bold"), "  ", mark, f"{spread} · {where}")
-        second = Content.styled(f"{self.status} · {keys}", "$text-muted")
+        second = Content.styled(f"{keys} · {self.status}", "$text-muted")
         self.query_one("#meter-readout", Static).update(first + Content("\n") + second)
         self.query_one("#meter-spark", Sparkline).data = list(self.history)

@@ -60,9 +60,9 @@ class NodeTable(DataTable):
             self.add_column("TP", key="tp", width=max([2] + [len(t) for t in self.labels.values()]))
             self.add_column("Expected (band) V", key="band", width=17)
         else:
-            self.add_column("Band V", key="band", width=11)
-        self.add_column("Read V", key="read", width=7)
-        self.add_column("Δ V", key="dev", width=12 if wide else 6)
+            self.add_column("Band V", key="band", width=10)
+        self.add_column("Read V", key="read", width=7 if wide else 6)
+        self.add_column("Δ V", key="dev", width=12 if wide else 5)
         self.add_column("Verdict", key="verdict", width=12 if wide else 7)
         for node in self.dictionary.nodes:
             self.add_row(*self._cells(node), key=node)
@@ -144,6 +144,11 @@ class SuspectsPanel(Static):
         if d is None:
             return Content("")
         if d.next_probe is None:
+            top = d.suspects[0] if d.suspects else None
+            if top is not None and top.probability >= 0.9:
+                return Content.assemble(
+                    ("Past 90 %: ", "bold"), f"{top.words}. ", ("[r]", "bold"), " records a repair"
+                )
             return Content.styled("No probe left that would change the ranking.", "$text-muted")
         tp = self.labels.get(d.next_probe, "")
         where = f"{d.next_probe} ({tp})" if tp else d.next_probe
@@ -160,7 +165,7 @@ class SuspectsPanel(Static):
         if d is None:
             self.update("Waiting for the fault dictionary…")
             return
-        width = max(self.size.width - 2, 30)
+        width = max(self.size.width, 24)
         lines: list[Content] = []
         if d.fit.no_fit:
             lines.append(
@@ -169,8 +174,8 @@ class SuspectsPanel(Static):
         lines.insert(0, self.next_line())
         notes = [Content.styled(f"≈ {g.text}", "$text-warning") for g in d.ambiguity]
         room = max(3, self.size.height - len(lines) - len(notes) - 1)
-        name_w = min(24, max(10, width - 18))
-        bar_w = max(5, width - name_w - 9)
+        name_w = min(24, max(9, width - 17))
+        bar_w = max(3, width - name_w - 9)
         ranked = []
         shown = 0.0
         for i, s in enumerate(d.suspects[:room], start=1):

@@ -363,6 +363,11 @@ class ProbingScreen(Screen):
         else:
             done = ", ".join(a.designator for a in self.session.actions) or "no part"
             verdict = f"Not found: you worked on {done}."
+        tool = "; ".join(f"{w} ({p:.0%})" for w, p in self.session.at_repairs)
+        ranked = f" The tool's top suspect when you repaired: {tool}." if tool else ""
         v = self.session.volts_by_node()
         read = ", ".join(f"{n} {volts_text(x)} V" for n, x in v.items())
-        return f"The hidden fault was {hidden}. {verdict} Last readings: {read or 'none'}."
+        return (
+            f"The hidden fault was {hidden}. {verdict}{ranked} "
+            f"Readings after the last repair: {read or 'none'}."
+        )

@@ -79,6 +79,7 @@ class BoardSession:
         self.actions: list[hist.Action] = []
         self.outcome: str | None = None
         self.resumed_from: str | None = None  # time of the session picked up again
+        self.at_repairs: list[tuple[str, float]] = []  # top suspect (words, odds) at each repair
         self.diagnosis: Diagnosis = diagnose(dictionary, (), priors)
 
     # --- opening -------------------------------------------------------------------------
@@ -178,6 +179,9 @@ class BoardSession:
         self._save(self.snapshot())
         self._save(action)
         self.actions.append(action)
+        top = self.diagnosis.suspects[0] if self.diagnosis.suspects else None
+        if top is not None:
+            self.at_repairs.append((top.words, float(top.probability)))
         self.phase = "verifying"
         self.taken.clear()
         self._rediagnose()
