@@ -24,6 +24,7 @@ from fieldtool.tui.session import BoardSession
 from fieldtool.tui.writer import HistoryWriter
 
 ROOT = Path(__file__).resolve().parents[2]
+PALETTE_WORDS = "Command palette: the main actions by name"
 
 
 @dataclass(frozen=True)
@@ -71,7 +72,9 @@ class FieldtoolApp(App):
     BINDINGS = [
         Binding("question_mark,f1", "help", "Help", key_display="?"),
         Binding("q", "quit", "Quit"),
-        Binding("ctrl+p", "command_palette", "Commands", show=False),
+        Binding(
+            "ctrl+p", "command_palette", "Command palette: the main actions by name", show=False
+        ),
     ]
 
     def __init__(self, config: AppConfig, request: SessionRequest | None = None) -> None:

@@ -24,18 +24,27 @@ every reading already taken stays, and **m** connects again.
 """
 
 
+KEY_NAMES = {
+    "question_mark": "?",
+    "escape": "esc",
+    "left": "←",
+    "right": "→",
+    "up": "↑",
+    "down": "↓",
+}
+
+
 def _key(binding: Binding) -> str:
-    keys = binding.key_display or binding.key
-    return " / ".join(k.strip() for k in keys.split(","))
+    return " / ".join(KEY_NAMES.get(k.strip(), k.strip()) for k in binding.key.split(","))
 
 
 def key_table(title: str, bindings: list[Binding]) -> str:
-    """A Markdown table of keys and what they do."""
-    rows = [f"### {title}", "", "| key | does |", "| --- | --- |"]
+    """A compact Markdown list of keys and what they do."""
+    rows = [f"### {title}", ""]
     for b in bindings:
         if isinstance(b, tuple):
             b = Binding(*b)
-        rows.append(f"| `{_key(b)}` | {b.description or b.action} |")
+        rows.append(f"- `{_key(b)}` {b.tooltip or b.description or b.action}")
     return "\n".join(rows) + "\n"
 
 
@@ -49,7 +58,7 @@ def help_text() -> str:
 
     table_keys = [Binding("up,down", "", "Select a node (the table's rows)")]
     parts = [
-        key_table("Everywhere", FieldtoolApp.BINDINGS + [Binding("ctrl+p", "", "Command palette")]),
+        key_table("Everywhere", FieldtoolApp.BINDINGS),
         key_table("Probing", table_keys + ProbingScreen.BINDINGS),
         TYPED,
         key_table("Start", StartScreen.BINDINGS + [Binding("tab", "", "Next field")]),

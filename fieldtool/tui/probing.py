@@ -31,6 +31,9 @@ from fieldtool.tui.session import BoardSession
 from fieldtool.tui.view import volts_text
 
 TYPING_KEYS = set("0123456789-.+,")
+ACCEPT_LIVE = "Take the live value now, marked unsettled in the history"
+TYPE_WORDS = "Type a reading for the selected node (a digit starts one too)"
+REPAIR_WORDS = "Record a repair: part, fault mode found, what was done, part used, note"
 SAFETY_DELAY_S = 0.15  # let the panels repaint before the safety figures are recomputed
 
 
@@ -43,18 +46,20 @@ class ProbingScreen(Screen):
     """Guided probing of one board, then repair and verification."""
 
     BINDINGS = [
-        Binding("n", "next_probe", "Next node"),
-        Binding("a", "accept", "Accept settled"),
-        Binding("A", "accept(False)", "Accept the live value, unsettled", show=False),
-        Binding("t", "type_reading", "Type"),
+        Binding("n", "next_probe", "Next node", tooltip="Jump to the node worth probing next"),
+        Binding("a", "accept", "Accept settled", tooltip="Take the settled meter value here"),
+        Binding("A", "accept(False)", "Accept live", show=False, tooltip=ACCEPT_LIVE),
+        Binding("t", "type_reading", "Type", tooltip=TYPE_WORDS),
         Binding("left", "move(-1)", "Previous node along the ladder", show=False),
         Binding("right", "move(1)", "Next node along the ladder", show=False),
-        Binding("r", "repair", "Repair"),
-        Binding("c", "close_session", "Close"),
-        Binding("s", "safety", "Safety"),
-        Binding("h", "history", "History"),
-        Binding("f", "fleet", "Fleet failures", show=False),
-        Binding("m", "reconnect", "Reconnect"),
+        Binding("r", "repair", "Repair", tooltip=REPAIR_WORDS),
+        Binding(
+            "c", "close_session", "Close", tooltip="Close the session: fixed, not fixed, escalated"
+        ),
+        Binding("s", "safety", "Safety", tooltip="Each capacitor's voltage and stored energy"),
+        Binding("h", "history", "History", tooltip="This board's timeline"),
+        Binding("f", "fleet", "Fleet", show=False, tooltip="Confirmed failures on this board type"),
+        Binding("m", "reconnect", "Reconnect", tooltip="Open the meter's port again after a loss"),
     ]
 
     def __init__(self, session: BoardSession, choice: MeterChoice, demo_fault=None) -> None:
