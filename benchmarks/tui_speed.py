@@ -79,7 +79,7 @@ async def reading_runs(profile_path: str, cache: str) -> tuple[list[float], list
     from fieldtool.core.profile import load_profile
     from fieldtool.tui.app import SessionRequest, make_app
     from fieldtool.tui.meter_strip import MeterChoice
-    from fieldtool.tui.panels import NodeTable
+    from fieldtool.tui.node_table import NodeTable
     from fieldtool.tui.probing import SAFETY_DELAY_S, ProbingScreen
 
     global SAFETY_MS

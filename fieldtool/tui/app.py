@@ -70,11 +70,9 @@ class FieldtoolApp(App):
     CSS_PATH = "fieldtool.tcss"
     TITLE = "fieldtool"
     BINDINGS = [
-        Binding("question_mark,f1", "help", "Help", key_display="?"),
-        Binding("q", "quit", "Quit"),
-        Binding(
-            "ctrl+p", "command_palette", "Command palette: the main actions by name", show=False
-        ),
+        Binding("question_mark,f1", "help", "Help", key_display="?", tooltip="Every key"),
+        Binding("q", "quit", "Quit", tooltip="Quit at once; every reading is already saved"),
+        Binding("ctrl+p", "command_palette", "Commands", show=False, tooltip=PALETTE_WORDS),
     ]
 
     def __init__(self, config: AppConfig, request: SessionRequest | None = None) -> None:

@@ -1,12 +1,11 @@
-"""The probing screen's panels: node table, suspects, safety strip."""
+"""The probing screen's panels: suspects and the safety strip."""
 
 from __future__ import annotations
 
 from textual.content import Content
-from textual.widgets import DataTable, Static
+from textual.widgets import Static
 
 from fieldtool.core.diagnosis import Diagnosis
-from fieldtool.core.dictionary import FaultDictionary
 from fieldtool.core.safety import (
     CAUTION,
     HAZARD_NOTE,
@@ -14,107 +13,7 @@ from fieldtool.core.safety import (
     SafetyFigures,
     format_duration,
 )
-from fieldtool.tui.view import (
-    SHORT,
-    STYLE,
-    Verdict,
-    band_text,
-    bar,
-    deviation_text,
-    percent_text,
-    verdict,
-    volts_text,
-)
-
-WIDE_TABLE = 62  # table width from which the test-point and expected columns show
-
-
-class NodeTable(DataTable):
-    """Node, test point, expected with its band, measured, deviation, verdict; one row a node."""
-
-    def __init__(self, dictionary: FaultDictionary, labels: dict[str, str], **kwargs) -> None:
-        super().__init__(cursor_type="row", zebra_stripes=False, **kwargs)
-        self.dictionary = dictionary
-        self.labels = labels
-        self.values: dict[str, float | None] = {}
-        self.wide: bool | None = None
-
-    def on_mount(self) -> None:
-        """Build the columns for the width the table has."""
-        self.border_title = "Nodes"
-        self.rebuild(self.size.width >= WIDE_TABLE)
-
-    def on_resize(self) -> None:
-        """Show more columns when there is room for them."""
-        wide = self.size.width >= WIDE_TABLE
-        if wide != self.wide:
-            self.rebuild(wide)
-
-    def rebuild(self, wide: bool) -> None:
-        """Lay the table out again (narrow or wide), keeping the cursor's node."""
-        chosen = self.selected_node
-        self.wide = wide
-        self.clear(columns=True)
-        self.add_column("Node", key="node", width=4)
-        if wide:
-            self.add_column("TP", key="tp", width=max([2] + [len(t) for t in self.labels.values()]))
-            self.add_column("Expected (band) V", key="band", width=17)
-        else:
-            self.add_column("Band V", key="band", width=10)
-        self.add_column("Read V", key="read", width=7 if wide else 6)
-        self.add_column("Δ V", key="dev", width=12 if wide else 5)
-        self.add_column("Verdict", key="verdict", width=12 if wide else 7)
-        for node in self.dictionary.nodes:
-            self.add_row(*self._cells(node), key=node)
-        if chosen is not None:
-            self.move_cursor(row=self.dictionary.nodes.index(chosen))
-
-    def verdict_for(self, node: str) -> Verdict:
-        """The node's verdict from the readings shown."""
-        b = self.dictionary.band(node)
-        return verdict(b.expected, b.low, b.high, self.values.get(node), node in self.values)
-
-    def _cells(self, node: str) -> list:
-        b = self.dictionary.band(node)
-        v = self.verdict_for(node)
-        style = STYLE[v.state]
-        read = volts_text(self.values[node]) if node in self.values else "—"
-        cells: list = [Content.styled(node, "bold")]
-        if self.wide:
-            cells += [
-                self.labels.get(node, ""),
-                f"{volts_text(b.expected)} [{band_text(b.low, b.high)}]",
-            ]
-        else:
-            cells.append(band_text(b.low, b.high))
-        cells += [
-            Content.styled(read, style),
-            Content.styled(deviation_text(v, percent=bool(self.wide)), style),
-            Content.styled(f"{v.symbol} {v.state if self.wide else SHORT[v.state]}", style),
-        ]
-        return cells
-
-    def show(self, values: dict[str, float | None]) -> None:
-        """Show the readings (node → volts, None for over range); update rows in place."""
-        changed = set(values) ^ set(self.values)
-        changed |= {n for n in values if n in self.values and values[n] != self.values[n]}
-        self.values = dict(values)
-        keys = ["node", "tp", "band"] if self.wide else ["node", "band"]
-        keys += ["read", "dev", "verdict"]
-        for node in changed:
-            for key, cell in zip(keys, self._cells(node), strict=True):
-                self.update_cell(node, key, cell)
-
-    @property
-    def selected_node(self) -> str | None:
-        """The node under the cursor."""
-        if not self.row_count:
-            return None
-        return self.dictionary.nodes[min(self.cursor_row, len(self.dictionary.nodes) - 1)]
-
-    def select(self, node: str) -> None:
-        """Put the cursor on a node."""
-        self.move_cursor(row=self.dictionary.nodes.index(node))
+from fieldtool.tui.view import bar, percent_text, volts_text
 
 
 class SuspectsPanel(Static):

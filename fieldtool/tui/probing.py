@@ -10,7 +10,7 @@ from textual.binding import Binding
 from textual.containers import Horizontal
 from textual.content import Content
 from textual.screen import Screen
-from textual.widgets import DataTable, Footer, Input, Static
+from textual.widgets import Footer, Input, Static
 
 from fieldtool.core.errors import FieldtoolError
 from fieldtool.core.faults import describe, display_name
@@ -26,7 +26,8 @@ from fieldtool.tui.dialogs import (
 )
 from fieldtool.tui.ladder import LadderView
 from fieldtool.tui.meter_strip import MeterChoice, MeterStrip
-from fieldtool.tui.panels import NodeTable, SafetyStrip, SuspectsPanel
+from fieldtool.tui.node_table import NodeTable
+from fieldtool.tui.panels import SafetyStrip, SuspectsPanel
 from fieldtool.tui.session import BoardSession
 from fieldtool.tui.view import volts_text
 
@@ -192,9 +193,9 @@ class ProbingScreen(Screen):
 
     # --- events --------------------------------------------------------------------------
 
-    @on(DataTable.RowHighlighted, "#nodes")
-    def _moved(self) -> None:
-        node = self.selected
+    @on(NodeTable.Selected)
+    def _moved(self, message: NodeTable.Selected) -> None:
+        node = message.node
         self.query_one(LadderView).selected = node
         self.query_one(MeterStrip).probe_node = node
         self.query_one(

@@ -12,7 +12,7 @@ from fieldtool.core import history as hist
 from fieldtool.core.expect import expect
 from fieldtool.core.faults import parse_fault
 from fieldtool.tui.dialogs import ActionDialog, OutcomeDialog
-from fieldtool.tui.panels import NodeTable
+from fieldtool.tui.node_table import NodeTable
 from fieldtool.tui.start import StartScreen
 from tests.tui.conftest import drain, probing, type_reading, typed_app, until
 

@@ -12,7 +12,7 @@ from fieldtool.core import history as hist
 from fieldtool.meters.settings import MeterSettings, SettleRule
 from fieldtool.tui.dialogs import ResumeDialog
 from fieldtool.tui.meter_strip import MeterChoice, MeterStrip
-from fieldtool.tui.panels import NodeTable
+from fieldtool.tui.node_table import NodeTable
 from tests.tui.conftest import drain, probing, type_reading, typed_app, until
 
 IDENTITY = "BENCH,DMM-9,0042,1.0"
