@@ -18,8 +18,12 @@ from tests.tui.conftest import drain, probing, type_reading, typed_app, until
 IDENTITY = "BENCH,DMM-9,0042,1.0"
 
 
-def answer_scpi(fd: int, volts: str, log: list[str]) -> None:
-    """Play a SCPI meter on the master side of a pty until the far end goes away."""
+def answer_scpi(fd: int, volts: str, log: list[str], unplug: threading.Event) -> None:
+    """Play a SCPI meter on the master side of a pty; on ``unplug``, hang up mid-dialogue.
+
+    The thread closes the master itself: closing it from another thread while this one is
+    blocked reading it would leave the file open and let the number be reused.
+    """
     buf = b""
     while True:
         try:
@@ -33,6 +37,9 @@ def answer_scpi(fd: int, volts: str, log: list[str]) -> None:
             line, buf = buf.split(b"\n", 1)
             command = line.decode().strip()
             log.append(command)
+            if unplug.is_set():
+                os.close(fd)  # the cable is pulled with a request unanswered
+                return
             reply = {"*IDN?": IDENTITY, "READ?": volts}.get(command)
             if reply is not None:
                 try:
@@ -46,19 +53,21 @@ def pty_meter():
     """A real pseudo-terminal pair; the test plays the meter on the master side."""
     master, slave = os.openpty()
     log: list[str] = []
-    thread = threading.Thread(target=answer_scpi, args=(master, "+1.25000E+01", log), daemon=True)
+    unplug = threading.Event()
+    thread = threading.Thread(
+        target=answer_scpi, args=(master, "+1.25000E+01", log, unplug), daemon=True
+    )
     thread.start()
-    state = {"master": master}
-    yield os.ttyname(slave), state, log
+    yield os.ttyname(slave), unplug, log
+    unplug.set()
+    thread.join(5)
     os.close(slave)
-    if state["master"] is not None:
-        os.close(state["master"])
 
 
 async def test_meter_unplugged_mid_session_keeps_every_reading(
     profile, cache_dir, tmp_path, pty_meter
 ):
-    port, state, log = pty_meter
+    port, unplug, log = pty_meter
     settings = MeterSettings(timeout_s=0.5, settle=SettleRule(count=3, timeout_s=5.0))
     app = typed_app(profile, tmp_path, cache_dir, meter=MeterChoice("port", port, settings))
     async with app.run_test(size=(100, 30)) as pilot:
@@ -76,10 +85,12 @@ async def test_meter_unplugged_mid_session_keeps_every_reading(
         assert (taken.volts, taken.source) == (12.5, IDENTITY)
         assert taken.spread == 0.0
         # Unplug: the far end of the serial line goes away mid-session.
-        os.close(state["master"])
-        state["master"] = None
-        await until(pilot, lambda: not strip.live, what="meter lost")
-        assert "Meter disconnected" in screen.last_problem
+        unplug.set()
+        await until(
+            pilot,
+            lambda: not strip.live and "Meter disconnected" in screen.last_problem,
+            what="meter lost and the notice shown",
+        )
         assert screen.session.taken["S0"].volts == 12.5  # still there
         assert screen.check_action("accept", ()) is False
         assert screen.check_action("reconnect", ()) is True
