@@ -15,6 +15,7 @@ import io
 import json
 import os
 import tempfile
+import zipfile
 from collections.abc import Callable, Mapping
 from pathlib import Path
 
@@ -85,11 +86,11 @@ def save(d: FaultDictionary, path: Path) -> None:
 def load(path: Path, profile: Profile) -> FaultDictionary | None:
     """A cached dictionary for this profile, or None if missing, foreign or damaged."""
     try:
-        with np.load(path, allow_pickle=False) as data:
+        with open(path, "rb") as f, np.load(f, allow_pickle=False) as data:
             meta = json.loads(bytes(data["meta"]).decode())
             arrays = {name: np.array(data[name]) for name in _ARRAYS}
-    except (OSError, ValueError, KeyError, json.JSONDecodeError, UnicodeDecodeError):
-        return None
+    except (OSError, ValueError, KeyError, EOFError, zipfile.BadZipFile, UnicodeDecodeError):
+        return None  # missing, truncated or foreign: build anew
     if meta.get("key") != cache_key(profile):
         return None
     try:

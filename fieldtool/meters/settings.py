@@ -19,13 +19,16 @@ DEFAULT_STREAM_REGEX = (
 class SettleRule:
     """When a reading counts as settled: ``count`` in a row within percent*|v|/100 + volts.
 
-    ``percent`` is a percentage: 0.2 means 0.2 % of the reading, not 20 %.
+    ``percent`` is a percentage: 0.2 means 0.2 % of the reading, not 20 %. With ``trend``
+    the ``count`` readings before those must agree too and their mean may differ by at most
+    half the band, so a slow creep (a node charging through the meter) is not called settled.
     """
 
     count: int = 3
     percent: float = 0.2
     volts: float = 0.005
     timeout_s: float = 10.0
+    trend: bool = True
 
 
 @dataclass(frozen=True)

@@ -56,11 +56,14 @@ def test_read_overload_json(pty_meter, capsys):
 
 def test_read_settled(pty_meter, capsys):
     master, name = pty_meter
-    replies = [b"5.0\n", b"12.0\n", b"12.001\n", b"12.002\n"]
+    # the default rule: three readings in a row within 0.2 % + 5 mV, and the three before
+    # them at the same mean (trend check)
+    replies = [b"5.0\n", b"12.0\n", b"12.001\n", b"12.002\n", b"12.001\n", b"12.0\n"]
+    replies += [b"12.002\n"]
     threading.Thread(target=_meter, args=(master, replies), daemon=True).start()
     assert main(["read", "--port", name, "--settle", "--json"]) == 0
     out = json.loads(capsys.readouterr().out)
-    assert (out["volts"], out["count"], out["settled"]) == (12.002, 4, True)
+    assert (out["volts"], out["count"], out["settled"]) == (12.002, 7, True)
 
 
 def test_read_missing_port(capsys):

@@ -178,7 +178,10 @@ def test_settle_with_fake_clock():
 
     shown = []
     result = settle(
-        lambda: Reading(next(values)), SettleRule(), clock=lambda: 0.0, on_value=shown.append
+        lambda: Reading(next(values)),
+        SettleRule(trend=False),
+        clock=lambda: 0.0,
+        on_value=shown.append,
     )
     assert (result.volts, result.count, result.settled) == (12.505, 5, True)
     assert result.spread == pytest.approx(0.01)
@@ -224,13 +227,28 @@ def test_settle_percent_is_a_percentage():
     # percent = 0.2 means 0.2 % of the reading: at 100 V a band of 0.2 V (+ volts = 0)
     from fieldtool.meters.parse import Reading
 
-    rule = SettleRule(count=3, percent=0.2, volts=0.0)
+    rule = SettleRule(count=3, percent=0.2, volts=0.0, trend=False)
     inside = iter([100.0, 100.1, 100.19])
     assert settle(lambda: Reading(next(inside)), rule, clock=lambda: 0.0).settled is True
     outside = iter([100.0, 100.1, 100.3, 100.6, 100.9])
     ticks = iter([0.0, 1.0, 2.0, 3.0, 11.0])
     result = settle(lambda: Reading(next(outside)), rule, clock=lambda: next(ticks))
     assert (result.settled, result.count) == (False, 4)
+
+
+def test_settle_trend_refuses_a_slow_creep():
+    # Each three readings of a creep of 0.1 V a reading agree within 0.2 % of 100 V, but the
+    # mean keeps moving: with the trend check that is not settled; a flat run is.
+    from fieldtool.meters.parse import Reading
+
+    creep = iter([99.5 + 0.1 * i for i in range(40)])
+    ticks = iter([0.25 * i for i in range(80)])
+    rule = SettleRule(count=3, percent=0.2, volts=0.0, timeout_s=5.0)
+    result = settle(lambda: Reading(next(creep)), rule, clock=lambda: next(ticks))
+    assert result.settled is False
+    flat = iter([99.0, 100.0, 100.02, 100.01, 100.0, 100.02, 100.01, 100.0])
+    result = settle(lambda: Reading(next(flat)), rule, clock=lambda: 0.0)
+    assert (result.settled, result.count, result.volts) == (True, 7, 100.01)
 
 
 def test_command_delay_spaces_out_scpi_commands():

@@ -1,0 +1,146 @@
+"""Ranking and probing: properties any Bayesian diagnosis must keep, and plain cases.
+
+Properties (Bayes' rule and information theory, e.g. Cover & Thomas, *Elements of
+Information Theory*, 2nd ed., 2006, §2.5 and §2.6): posteriors sum to 1; the expected
+posterior entropy after a reading never exceeds the current one (information gain ≥ 0);
+a reading equal to the healthy expectation never raises a fault's odds against healthy.
+"""
+
+import numpy as np
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from fieldtool.core import diagnosis as dg
+from fieldtool.core.diagnosis import chi2_sf, diagnose
+from fieldtool.core.dictionary import build
+from fieldtool.core.errors import InputError
+from fieldtool.core.expect import expect
+from fieldtool.core.faults import parse_fault
+from fieldtool.core.readings import NodeReading
+from tests.conftest import make_profile
+
+PROFILE = make_profile(load={"ohms": 10000.0})
+
+
+@pytest.fixture(scope="module")
+def d():
+    return build(PROFILE)
+
+
+def _readings(d, values: dict) -> list[NodeReading]:
+    return [NodeReading(n, v) for n, v in values.items()]
+
+
+SETTINGS = settings(
+    max_examples=25, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
+)
+
+
+@SETTINGS
+@given(data=st.data())
+def test_posterior_sums_to_one_and_gains_are_not_negative(d, data):
+    nodes = data.draw(st.lists(st.sampled_from(d.nodes), unique=True, max_size=4))
+    values = {n: data.draw(st.floats(-30.0, 30.0)) for n in nodes}
+    result = diagnose(d, _readings(d, values))
+    total = sum(s.probability for s in result.suspects)
+    assert total == pytest.approx(1.0, abs=1e-9)
+    probs = [s.probability for s in result.suspects]
+    assert probs == sorted(probs, reverse=True)
+    assert all(g >= 0.0 for g in result.gains.values())
+    assert set(result.gains) == set(d.nodes) - set(nodes)
+
+
+@SETTINGS
+@given(data=st.data())
+def test_expected_entropy_never_exceeds_current(d, data):
+    nodes = data.draw(st.lists(st.sampled_from(d.nodes), unique=True, max_size=3))
+    values = {n: data.draw(st.floats(-30.0, 30.0)) for n in nodes}
+    result = diagnose(d, _readings(d, values))
+    post = np.array([s.probability for s in result.suspects])
+    h_now = float(-(post[post > 0] * np.log2(post[post > 0])).sum())
+    # recompute the raw expectation (before any clamping) for one unmeasured node
+    free = [n for n in d.nodes if n not in nodes]
+    j = d.node_index(data.draw(st.sampled_from(free)))
+    index = {s.key: s.probability for s in result.suspects}
+    w = np.array([index[d.hypotheses[h].key] for h in d.row_hypothesis])
+    counts = np.bincount(d.row_hypothesis)
+    w = w / counts[d.row_hypothesis]
+    mu = d.mean[:, j]
+    sd = np.sqrt(d.sigma[:, j] ** 2 + d.meter_sigma(mu) ** 2)
+    expected = dg._expected_entropy(mu, sd, w / w.sum(), d.row_hypothesis, len(d.hypotheses))
+    assert expected <= h_now + 1e-6
+
+
+@SETTINGS
+@given(nodes=st.lists(st.integers(0, 6), unique=True, min_size=1, max_size=7))
+def test_healthy_readings_never_favour_a_fault(d, nodes):
+    healthy = d.rows_of("healthy")[0]
+    readings = [NodeReading(d.nodes[j], float(d.mean[healthy, j])) for j in nodes]
+    prior = diagnose(d, [])
+    after = diagnose(d, readings)
+    p0 = {s.key: s.probability for s in prior.suspects}
+    p1 = {s.key: s.probability for s in after.suspects}
+    for key in p1:
+        if key == "healthy":
+            continue
+        assert p1[key] / p1["healthy"] <= p0[key] / p0["healthy"] * (1 + 1e-9)
+        assert p1[key] <= p1["healthy"]
+
+
+@pytest.mark.parametrize("spec", ["D3:open", "D4:open", "C3:short", "D2:short", "C5:open"])
+def test_guided_probing_finds_hard_faults_from_the_engine_s_own_readings(d, spec):
+    truth = {n.node: n.volts for n in expect(PROFILE, fault=parse_fault(spec, PROFILE)).nodes}
+    readings = []
+    while (result := diagnose(d, readings)).next_probe and len(readings) < 7:
+        readings.append(NodeReading(result.next_probe, truth[result.next_probe]))
+    members = {m for a in result.ambiguity for m in a.members}
+    assert result.top.key == spec or spec in members
+    assert result.top.probability > 0.45
+    assert not result.fit.no_fit
+
+
+def test_readings_no_hypothesis_explains_are_flagged(d):
+    result = diagnose(d, _readings(d, {"S1": 40.0, "S2": -7.0, "S3": 3.0}))
+    assert result.fit.no_fit
+    assert "no hypothesis explains these readings" in result.fit.text
+    assert result.fit.worst_node in {"S1", "S2", "S3"}
+
+
+def test_overload_is_noted_not_used(d):
+    result = diagnose(d, [NodeReading("S3", None)])
+    assert result.ignored == ("S3: OL (over range) carries no value; set a higher range",)
+    assert result.top.key == "healthy"
+
+
+def test_unknown_or_repeated_nodes_are_refused(d):
+    with pytest.raises(InputError, match="node 'S9' is not on"):
+        diagnose(d, [NodeReading("S9", 1.0)])
+    with pytest.raises(InputError, match="read twice"):
+        diagnose(d, [NodeReading("S1", 1.0), NodeReading("S1", 1.1)])
+
+
+def test_json_shape(d):
+    out = diagnose(d, _readings(d, {"S3": 0.5})).to_json()
+    assert {"suspects", "next_probe", "ambiguity", "fit"} <= set(out)
+    healthy = [s for s in out["suspects"] if s["mode"] == "healthy"]
+    assert healthy and healthy[0]["component"] is None
+    probs = [s["probability"] for s in out["suspects"]]
+    assert probs == sorted(probs, reverse=True)
+
+
+@pytest.mark.parametrize(
+    "x, k, expected",
+    # Abramowitz & Stegun 1964, Table 26.8 (χ² upper tail), and exp(−x/2) for k = 2.
+    [
+        (3.841, 1, 0.05),
+        (5.991, 2, 0.05),
+        (7.815, 3, 0.05),
+        (6.635, 1, 0.01),
+        (16.812, 6, 0.01),
+        (2.0, 2, np.exp(-1.0)),
+        (0.0, 4, 1.0),
+    ],
+)
+def test_chi2_tail_against_tables(x, k, expected):
+    assert chi2_sf(x, k) == pytest.approx(expected, rel=2e-3)
