@@ -27,6 +27,7 @@ from fieldtool.core.profile import Profile
 from fieldtool.meters.errors import MeterTimeout
 from fieldtool.meters.parse import Reading
 from fieldtool.meters.settings import MeterSettings, SettleRule
+from fieldtool.meters.settle import _agree, _steady  # the settle rule's own judgement
 from fieldtool.tui.view import volts_text
 
 SPARK_POINTS = 40
@@ -68,12 +69,6 @@ def open_meter(choice: MeterChoice, profile: Profile):
     return (ScpiMeter if s.protocol == "scpi" else StreamMeter)(transport, s)
 
 
-def agree(values: list[float], rule: SettleRule) -> bool:
-    """True when the values lie within the settle rule's band (percent·|mean| + volts)."""
-    centre = sum(values) / len(values)
-    return max(values) - min(values) <= rule.percent / 100.0 * abs(centre) + rule.volts
-
-
 @dataclass(frozen=True)
 class Settle:
     """Where the live value stands: the value, whether it settled, and its spread."""
@@ -86,7 +81,8 @@ class Settle:
 
 
 def settle_state(window: list[Reading], rule: SettleRule) -> Settle | None:
-    """Judge the readings since the probe landed by the settle rule (None before any)."""
+    """Judge the readings since the probe landed by the same rule ``meters.settle`` applies
+    (None before any reading)."""
     if not window:
         return None
     last = window[-1]
@@ -95,8 +91,11 @@ def settle_state(window: list[Reading], rule: SettleRule) -> Settle | None:
     if full and all(r.overload for r in recent):
         return Settle(None, True, True, None, len(window))
     numbers = [r.volts for r in recent if r.volts is not None]
+    earlier = [r.volts for r in window[-2 * rule.count : -rule.count] if r.volts is not None]
     spread = max(numbers) - min(numbers) if len(numbers) > 1 else None
-    ok = full and len(numbers) == rule.count and agree(numbers, rule)
+    ok = full and len(numbers) == rule.count and _agree(numbers, rule)
+    if ok and rule.trend:
+        ok = _steady(earlier, numbers, rule)  # a slow creep is not settled
     return Settle(last.volts, last.overload, ok, spread, len(window))
 
 
