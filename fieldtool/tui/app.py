@@ -11,6 +11,7 @@ from textual.app import App, SystemCommand
 from textual.binding import Binding
 from textual.message import Message
 from textual.screen import Screen
+from textual.worker import Worker, WorkerState
 
 from fieldtool.core import history as hist
 from fieldtool.core.dictionary import FaultDictionary
@@ -193,6 +194,19 @@ class FieldtoolApp(App):
         if not self.save_error_shown:
             self.save_error_shown = True
             self.push_screen(ErrorDialog(message.error))
+
+    def on_worker_state_changed(self, event: Worker.StateChanged) -> None:
+        """A worker that failed shows its error in a dialog, never a traceback."""
+        if event.state != WorkerState.ERROR:
+            return
+        error = event.worker.error
+        if not isinstance(error, FieldtoolError):
+            error = FieldtoolError(
+                f"{type(error).__name__}: {error}. Readings already taken are saved; "
+                "please report this with the board's profile.",
+                title="Unexpected error",
+            )
+        self.show_error(error)
 
     # --- app-wide actions ----------------------------------------------------------------
 

@@ -72,3 +72,21 @@ def test_demo_fault_is_drawn_from_the_catalog_by_seed(profile):
     assert all(f.key in keys and f.key != "healthy" for f in drawn)
     assert tui_cmd.demo_fault(profile, 3) == tui_cmd.demo_fault(profile, 3)
     assert len({f.key for f in drawn}) > 6  # seeds spread over the catalog
+
+
+async def test_a_failing_worker_shows_a_dialog_not_a_traceback(tmp_path):
+    from fieldtool.tui.app import make_app
+    from fieldtool.tui.dialogs import ErrorDialog
+    from tests.tui.conftest import until
+
+    def broken() -> None:
+        raise ZeroDivisionError("a bug")
+
+    app = make_app(logs_dir=tmp_path)
+    async with app.run_test(size=(80, 24)) as pilot:
+        app.run_worker(broken, thread=True, exit_on_error=False)
+        await until(pilot, lambda: isinstance(app.screen, ErrorDialog), what="error dialog")
+        assert app.screen.error.title == "Unexpected error"
+        assert "ZeroDivisionError: a bug" in app.screen.error.message
+        await pilot.press("escape")
+        assert not isinstance(app.screen, ErrorDialog)
