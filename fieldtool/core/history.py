@@ -1,7 +1,9 @@
 """Board histories: one JSON Lines file per board serial, grouped by profile.
 
 Layout: ``<logs>/<profile-name>/<serial>.jsonl``. Every line is one record carrying
-``schema``, ``id``, ``time``, ``board``, ``profile`` and ``kind``. A line is appended with a
+``schema``, ``id``, ``time``, ``board``, ``profile`` and ``kind``, and, since sessions from two
+terminals can interleave in one file, the ``session`` id it belongs to (records written before
+that field existed have none and are grouped by position). A line is appended with a
 single ``os.write`` under an exclusive ``flock`` and fsynced before ``append`` returns, so
 two processes never interleave and a crash can at worst leave one torn last line, which
 readers report as damaged and leave on disk untouched.
@@ -14,283 +16,89 @@ HistoryError(FieldtoolError)
 
 from __future__ import annotations
 
-import dataclasses
 import errno
 import json
-import math
 import os
 import unicodedata
 import uuid
-from collections.abc import Mapping
-from dataclasses import dataclass, field
-from datetime import UTC, datetime
+from collections.abc import Mapping, Sequence
+from datetime import UTC, datetime, timedelta
 from pathlib import Path
-from typing import Any, ClassVar
 
-from fieldtool.core.errors import FieldtoolError
+from fieldtool.core.history_events import (
+    EVENT_TYPES,
+    OUTCOMES,
+    Action,
+    BadNameError,
+    Diagnosis,
+    Event,
+    HistoryError,
+    NotFoundError,
+    Reading,
+    SaveError,
+    SessionClosed,
+    SessionOpened,
+    Suspect,
+    Verification,
+    event_fields,
+    event_from_fields,
+)
 from fieldtool.core.history_io import append_lines, fsync_dir, locked_file
+from fieldtool.core.history_records import (
+    SCHEMA,
+    BoardHistory,
+    Damaged,
+    Record,
+    format_time,
+    loads_line,
+    now_utc,
+    parse_lines,
+    parse_record,
+    record_id_time,
+    time_key,
+)
 
-SCHEMA = 1
+__all__ = [
+    "ENV_VAR",
+    "EVENT_TYPES",
+    "OUTCOMES",
+    "SCHEMA",
+    "Action",
+    "BadNameError",
+    "BoardHistory",
+    "Damaged",
+    "Diagnosis",
+    "Event",
+    "HistoryError",
+    "NotFoundError",
+    "Reading",
+    "Record",
+    "SaveError",
+    "SessionClosed",
+    "SessionOpened",
+    "Suspect",
+    "Verification",
+    "append",
+    "append_many",
+    "board_files",
+    "board_path",
+    "check_name",
+    "event_fields",
+    "event_from_fields",
+    "format_time",
+    "last_session_open",
+    "loads_line",
+    "now_utc",
+    "parse_lines",
+    "parse_record",
+    "read_board",
+    "read_file",
+    "record_id_time",
+    "resolve_logs_dir",
+    "time_key",
+]
+
 ENV_VAR = "FIELDTOOL_LOGS"
-OUTCOMES = ("fixed", "not-fixed", "escalated")
-_BASE_KEYS = ("schema", "id", "time", "board", "profile", "kind")
-
-
-class HistoryError(FieldtoolError):
-    """A board history that cannot be read or written."""
-
-    title = "History"
-
-
-class BadNameError(HistoryError):
-    """A board serial or profile name that is unsafe as a file name."""
-
-    title = "Bad board serial"
-
-
-class SaveError(HistoryError):
-    """A record that could not be saved; nothing was written."""
-
-    title = "History not saved"
-
-
-class NotFoundError(HistoryError):
-    """No history exists for the board or profile asked for."""
-
-    title = "No history"
-
-
-# --- events -------------------------------------------------------------------------------
-
-
-@dataclass(frozen=True)
-class SessionOpened:
-    """A technician starts working on a board."""
-
-    kind: ClassVar[str] = "session-opened"
-    technician: str
-    profile_hash: str
-    tool_version: str
-    session_id: str = field(default_factory=lambda: uuid.uuid4().hex)
-    ambient_c: float | None = None
-
-
-@dataclass(frozen=True)
-class Reading:
-    """A node voltage measured during diagnosis; ``volts`` is None on overload."""
-
-    kind: ClassVar[str] = "reading"
-    node: str
-    volts: float | None
-    unit: str = "V"
-    source: str = "typed"
-    spread: float | None = None
-    overload: bool = False
-
-    def __post_init__(self) -> None:
-        _check_measurement(self)
-
-
-@dataclass(frozen=True)
-class Verification(Reading):
-    """A node voltage measured after a repair to confirm it (same fields as a reading)."""
-
-    kind: ClassVar[str] = "verification"
-
-
-@dataclass(frozen=True)
-class Suspect:
-    """One ranked suspect: a part, how it failed, and its probability."""
-
-    designator: str
-    mode: str
-    probability: float
-
-
-@dataclass(frozen=True)
-class Diagnosis:
-    """The top suspects the engine ranked from the readings so far."""
-
-    kind: ClassVar[str] = "diagnosis"
-    suspects: tuple[Suspect, ...]
-
-
-@dataclass(frozen=True)
-class Action:
-    """Something done to one part: replaced, resoldered, cleaned."""
-
-    kind: ClassVar[str] = "action"
-    designator: str
-    done: str
-    mode: str | None = None
-    part_used: str | None = None
-    note: str = ""
-
-
-@dataclass(frozen=True)
-class SessionClosed:
-    """The session ends with an outcome: fixed, not-fixed or escalated."""
-
-    kind: ClassVar[str] = "session-closed"
-    outcome: str
-
-    def __post_init__(self) -> None:
-        if self.outcome not in OUTCOMES:
-            raise HistoryError(
-                f"unknown outcome {self.outcome!r}; use one of {', '.join(OUTCOMES)}"
-            )
-
-
-Event = SessionOpened | Reading | Verification | Diagnosis | Action | SessionClosed
-EVENT_TYPES: dict[str, type] = {
-    t.kind: t for t in (SessionOpened, Reading, Verification, Diagnosis, Action, SessionClosed)
-}
-
-
-def _check_measurement(m: Reading) -> None:
-    if m.volts is None and not m.overload:
-        raise HistoryError(f"{m.kind} at {m.node}: no volts given and not marked overload")
-    if m.volts is not None and not math.isfinite(m.volts):
-        raise HistoryError(f"{m.kind} at {m.node}: volts must be a finite number")
-
-
-def event_fields(event: Event) -> dict[str, Any]:
-    """The JSON fields an event contributes to its record."""
-    return dataclasses.asdict(event)
-
-
-def event_from_fields(kind: str, fields: Mapping[str, Any]) -> Event | None:
-    """Rebuild an event from stored fields, or None if the kind or fields are unknown."""
-    cls = EVENT_TYPES.get(kind)
-    if cls is None:
-        return None
-    names = {f.name for f in dataclasses.fields(cls)}
-    args = {k: v for k, v in fields.items() if k in names}
-    if cls is Diagnosis:
-        args["suspects"] = tuple(Suspect(**s) for s in args.get("suspects", ()))
-    try:
-        return cls(**args)
-    except (TypeError, HistoryError):
-        return None
-
-
-# --- records ------------------------------------------------------------------------------
-
-
-@dataclass(frozen=True)
-class Record:
-    """One stored line: the common envelope plus the kind's own fields."""
-
-    schema: int
-    id: str
-    time: str
-    board: str
-    profile: str
-    kind: str
-    fields: dict[str, Any]
-    newer_schema: bool = False
-
-    def to_dict(self) -> dict[str, Any]:
-        """The record as it is stored, unknown fields included."""
-        base = {k: getattr(self, k) for k in _BASE_KEYS}
-        return {**base, **self.fields}
-
-    @property
-    def event(self) -> Event | None:
-        """The typed event, or None for a kind or schema this tool does not know."""
-        return None if self.newer_schema else event_from_fields(self.kind, self.fields)
-
-
-@dataclass(frozen=True)
-class Damaged:
-    """A line that is not a readable record, left on disk as it is."""
-
-    path: str
-    line: int
-    reason: str
-    text: str
-
-
-@dataclass(frozen=True)
-class BoardHistory:
-    """Every readable record of one board, oldest first, and the lines that were not."""
-
-    board: str
-    events: tuple[Record, ...]
-    damaged: tuple[Damaged, ...]
-
-
-def now_utc() -> str:
-    """The current UTC time as ISO 8601 with a Z suffix."""
-    return format_time(datetime.now(UTC))
-
-
-def format_time(moment: datetime) -> str:
-    """A datetime as UTC ISO 8601 with microseconds and a Z suffix."""
-    if moment.tzinfo is None:
-        moment = moment.replace(tzinfo=UTC)
-    return moment.astimezone(UTC).strftime("%Y-%m-%dT%H:%M:%S.%fZ")
-
-
-def time_key(stamp: str) -> str:
-    """A sort key for a stored time; other ISO 8601 spellings are normalised to ours."""
-    if len(stamp) == 27 and stamp[-1] == "Z":
-        return stamp
-    try:
-        return format_time(datetime.fromisoformat(stamp))
-    except ValueError:
-        return stamp
-
-
-def parse_record(text: str) -> Record | str:
-    """One JSON line as a Record, or the reason it is not one."""
-    try:
-        obj = json.loads(text)
-    except ValueError:
-        return "not valid JSON (torn or corrupted line)"
-    if not isinstance(obj, dict):
-        return "not a JSON object"
-    schema = obj.get("schema")
-    if not isinstance(schema, int) or isinstance(schema, bool):
-        return "no schema version"
-    for key in ("id", "time", "kind"):
-        if not isinstance(obj.get(key), str) or not obj[key]:
-            return f"missing {key}"
-    fields = {k: v for k, v in obj.items() if k not in _BASE_KEYS}
-    return Record(
-        schema=schema,
-        id=obj["id"],
-        time=obj["time"],
-        board=str(obj.get("board", "")),
-        profile=str(obj.get("profile", "")),
-        kind=obj["kind"],
-        fields=fields,
-        newer_schema=schema > SCHEMA,
-    )
-
-
-def parse_lines(data: bytes, path: str) -> tuple[list[tuple[Record, str]], list[Damaged]]:
-    """Split file bytes into (record, raw line) pairs and damaged lines."""
-    records: list[tuple[Record, str]] = []
-    damaged: list[Damaged] = []
-    lines = data.split(b"\n")
-    torn_tail = bool(lines[-1])
-    for number, raw in enumerate(lines, start=1):
-        if not raw.strip():
-            continue
-        try:
-            text = raw.decode("utf-8")
-        except UnicodeDecodeError:
-            damaged.append(Damaged(path, number, "not UTF-8", raw.decode("utf-8", "replace")))
-            continue
-        parsed = parse_record(text)
-        if isinstance(parsed, Record):
-            records.append((parsed, text))
-        else:
-            last = number == len(lines) and torn_tail
-            reason = "torn last line (no newline)" if last else parsed
-            damaged.append(Damaged(path, number, reason, text))
-    return records, damaged
 
 
 # --- names and places ---------------------------------------------------------------------
@@ -351,6 +159,42 @@ def _save_error(what: str, path: Path, exc: OSError) -> SaveError:
     )
 
 
+def _make_record(
+    profile: str, serial: str, event: Event, stamp: str, session: str | None, record_id: str
+) -> Record:
+    if type(event) not in EVENT_TYPES.values():
+        raise HistoryError(f"cannot store {type(event).__name__}: not a history event")
+    if isinstance(event, SessionOpened):
+        session = event.session_id  # an opening record names its own session
+    return Record(
+        schema=SCHEMA,
+        id=record_id,
+        time=stamp,
+        board=serial,
+        profile=profile,
+        kind=event.kind,
+        fields=event_fields(event),
+        session=session,
+    )
+
+
+def _store(path: Path, records: list[Record]) -> None:
+    lines = [json.dumps(r.to_dict(), ensure_ascii=False, separators=(",", ":")) for r in records]
+    try:
+        with locked_file(path) as fd:
+            new_file = os.fstat(fd).st_size == 0
+            append_lines(fd, lines)
+            if new_file:
+                fsync_dir(path.parent)
+    except OSError as exc:
+        if len(records) == 1:
+            raise _save_error(records[0].kind, path, exc) from None
+        raise SaveError(
+            f"could not save {len(records)} records to {path}: {_reason(exc)}; nothing was "
+            "written, all of them are kept in memory"
+        ) from None
+
+
 def append(
     logs_dir: Path | str,
     profile: str,
@@ -359,30 +203,54 @@ def append(
     *,
     time: datetime | None = None,
     record_id: str | None = None,
+    session: str | None = None,
 ) -> Record:
-    """Durably append one event to a board's history and return the stored record."""
+    """Durably append one event to a board's history and return the stored record.
+
+    Args:
+        session: the id of the session the event belongs to (``SessionOpened.session_id``);
+            pass it on every record so sessions from two terminals never mix.
+    """
     path = board_path(logs_dir, profile, serial)
-    if type(event) not in EVENT_TYPES.values():
-        raise HistoryError(f"cannot store {type(event).__name__}: not a history event")
-    record = Record(
-        schema=SCHEMA,
-        id=record_id or uuid.uuid4().hex,
-        time=format_time(time) if time else now_utc(),
-        board=serial,
-        profile=profile,
-        kind=event.kind,
-        fields=event_fields(event),
-    )
-    line = json.dumps(record.to_dict(), ensure_ascii=False, separators=(",", ":"))
-    try:
-        with locked_file(path) as fd:
-            new_file = os.fstat(fd).st_size == 0
-            append_lines(fd, [line])
-            if new_file:
-                fsync_dir(path.parent)
-    except OSError as exc:
-        raise _save_error(event.kind, path, exc) from None
+    stamp = format_time(time) if time else now_utc()
+    record = _make_record(profile, serial, event, stamp, session, record_id or uuid.uuid4().hex)
+    _store(path, [record])
     return record
+
+
+def append_many(
+    logs_dir: Path | str,
+    profile: str,
+    serial: str,
+    events: Sequence[Event],
+    *,
+    time: datetime | None = None,
+    session: str | None = None,
+) -> tuple[Record, ...]:
+    """Append several events with one write: all are saved or none is.
+
+    Each record is stamped one microsecond after the one before, so they keep their order.
+    Without ``session``, the session opened among ``events`` (if any) is used.
+    """
+    if not events:
+        return ()
+    path = board_path(logs_dir, profile, serial)
+    if session is None:
+        session = next((e.session_id for e in events if isinstance(e, SessionOpened)), None)
+    start = time.astimezone(UTC) if time and time.tzinfo else (time or datetime.now(UTC))
+    records = [
+        _make_record(
+            profile,
+            serial,
+            event,
+            format_time(start + timedelta(microseconds=i)),
+            session,
+            uuid.uuid4().hex,
+        )
+        for i, event in enumerate(events)
+    ]
+    _store(path, records)
+    return tuple(records)
 
 
 # --- reading ------------------------------------------------------------------------------

@@ -9,7 +9,7 @@ import errno
 import fcntl
 import os
 import uuid
-from collections.abc import Iterator
+from collections.abc import Iterator, Sequence
 from contextlib import contextmanager
 from pathlib import Path
 
@@ -54,10 +54,16 @@ def read_locked(fd: int) -> bytes:
     return os.pread(fd, size, 0) if size else b""
 
 
-def append_lines(fd: int, lines: list[str]) -> None:
+def _encode(lines: Sequence[str | bytes]) -> bytes:
+    """Lines (text, or bytes kept exactly as they are) joined with newlines."""
+    raw = [x if isinstance(x, bytes) else x.encode("utf-8", "surrogateescape") for x in lines]
+    return b"\n".join(raw) + b"\n" if raw else b""
+
+
+def append_lines(fd: int, lines: Sequence[str | bytes]) -> None:
     """Append whole lines with one write and fsync; undo on failure."""
     size = os.fstat(fd).st_size
-    data = "".join(line + "\n" for line in lines).encode("utf-8", "surrogateescape")
+    data = _encode(lines)
     if size and os.pread(fd, 1, size - 1) != b"\n":
         data = b"\n" + data  # keep a torn tail on its own line, never merged into ours
     try:
@@ -73,13 +79,12 @@ def append_lines(fd: int, lines: list[str]) -> None:
         raise
 
 
-def rewrite(path: Path, lines: list[str]) -> None:
+def rewrite(path: Path, lines: Sequence[str | bytes]) -> None:
     """Replace a file's content atomically: temp file in the same folder, fsync, replace."""
     tmp = path.with_name(f".{path.name}.{uuid.uuid4().hex}.tmp")
     fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL | os.O_CLOEXEC, 0o644)
     try:
-        data = "".join(line + "\n" for line in lines).encode("utf-8", "surrogateescape")
-        view = memoryview(data)
+        view = memoryview(_encode(lines))
         while view:
             view = view[os.write(fd, view) :]
         os.fsync(fd)

@@ -1,0 +1,204 @@
+"""History commands: ``history``, ``logs merge``, ``fleet``, ``report`` and ``record``.
+
+Each is a thin shell over ``fieldtool.core`` (history store, merge, fleet view, report).
+The logs folder is ``--logs DIR``, else ``$FIELDTOOL_LOGS``, else ``./logs``.
+"""
+
+from __future__ import annotations
+
+import argparse
+import difflib
+import json
+import os
+from pathlib import Path
+
+from fieldtool.commands.history_text import fleet_text, safe, timeline
+from fieldtool.core.errors import InputError
+from fieldtool.core.fleet import fleet_view
+from fieldtool.core.history import (
+    ENV_VAR,
+    OUTCOMES,
+    HistoryError,
+    NotFoundError,
+    check_name,
+    read_board,
+    resolve_logs_dir,
+)
+from fieldtool.core.history_merge import merge
+from fieldtool.core.history_sessions import confirmed_in, group_sessions
+
+LOGS_HELP = f"logs folder (default: ${ENV_VAR}, else ./logs)"
+
+
+def register(subparsers: argparse._SubParsersAction) -> None:
+    """Add the history subcommands."""
+    p = subparsers.add_parser(
+        "history", help="one board's timeline", description="A board's history, oldest first."
+    )
+    p.add_argument("serial", help="board serial, e.g. TG-0042")
+    p.add_argument("--logs", help=LOGS_HELP)
+    p.add_argument("--json", action="store_true", help="one JSON object on stdout")
+    p.set_defaults(handler=run_history)
+
+    logs = subparsers.add_parser("logs", help="manage logs folders (merge)")
+    logs.set_defaults(handler=_logs_without_subcommand)
+    actions = logs.add_subparsers(dest="logs_command", parser_class=subparsers._parser_class)
+    m = actions.add_parser(
+        "merge",
+        help="merge another logs folder (e.g. a laptop's) into this one",
+        description="Union of records by id; merging twice changes nothing; nothing is "
+        "dropped or rewritten; the same id with different content is kept and reported.",
+    )
+    m.add_argument("src_dir", help="the logs folder to merge from (it is not changed)")
+    m.add_argument("--logs", help=f"the folder to merge into (default: ${ENV_VAR}, else ./logs)")
+    m.add_argument("--json", action="store_true", help="one JSON object on stdout")
+    m.set_defaults(handler=run_merge)
+
+    f = subparsers.add_parser(
+        "fleet",
+        help="which parts fail on one board type, across its boards",
+        description="Confirmed failures by designator and mode, repeat repairs, time between "
+        "repairs and boards with recurring faults, for one profile.",
+    )
+    f.add_argument("profile", help="profile name (e.g. tidegauge-apd-bias) or its .toml file")
+    f.add_argument("--logs", help=LOGS_HELP)
+    f.add_argument("--json", action="store_true", help="one JSON object on stdout")
+    f.set_defaults(handler=run_fleet)
+
+    from fieldtool.commands import history_record, history_report
+
+    history_report.register(subparsers, LOGS_HELP)
+    history_record.register(subparsers, LOGS_HELP, OUTCOMES)
+
+
+def _logs_without_subcommand(args: argparse.Namespace) -> int:
+    raise InputError("'fieldtool logs' needs a subcommand: merge (see 'fieldtool logs --help')")
+
+
+def existing_logs(option: str | None) -> Path:
+    """The logs folder to read; a clear error when it is missing or not a folder."""
+    path = resolve_logs_dir(option, os.environ)
+    if not path.exists():
+        raise NotFoundError(f"logs folder {path} does not exist; pass --logs DIR or set {ENV_VAR}")
+    if not path.is_dir():
+        raise HistoryError(f"logs folder {path} is not a folder; pass --logs DIR")
+    return path
+
+
+def _known_serials(logs: Path) -> list[str]:
+    serials = set()
+    for folder in logs.iterdir():
+        if folder.is_dir() and not folder.name.startswith("."):
+            serials.update(p.stem for p in folder.glob("*.jsonl"))
+    return sorted(serials)
+
+
+def load_board(logs: Path, serial: str):
+    """A board's history; an unknown serial names the closest ones that exist."""
+    check_name(serial)
+    try:
+        return read_board(logs, serial)
+    except NotFoundError:
+        close = difflib.get_close_matches(serial, _known_serials(logs), n=3)
+        hint = f"; did you mean {', '.join(close)}?" if close else ""
+        raise NotFoundError(f"no history for board {serial!r} in {logs}{hint}") from None
+
+
+def _conflicts(history) -> list[str]:
+    seen: dict[str, dict] = {}
+    clashes = []
+    for record in history.events:
+        body = record.to_dict()
+        if record.id in seen and seen[record.id] != body and record.id not in clashes:
+            clashes.append(record.id)
+        seen.setdefault(record.id, body)
+    return clashes
+
+
+def run_history(args: argparse.Namespace) -> int:
+    """Handle ``fieldtool history``."""
+    history = load_board(existing_logs(args.logs), args.serial)
+    sessions = group_sessions(history.events)
+    conflicts = _conflicts(history)
+    if not args.json:
+        print(timeline(history, sessions, conflicts))
+        return 0
+    out = {
+        "board": history.board,
+        "events": [r.to_dict() for r in history.events],
+        "damaged": [vars(d) for d in history.damaged],
+        "sessions": [
+            {
+                "id": s.id,
+                "start": s.start,
+                "profile": s.profile,
+                "outcome": s.outcome,
+                "records": [r.id for r in s.records],
+                "confirmed": [vars(c) for c in confirmed_in(s)],
+            }
+            for s in sessions
+        ],
+        "conflicts": conflicts,
+    }
+    print(json.dumps(out, indent=2, ensure_ascii=False))
+    return 0
+
+
+def run_merge(args: argparse.Namespace) -> int:
+    """Handle ``fieldtool logs merge``."""
+    dst = resolve_logs_dir(args.logs, os.environ)
+    if dst.exists() and not dst.is_dir():
+        raise HistoryError(f"cannot merge into {dst}: it is a file, not a logs folder")
+    report = merge(args.src_dir, dst)
+    if args.json:
+        out = {
+            "src": str(args.src_dir),
+            "dst": str(dst),
+            "added": report.added,
+            "already_present": report.already_present,
+            "boards": report.boards,
+            "conflicts": [vars(c) for c in report.conflicts],
+            "damaged": [vars(d) for d in report.damaged],
+            "skipped": list(report.skipped),
+        }
+        print(json.dumps(out, indent=2, ensure_ascii=False))
+        return 0
+    lines = [
+        f"merged {safe(args.src_dir)} into {safe(dst)}: {report.added} new record(s) on "
+        f"{report.boards} board(s), {report.already_present} already present"
+    ]
+    if report.conflicts:
+        lines.append(
+            f"{len(report.conflicts)} conflict(s): same id, different content; both versions kept:"
+        )
+        lines += [f"  {safe(c.profile)}/{safe(c.board)}: {safe(c.id)}" for c in report.conflicts]
+    if report.damaged:
+        lines.append(
+            f"{len(report.damaged)} damaged line(s) in the source, not merged "
+            "(left there untouched):"
+        )
+        lines += [f"  {safe(d.path)}:{d.line}: {safe(d.reason)}" for d in report.damaged]
+    if report.skipped:
+        lines.append("skipped:")
+        lines += [f"  {safe(s)}" for s in report.skipped]
+    print("\n".join(lines))
+    return 0
+
+
+def profile_name_of(text: str) -> str:
+    """A profile name from a name or a ``.toml`` path."""
+    if text.endswith(".toml"):
+        from fieldtool.core.profile import load_profile
+
+        return load_profile(text).name
+    return text
+
+
+def run_fleet(args: argparse.Namespace) -> int:
+    """Handle ``fieldtool fleet``."""
+    view = fleet_view(existing_logs(args.logs), profile_name_of(args.profile))
+    if args.json:
+        print(json.dumps(view.to_json(), indent=2, ensure_ascii=False))
+    else:
+        print(fleet_text(view))
+    return 0

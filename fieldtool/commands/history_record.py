@@ -1,0 +1,217 @@
+"""``fieldtool record``: log a whole bench session from a readings file, non-interactively.
+
+The session holds the readings, the diagnosis the engine gives for them (with this board
+type's fleet history as priors), what was done, readings after the repair and the outcome,
+written with one append so it is saved whole or not at all.
+
+``--action`` says which part, how it had failed and what was done, in any order:
+``"D5:open replaced"``, ``"replaced C4:short"``, ``"CR105:leaky resoldered"`` (the mode after
+the colon is a catalogued failure mode, as in fault specs; a severity such as
+``C3:lowcap=0.3`` is accepted and only the mode is kept). A part without a mode
+(``"D5 reflowed"``) is logged but confirms no failure. Give one ``--action`` per part.
+"""
+
+from __future__ import annotations
+
+import argparse
+import getpass
+import json
+import os
+from pathlib import Path
+
+from fieldtool import __version__
+from fieldtool.commands.history_text import safe
+from fieldtool.core.circuit import default_designators
+from fieldtool.core.errors import FieldtoolError, InputError
+from fieldtool.core.faults import BOARD_TARGETS, display_name, parse_fault
+from fieldtool.core.fleet import confirmed_failures
+from fieldtool.core.history import (
+    Action,
+    Diagnosis,
+    HistoryError,
+    Reading,
+    SessionClosed,
+    SessionOpened,
+    Suspect,
+    Verification,
+    append_many,
+    board_path,
+    check_name,
+    resolve_logs_dir,
+)
+from fieldtool.core.profile import Profile, load_profile
+from fieldtool.core.readings import NodeReading, load_readings
+
+TOP_SUSPECTS = 5  # suspects kept in the stored diagnosis snapshot
+
+
+def register(subparsers: argparse._SubParsersAction, logs_help: str, outcomes) -> None:
+    """Add the ``record`` subcommand."""
+    p = subparsers.add_parser(
+        "record",
+        help="log a bench session from a readings CSV (readings, diagnosis, action, outcome)",
+        description=__doc__.split("\n\n")[1],
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    p.add_argument("profile", help="board profile (.toml)")
+    p.add_argument("--board", required=True, help="board serial")
+    p.add_argument("--readings", required=True, help="readings CSV (node,volts[,ripple_vpp])")
+    p.add_argument(
+        "--action",
+        action="append",
+        metavar="TEXT",
+        help="what was done to which part, e.g. 'D5:open replaced' (repeat for more parts)",
+    )
+    p.add_argument("--part", help="part used (with a single --action), e.g. '1N4007 from stock'")
+    p.add_argument("--note", help="a note on the action (with a single --action)")
+    p.add_argument("--verify", metavar="FILE", help="readings CSV taken after the repair")
+    p.add_argument("--outcome", choices=outcomes, help="close the session with this outcome")
+    p.add_argument("--technician", help="who did the work (default: your login name)")
+    p.add_argument("--logs", help=logs_help)
+    p.add_argument("--json", action="store_true", help="one JSON object on stdout")
+    p.set_defaults(handler=run_record)
+
+
+def _target(word: str, profile: Profile) -> str | None:
+    """The default designator (or board target) a word names on this board, if any."""
+    low = word.lower()
+    if low in BOARD_TARGETS:
+        return low
+    for ref in default_designators(profile):
+        if low in (ref.lower(), display_name(profile, ref).lower()):
+            return ref
+    return None
+
+
+def parse_action(text: str, profile: Profile) -> Action:
+    """An action from words such as ``"D5:open replaced"`` (see module docstring)."""
+    words = text.split()
+    hits = []
+    for i, word in enumerate(words):
+        name, colon, mode = word.strip(",;.").partition(":")
+        target = _target(name, profile)
+        if target is not None:
+            hits.append((i, target, mode if colon else None))
+    if len(hits) != 1:
+        parts = ", ".join(display_name(profile, r) for r in default_designators(profile))
+        problem = "names no part on this board" if not hits else "names more than one part"
+        raise InputError(
+            f"--action {text!r} {problem}; write the part, optionally ':' and how it had "
+            f"failed, and what you did, e.g. 'D5:open replaced' or 'C4 resoldered'; one "
+            f"--action per part (parts: {parts}; board targets: {', '.join(BOARD_TARGETS)})"
+        )
+    i, target, mode_text = hits[0]
+    mode = None
+    if mode_text is not None:
+        if not mode_text.strip():
+            raise InputError(f"--action {text!r}: nothing after ':'; e.g. D5:open")
+        mode = parse_fault(f"{target}:{mode_text}", profile).mode
+    done = " ".join(words[:i] + words[i + 1 :]).strip() or "replaced"
+    return Action(designator=display_name(profile, target), done=done, mode=mode)
+
+
+def _engine():
+    try:
+        from fieldtool.core.diagnosis import diagnose
+        from fieldtool.core.dictionary import load_or_build
+        from fieldtool.core.priors import fleet_priors
+    except ImportError:
+        raise FieldtoolError(
+            "the diagnosis engine is not part of this install; 'record' needs it",
+            title="Not available",
+        ) from None
+    return diagnose, load_or_build, fleet_priors
+
+
+def _measurements(cls, readings: tuple[NodeReading, ...], source: str) -> list[Reading]:
+    return [
+        cls(
+            node=r.node,
+            volts=r.volts,
+            source=source,
+            overload=r.volts is None,
+            ripple_vpp=r.ripple_vpp,
+        )
+        for r in readings
+    ]
+
+
+def run_record(args: argparse.Namespace) -> int:
+    """Handle ``fieldtool record``."""
+    profile = load_profile(args.profile)
+    serial = check_name(args.board)
+    logs = resolve_logs_dir(args.logs, os.environ)
+    if logs.exists() and not logs.is_dir():
+        raise HistoryError(f"logs folder {logs} is not a folder; pass --logs DIR")
+    actions = [parse_action(text, profile) for text in args.action or []]
+    if (args.part or args.note) and len(actions) != 1:
+        raise InputError("--part and --note go with exactly one --action")
+    if actions and (args.part or args.note):
+        a = actions[0]
+        actions = [Action(a.designator, a.done, a.mode, args.part, args.note or "")]
+    diagnose, load_or_build, fleet_priors = _engine()
+    dictionary = load_or_build(profile)
+    readings = load_readings(args.readings, dictionary.nodes, profile.labels)
+    after = load_readings(args.verify, dictionary.nodes, profile.labels) if args.verify else ()
+    confirmed = confirmed_failures(logs, profile.name) if logs.is_dir() else {}
+    priors = fleet_priors(profile, dictionary.hypotheses, confirmed) if confirmed else None
+    diagnosis = diagnose(dictionary, readings, priors=priors)
+    top = diagnosis.suspects[:TOP_SUSPECTS]
+    snapshot = Diagnosis(tuple(Suspect(s.component or "", s.mode, s.probability) for s in top))
+    technician = args.technician or _login()
+    opened = SessionOpened(
+        technician=technician, profile_hash=profile.digest, tool_version=__version__
+    )
+    events = [
+        opened,
+        *_measurements(Reading, readings, f"file {Path(args.readings).name}"),
+        snapshot,
+        *actions,
+        *_measurements(
+            Verification, after, f"file {Path(args.verify).name}" if args.verify else ""
+        ),
+    ]
+    if args.outcome:
+        events.append(SessionClosed(outcome=args.outcome))
+    records = append_many(logs, profile.name, serial, events)
+    path = board_path(logs, profile.name, serial)
+    if args.json:
+        out = {
+            "board": serial,
+            "profile": profile.name,
+            "session": opened.session_id,
+            "file": str(path),
+            "records": [r.id for r in records],
+            "diagnosis": diagnosis.to_json(),
+            "priors": "fleet" if priors is not None else "published",
+            "actions": [
+                {"designator": a.designator, "mode": a.mode, "done": a.done} for a in actions
+            ],
+            "outcome": args.outcome,
+        }
+        print(json.dumps(out, indent=2, ensure_ascii=False))
+        return 0
+    lines = [
+        f"saved session {opened.session_id[:12]} for board {safe(serial)} ({profile.name}) in "
+        f"{path}: {len(readings)} reading(s), {len(actions)} action(s), {len(after)} after repair,"
+        f" outcome {args.outcome or 'none (session left open)'}",
+        "suspects ("
+        + ("priors from this fleet's confirmed failures" if priors else "published priors")
+        + "):",
+    ]
+    for s in top:
+        lines.append(
+            f"  {s.probability:6.1%}  {safe(s.words)}  "
+            f"(prior {s.prior:.2%}, {safe(s.prior_source)})"
+        )
+    if diagnosis.next_probe:
+        lines.append(f"next node worth probing: {diagnosis.next_probe}")
+    print("\n".join(lines))
+    return 0
+
+
+def _login() -> str:
+    try:
+        return getpass.getuser()
+    except (KeyError, OSError):
+        return "unknown"

@@ -1,0 +1,165 @@
+"""Plain-text views for the history commands: a board's timeline and the fleet summary."""
+
+from __future__ import annotations
+
+import unicodedata
+from typing import Any
+
+from fieldtool.core.fleet import FleetView
+from fieldtool.core.history import BoardHistory, Record, time_key
+from fieldtool.core.history_sessions import Session, confirmed_in
+
+LIST_LIMIT = 15  # rows per list in text output; --json has them all
+
+
+def safe(text: Any) -> str:
+    """Text from a history file made harmless for a terminal (no escape sequences)."""
+    return "".join(
+        c if unicodedata.category(c) not in ("Cc", "Cf") else f"\\x{ord(c):02x}" for c in str(text)
+    )
+
+
+def when(stamp: str) -> str:
+    """A stored time as ``2026-01-05 09:00`` (UTC)."""
+    key = time_key(stamp)
+    return f"{key[:10]} {key[11:16]}" if len(key) == 27 else safe(stamp)
+
+
+def _volts(value: Any, overload: Any = False) -> str:
+    if overload or value is None:
+        return "OL (over range)"
+    try:
+        return f"{float(value):.4g} V"
+    except (TypeError, ValueError):
+        return safe(value)
+
+
+def describe(record: Record) -> str:
+    """One record in a line of plain words."""
+    f = record.fields
+    kind = record.kind
+    if record.newer_schema:
+        return f"{safe(kind)} (from a newer fieldtool, schema {record.schema}; kept as is)"
+    if kind == "session-opened":
+        extra = f", {f['ambient_c']:g} °C" if isinstance(f.get("ambient_c"), int | float) else ""
+        return (
+            f"opened by {safe(f.get('technician', '?'))} (profile {safe(record.profile)}, "
+            f"fieldtool {safe(f.get('tool_version', '?'))}{extra})"
+        )
+    if kind in ("reading", "verification"):
+        label = "reading" if kind == "reading" else "verification (after repair)"
+        spread = f", spread {f['spread']:.3g} V" if isinstance(f.get("spread"), float) else ""
+        if isinstance(f.get("ripple_vpp"), int | float):
+            spread += f", ripple {f['ripple_vpp']:.3g} V p-p"
+        source = safe(f.get("source", "typed"))
+        value = _volts(f.get("volts"), f.get("overload"))
+        return f"{label} {safe(f.get('node'))} = {value} ({source}{spread})"
+    if kind == "diagnosis":
+        return "diagnosis: " + ", ".join(_suspect(s) for s in f.get("suspects", [])[:4])
+    if kind == "action":
+        mode = f" ({safe(f['mode'])})" if f.get("mode") else ""
+        part = f", part {safe(f['part_used'])}" if f.get("part_used") else ""
+        note = f" — {safe(f['note'])}" if f.get("note") else ""
+        return f"action: {safe(f.get('designator'))} {safe(f.get('done'))}{mode}{part}{note}"
+    if kind == "session-closed":
+        return f"closed: {safe(f.get('outcome'))}"
+    return safe(kind)
+
+
+def _suspect(s: Any) -> str:
+    if not isinstance(s, dict):
+        return "?"
+    name = " ".join(safe(s.get(k)) for k in ("designator", "mode") if s.get(k))
+    try:
+        return f"{name} {float(s.get('probability', 0)):.0%}"
+    except (TypeError, ValueError):
+        return name
+
+
+def timeline(history: BoardHistory, sessions: tuple[Session, ...], conflicts: list[str]) -> str:
+    """The board's history grouped by session, oldest first."""
+    real = [s for s in sessions if s.id is not None]
+    profiles = sorted({r.profile for r in history.events if r.profile})
+    lines = [
+        f"Board {safe(history.board)}: {len(real)} session(s), {len(history.events)} records"
+        f" (profile {', '.join(safe(p) for p in profiles) or '?'})"
+    ]
+    for s in sessions:
+        lines.append("")
+        if s.id is None:
+            lines.append("Records outside any session:")
+        else:
+            who = safe(s.opened.fields.get("technician", "?")) if s.opened else "?"
+            state = s.outcome or "open (not closed yet)"
+            lines.append(f"Session {when(s.start)} UTC · {who} · {state} · id {safe(s.id)[:12]}")
+        for record in s.records:
+            lines.append(f"  {when(record.time)[11:]}  {describe(record)}")
+        found = confirmed_in(s)
+        if found:
+            words = [
+                f"{safe(f.designator)} {safe(f.mode)}" + (" (verified)" if f.verified else "")
+                for f in found
+            ]
+            lines.append(f"  confirmed failure: {', '.join(words)}")
+    if conflicts:
+        lines += ["", "Record ids stored twice with different content (both kept, from a merge):"]
+        lines += [f"  {safe(c)}" for c in conflicts]
+    if history.damaged:
+        lines += ["", "Damaged lines (left on disk untouched, not used):"]
+        lines += [f"  {safe(d.path)}:{d.line}: {safe(d.reason)}" for d in history.damaged]
+    return "\n".join(lines)
+
+
+def _more(total: int) -> list[str]:
+    return [f"  ... and {total - LIST_LIMIT} more (--json lists all)"] if total > LIST_LIMIT else []
+
+
+def fleet_text(view: FleetView) -> str:
+    """The fleet summary for one profile."""
+    outcomes = ", ".join(f"{n} {k}" for k, n in view.outcomes.items()) or "none"
+    lines = [
+        f"Fleet {safe(view.profile)}: {view.boards} boards, {view.sessions} sessions ({outcomes}),"
+        f" {view.repairs} repairs",
+        "",
+        "Confirmed failures (an action naming a catalogued mode, in a session closed fixed):",
+    ]
+    if view.failures:
+        lines.append(f"  {'part':<10}{'mode':<12}{'repairs':>8}{'boards':>8}{'verified':>10}")
+        for f in view.failures[:LIST_LIMIT]:
+            lines.append(
+                f"  {safe(f.designator):<10}{safe(f.mode):<12}{f.count:>8}{f.boards:>8}"
+                f"{f.verified:>10}"
+            )
+        lines += _more(len(view.failures))
+    else:
+        lines.append("  none yet")
+    iv = view.intervals
+    lines += ["", "Time between repairs of one board:"]
+    if iv.count:
+        lines.append(
+            f"  {iv.count} intervals: median {iv.median_days:.1f} days, mean {iv.mean_days:.1f}"
+            f" days, shortest {iv.shortest_days:.1f} days"
+        )
+    else:
+        lines.append("  no board repaired twice yet")
+    lines += ["", "Repeat repairs (the same part repaired again on one board):"]
+    for r in view.repeat_repairs[:LIST_LIMIT]:
+        dates = ", ".join(when(t)[:10] for t in r.times)
+        lines.append(
+            f"  {safe(r.board)}: {safe(r.designator)} ×{len(r.times)} ({', '.join(r.modes)};"
+            f" {dates}); shortest gap {r.shortest_days:.1f} days"
+        )
+    lines += _more(len(view.repeat_repairs)) or ([] if view.repeat_repairs else ["  none"])
+    lines += ["", "Boards with recurring faults (two or more repairs):"]
+    for b in view.recurring_boards[:LIST_LIMIT]:
+        parts = ", ".join(
+            f"{safe(d)} {safe(m)}" + (f" ×{n}" if n > 1 else "") for d, m, n in b.failures
+        )
+        lines.append(f"  {safe(b.board)}: {b.repairs} repairs ({parts})")
+    lines += _more(len(view.recurring_boards)) or ([] if view.recurring_boards else ["  none"])
+    if view.damaged_lines:
+        lines += [
+            "",
+            f"{view.damaged_lines} damaged line(s) skipped; 'fieldtool history SERIAL' shows where",
+        ]
+    return "\n".join(lines)

@@ -1,0 +1,218 @@
+"""The fleet view: what the histories of every board of one profile say about its parts.
+
+Pure over the history files in ``<logs>/<profile>/``. Terms (see ``history_sessions``):
+
+- a *confirmed failure* is an action naming a part and a catalogued failure mode in a session
+  closed ``fixed``; *verified* when a verification reading followed it in that session;
+- a *repair* is a session that confirmed at least one failure;
+- a *repeat repair* is the same part repaired again on the same board in a later repair;
+- a board with *recurring faults* needed two or more repairs;
+- the *time between repairs* is measured between successive repairs of one board.
+
+``confirmed_failures`` is what the diagnosis priors take: (designator as stored, mode) to the
+number of repairs that confirmed it on that board type.
+"""
+
+from __future__ import annotations
+
+import statistics
+from collections import Counter, defaultdict
+from dataclasses import dataclass
+from datetime import UTC, datetime
+from pathlib import Path
+from typing import Any
+
+from fieldtool.core.fleet_cache import BoardSummary, summaries
+from fieldtool.core.history import HistoryError, NotFoundError, check_name
+
+OUTCOME_ORDER = ("fixed", "not-fixed", "escalated", "open")
+
+
+@dataclass(frozen=True)
+class FailureCount:
+    """How often one part failed one way across the fleet."""
+
+    designator: str
+    mode: str
+    count: int  # repairs that confirmed it
+    boards: int  # distinct boards
+    verified: int  # of ``count``, how many had a verification reading after the action
+
+
+@dataclass(frozen=True)
+class RepeatRepair:
+    """One part repaired in more than one repair of the same board."""
+
+    board: str
+    designator: str
+    modes: tuple[str, ...]
+    times: tuple[str, ...]
+    shortest_days: float
+
+
+@dataclass(frozen=True)
+class RecurringBoard:
+    """A board that needed two or more repairs, and the failures they confirmed."""
+
+    board: str
+    repairs: int
+    failures: tuple[tuple[str, str, int], ...]  # (designator, mode, times)
+    first: str
+    last: str
+
+
+@dataclass(frozen=True)
+class Intervals:
+    """Time between successive repairs of one board, over the fleet, in days."""
+
+    count: int
+    median_days: float | None
+    mean_days: float | None
+    shortest_days: float | None
+
+
+@dataclass(frozen=True)
+class FleetView:
+    """Everything ``fieldtool fleet`` shows for one profile."""
+
+    profile: str
+    boards: int
+    sessions: int
+    outcomes: dict[str, int]
+    repairs: int
+    failures: tuple[FailureCount, ...]
+    repeat_repairs: tuple[RepeatRepair, ...]
+    intervals: Intervals
+    recurring_boards: tuple[RecurringBoard, ...]
+    damaged_lines: int
+
+    def to_json(self) -> dict[str, Any]:
+        """The JSON shape of ``fieldtool fleet --json``."""
+        return {
+            "profile": self.profile,
+            "boards": self.boards,
+            "sessions": self.sessions,
+            "outcomes": self.outcomes,
+            "repairs": self.repairs,
+            "confirmed_failures": [vars(f) for f in self.failures],
+            "repeat_repairs": [
+                {**vars(r), "modes": list(r.modes), "times": list(r.times)}
+                for r in self.repeat_repairs
+            ],
+            "time_between_repairs": vars(self.intervals),
+            "recurring_boards": [
+                {**vars(b), "failures": [list(f) for f in b.failures]}
+                for b in self.recurring_boards
+            ],
+            "damaged_lines": self.damaged_lines,
+        }
+
+
+def profile_folder(logs_dir: Path | str, profile_name: str) -> Path:
+    """The folder holding one profile's board histories; a clear error if there is none."""
+    root = Path(logs_dir)
+    check_name(profile_name, "profile name")
+    if not root.exists():
+        raise NotFoundError(f"logs folder {root} does not exist; pass --logs DIR")
+    if not root.is_dir():
+        raise HistoryError(f"logs folder {root} is not a folder; pass --logs DIR")
+    folder = root / profile_name
+    if not folder.is_dir():
+        known = sorted(p.name for p in root.iterdir() if p.is_dir() and p.name[0] != ".")
+        hint = f"profiles with histories: {', '.join(known)}" if known else "it holds none"
+        raise NotFoundError(f"no histories for profile {profile_name!r} in {root}; {hint}")
+    return folder
+
+
+def _instant(stamp: str) -> datetime:
+    moment = datetime.fromisoformat(stamp)
+    return moment if moment.tzinfo else moment.replace(tzinfo=UTC)
+
+
+def _days(earlier: str, later: str) -> float:
+    return (_instant(later) - _instant(earlier)).total_seconds() / 86400.0
+
+
+def fleet_view(logs_dir: Path | str, profile_name: str, *, use_cache: bool = True) -> FleetView:
+    """The fleet view of one profile (see module docstring)."""
+    boards = summaries(profile_folder(logs_dir, profile_name), use_cache=use_cache)
+    return build_view(profile_name, boards)
+
+
+def build_view(profile_name: str, boards: list[BoardSummary]) -> FleetView:
+    """Aggregate per-board summaries into the fleet view."""
+    outcomes: Counter[str] = Counter()
+    counts: Counter[tuple[str, str]] = Counter()
+    verified: Counter[tuple[str, str]] = Counter()
+    on_boards: dict[tuple[str, str], set[str]] = defaultdict(set)
+    repeats: list[RepeatRepair] = []
+    recurring: list[RecurringBoard] = []
+    gaps: list[float] = []
+    repairs = 0
+    epoch = datetime(1970, 1, 1, tzinfo=UTC)
+    for board in boards:
+        outcomes.update(board.outcomes)
+        if not board.repairs:
+            continue
+        repairs += len(board.repairs)
+        by_part: dict[str, list[tuple[str, str]]] = defaultdict(list)
+        for start, found in board.repairs:
+            for designator, mode, checked in found:
+                key = (designator, mode)
+                counts[key] += 1
+                verified[key] += checked
+                on_boards[key].add(board.board)
+                by_part[designator].append((start, mode))
+        starts = [start for start, _ in board.repairs]
+        days = [(_instant(t) - epoch).total_seconds() / 86400.0 for t in starts]
+        gaps.extend(b - a for a, b in zip(days, days[1:], strict=False))
+        for designator, seen in by_part.items():
+            if len(seen) > 1:
+                times = tuple(t for t, _ in seen)
+                shortest = min(_days(a, b) for a, b in zip(times, times[1:], strict=False))
+                modes = tuple(m for _, m in seen)
+                repeats.append(RepeatRepair(board.board, designator, modes, times, shortest))
+        if len(board.repairs) > 1:
+            tally = Counter((d, m) for _, found in board.repairs for d, m, _ in found)
+            failures = tuple((d, m, n) for (d, m), n in sorted(tally.items()))
+            recurring.append(
+                RecurringBoard(board.board, len(board.repairs), failures, starts[0], starts[-1])
+            )
+    failures = tuple(
+        FailureCount(d, m, n, len(on_boards[(d, m)]), verified[(d, m)])
+        for (d, m), n in sorted(counts.items(), key=lambda kv: (-kv[1], kv[0]))
+    )
+    repeats.sort(key=lambda r: (-len(r.times), r.shortest_days, r.board, r.designator))
+    recurring.sort(key=lambda b: (-b.repairs, b.board))
+    intervals = Intervals(
+        count=len(gaps),
+        median_days=statistics.median(gaps) if gaps else None,
+        mean_days=statistics.fmean(gaps) if gaps else None,
+        shortest_days=min(gaps) if gaps else None,
+    )
+    ordered = {k: outcomes[k] for k in OUTCOME_ORDER if outcomes[k]}
+    ordered.update({k: v for k, v in sorted(outcomes.items()) if k not in ordered})
+    return FleetView(
+        profile=profile_name,
+        boards=len(boards),
+        sessions=sum(outcomes.values()),
+        outcomes=ordered,
+        repairs=repairs,
+        failures=failures,
+        repeat_repairs=tuple(repeats),
+        intervals=intervals,
+        recurring_boards=tuple(recurring),
+        damaged_lines=sum(b.damaged for b in boards),
+    )
+
+
+def confirmed_failures(logs_dir: Path | str, profile_name: str) -> dict[tuple[str, str], int]:
+    """Confirmed failures of one board type: (designator as stored, mode) → count.
+
+    A profile without histories yet has none (an empty mapping), so the priors stay published.
+    """
+    try:
+        view = fleet_view(logs_dir, profile_name)
+    except NotFoundError:
+        return {}
+    return {(f.designator, f.mode): f.count for f in view.failures}

@@ -1,0 +1,223 @@
+"""A repair report's content: per session, readings against expected bands, suspects, actions.
+
+Pure: it takes a board's history and the board's expected readings and returns frozen data
+that ``report_render`` turns into Markdown or HTML. The expected readings and their bands come
+from the fault dictionary (``FaultDictionary.band``: part tolerances, model and meter
+accuracy, about 95 %); where the dictionary is not available the solver's expected reading is
+used with the meter's accuracy alone as the band, and the report says so.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import Any
+
+from fieldtool.core.history import BoardHistory, HistoryError, Record, now_utc
+from fieldtool.core.history_sessions import ConfirmedFailure, Session, confirmed_in
+from fieldtool.core.profile import Profile
+
+CAUTIONS = (
+    "A voltage multiplier stores charge and can hold a dangerous voltage long after "
+    "power-off. Before touching the board: power off, discharge every capacitor through a "
+    "resistor rated for the voltage and energy, then verify with the meter that each node "
+    "is near 0 V.",
+    "Capacitors can recover part of their voltage after a discharge (dielectric absorption): "
+    "check again before handling, and keep a discharge lead on while you work.",
+    "Use a meter and probes rated (CAT and voltage) for the highest node on the board.",
+    "This report gives estimates, not clearances. Local electrical-safety codes and licensed "
+    "practice take precedence over anything it shows.",
+)
+
+
+@dataclass(frozen=True)
+class Expected:
+    """What one node should read on a healthy board, and its normal range."""
+
+    node: str
+    label: str
+    volts: float
+    low: float
+    high: float
+
+
+@dataclass(frozen=True)
+class Expectations:
+    """Expected readings along the ladder (probe order) and where their bands come from."""
+
+    nodes: tuple[Expected, ...]
+    source: str
+
+    def get(self, node: str) -> Expected | None:
+        """The expectation for a node, if the profile has that node."""
+        return next((e for e in self.nodes if e.node == node), None)
+
+
+@dataclass(frozen=True)
+class Row:
+    """One measured node against its expectation."""
+
+    node: str
+    label: str
+    volts: float | None  # None: over range
+    expected: Expected | None
+    status: str  # "in band", "low", "high", "over range", "no expectation"
+    time: str
+
+
+@dataclass(frozen=True)
+class SessionPart:
+    """One session of the report."""
+
+    id: str
+    start: str
+    technician: str
+    outcome: str | None
+    profile: str
+    readings: tuple[Row, ...]
+    verifications: tuple[Row, ...]
+    suspects: tuple[tuple[str, str, float], ...]  # last diagnosis: (designator, mode, p)
+    actions: tuple[dict[str, Any], ...]
+    confirmed: tuple[ConfirmedFailure, ...]
+    profile_changed: bool  # recorded with a different profile file than the one used here
+
+
+@dataclass(frozen=True)
+class Report:
+    """Everything a report shows."""
+
+    board: str
+    profile: str
+    generated: str
+    expectations: Expectations | None
+    expectations_note: str
+    sessions: tuple[SessionPart, ...]
+    damaged: int
+    cautions: tuple[str, ...] = CAUTIONS
+
+
+def expectations_for(profile: Profile) -> Expectations:
+    """Expected readings with bands: the fault dictionary's, or the solver's with meter accuracy."""
+    try:
+        from fieldtool.core.dictionary import load_or_build
+    except ImportError:
+        return _solver_only(profile)
+    dictionary = load_or_build(profile)
+    rows = []
+    for node in dictionary.nodes:
+        band = dictionary.band(node)
+        label = profile.labels.get(node, "")
+        rows.append(Expected(node, label, band.expected, band.low, band.high))
+    return Expectations(
+        tuple(rows),
+        "healthy band from the fault dictionary: part tolerances, model and meter accuracy "
+        "(about 95 % of healthy boards read inside it)",
+    )
+
+
+def _solver_only(profile: Profile) -> Expectations:
+    from fieldtool.core.expect import expect
+
+    result = expect(profile)
+    rows = []
+    for n in result.nodes:
+        spread = abs(n.volts) * profile.meter_percent / 100 + profile.meter_volts
+        rows.append(Expected(n.node, n.label, n.volts, n.volts - spread, n.volts + spread))
+    return Expectations(
+        tuple(rows),
+        "the diagnosis engine is not installed: expected values from the solver, band = meter "
+        "accuracy only (part tolerances NOT included, so the band is too narrow)",
+    )
+
+
+def _row(record: Record, expectations: Expectations | None) -> Row:
+    f = record.fields
+    node = str(f.get("node", "?"))
+    volts = f.get("volts")
+    value = float(volts) if isinstance(volts, int | float) and not f.get("overload") else None
+    exp = expectations.get(node) if expectations else None
+    if value is None:
+        status = "over range"
+    elif exp is None:
+        status = "no expectation"
+    elif value < exp.low:
+        status = "low"
+    elif value > exp.high:
+        status = "high"
+    else:
+        status = "in band"
+    label = exp.label if exp else ""
+    return Row(node, label, value, exp, status, record.time)
+
+
+def _latest_per_node(records: list[Record], expectations: Expectations | None) -> tuple[Row, ...]:
+    latest: dict[str, Record] = {}
+    for record in records:  # oldest first: a node probed again keeps its last reading
+        latest[str(record.fields.get("node", "?"))] = record
+    order = [e.node for e in expectations.nodes] if expectations else []
+    ranked = sorted(latest, key=lambda n: (order.index(n) if n in order else len(order), n))
+    return tuple(_row(latest[n], expectations) for n in ranked)
+
+
+def _suspects(session: Session) -> tuple[tuple[str, str, float], ...]:
+    diagnoses = session.of_kind("diagnosis")
+    if not diagnoses:
+        return ()
+    out = []
+    for s in diagnoses[-1].fields.get("suspects", []):
+        if isinstance(s, dict) and isinstance(s.get("probability"), int | float):
+            out.append((str(s.get("designator", "")), str(s.get("mode", "")), s["probability"]))
+    return tuple(out)
+
+
+def _part(session: Session, expectations: Expectations | None, digest: str) -> SessionPart:
+    opened = session.opened
+    fields = opened.fields if opened else {}
+    recorded_hash = fields.get("profile_hash")
+    return SessionPart(
+        id=session.id or "",
+        start=session.start,
+        technician=str(fields.get("technician", "?")),
+        outcome=session.outcome,
+        profile=session.profile,
+        readings=_latest_per_node(session.of_kind("reading"), expectations),
+        verifications=_latest_per_node(session.of_kind("verification"), expectations),
+        suspects=_suspects(session),
+        actions=tuple({"time": r.time, **r.fields} for r in session.of_kind("action")),
+        confirmed=confirmed_in(session),
+        profile_changed=bool(digest and recorded_hash and recorded_hash != digest),
+    )
+
+
+def pick_sessions(sessions: Sequence[Session], wanted: str | None) -> tuple[Session, ...]:
+    """Every session, or the one whose id starts with ``wanted`` (unambiguously)."""
+    real = tuple(s for s in sessions if s.id is not None)
+    if wanted is None:
+        return real
+    matches = [s for s in real if s.id and s.id.startswith(wanted.strip())]
+    if len(matches) == 1:
+        return (matches[0],)
+    listed = ", ".join(f"{s.id[:12]} ({s.start[:10]})" for s in real if s.id)
+    if not matches:
+        raise HistoryError(f"no session {wanted!r} on this board; sessions: {listed or 'none'}")
+    raise HistoryError(f"session {wanted!r} is ambiguous; give more of the id: {listed}")
+
+
+def build_report(
+    history: BoardHistory,
+    sessions: Sequence[Session],
+    profile_name: str,
+    expectations: Expectations | None,
+    expectations_note: str = "",
+    digest: str = "",
+) -> Report:
+    """The report for the chosen sessions of one board."""
+    return Report(
+        board=history.board,
+        profile=profile_name,
+        generated=now_utc(),
+        expectations=expectations,
+        expectations_note=expectations_note or (expectations.source if expectations else ""),
+        sessions=tuple(_part(s, expectations, digest) for s in sessions),
+        damaged=len(history.damaged),
+    )

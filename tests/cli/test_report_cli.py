@@ -1,0 +1,174 @@
+"""`fieldtool report`: HTML and Markdown on real files, escaping, the plot and its absence."""
+
+from __future__ import annotations
+
+import re
+import sys
+
+import pytest
+
+from fieldtool.cli import main
+from fieldtool.core import history as h
+from fieldtool.core.profile import load_profile
+from fieldtool.core.report import expectations_for
+from tests.conftest import ROOT
+from tests.history.helpers import day
+
+PROFILE = "datalogger-eeprom-dickson"
+HOSTILE_NOTE = '<script>alert("x")</script> <img src=x onerror=alert(1)> | *b* [l](javascript:x)'
+HOSTILE_SERIAL = "<b>DL&1"
+
+
+@pytest.fixture(autouse=True)
+def _engine_cache(tmp_path_factory, monkeypatch):
+    """Keep the fault-dictionary cache of this test run out of the user's cache folder."""
+    monkeypatch.setenv("FIELDTOOL_CACHE", str(tmp_path_factory.getbasetemp() / "dictionary"))
+
+
+@pytest.fixture
+def expected():
+    return expectations_for(load_profile(ROOT / "profiles" / f"{PROFILE}.toml"))
+
+
+def _write_session(logs, serial, expected, when, outcome="fixed", note=HOSTILE_NOTE):
+    opened = h.SessionOpened(technician="<ana>", profile_hash="old", tool_version="0.1.0")
+    out = expected.get("OUT")
+    events = [
+        opened,
+        h.Reading(node="S0", volts=expected.get("S0").volts),  # right on the expectation
+        h.Reading(node="OUT", volts=out.volts * 0.5),  # far below the band
+        h.Reading(node="P2", volts=None, overload=True),
+        h.Diagnosis(suspects=(h.Suspect("D3", "open", 0.61), h.Suspect("C2", "short", 0.2))),
+        h.Action(designator="D3", done="replaced", mode="open", part_used="1N4148", note=note),
+        h.Verification(node="OUT", volts=out.volts),
+        h.SessionClosed(outcome=outcome),
+    ]
+    h.append_many(logs, PROFILE, serial, events, time=when)
+    return opened.session_id
+
+
+def _report(capsys, *argv):
+    code = main(["report", *argv])
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def test_html_report_has_everything_and_escapes_the_history(tmp_path, capsys, expected):
+    logs = tmp_path / "logs"
+    _write_session(logs, HOSTILE_SERIAL, expected, day(0))
+    out = tmp_path / "report.html"
+    code, stdout, _ = _report(capsys, HOSTILE_SERIAL, "--logs", str(logs), "--out", str(out))
+    page = out.read_text()
+    assert code == 0 and "1 session(s) written" in stdout
+    for raw in ("<script", "<img src=x", "<b>DL", "<ana>"):
+        assert raw not in page
+    assert "&lt;script&gt;alert(&quot;x&quot;)&lt;/script&gt;" in page
+    assert "&lt;b&gt;DL&amp;1" in page and "&lt;ana&gt;" in page
+    assert "licensed practice" in page and "discharge every capacitor" in page
+    assert page.count("data:image/png;base64,") == 1
+    assert re.search(r"<td>OUT</td>.*?<td>low</td>", page, re.S)
+    assert re.search(r"<td>S0</td>.*?<td>in band</td>", page, re.S)
+    assert "over range" in page and "D3 open (verified by readings after the repair)" in page
+    assert "61.0%" in page and "part 1N4148" in page
+    assert "profile file has changed" in page  # recorded with another profile hash
+
+
+def test_markdown_report_writes_the_plot_beside_it(tmp_path, capsys, expected):
+    logs = tmp_path / "logs"
+    sid = _write_session(logs, "DL-0001", expected, day(0))
+    out = tmp_path / "r.md"
+    code, _, _ = _report(capsys, "DL-0001", "--logs", str(logs), "--out", str(out))
+    text = out.read_text()
+    image = tmp_path / f"r-{sid[:12]}.png"
+    assert code == 0 and image.read_bytes().startswith(b"\x89PNG")
+    assert f"]({image.name})" in text
+    assert "<script" not in text and "&lt;script&gt;" in text and "\\[l\\]" in text
+    row = next(line for line in text.splitlines() if line.startswith("| OUT |"))
+    band = expected.get("OUT")
+    assert f"{band.volts:.4g} V" in row and f"{band.low:.4g} … {band.high:.4g} V" in row
+    assert "Local electrical-safety codes and licensed practice take precedence" in text
+
+
+def test_report_without_matplotlib_says_the_plot_was_left_out(
+    tmp_path, capsys, expected, monkeypatch
+):
+    for name in [m for m in sys.modules if m == "matplotlib" or m.startswith("matplotlib.")]:
+        monkeypatch.setitem(sys.modules, name, None)  # importing any of it -> ImportError
+    monkeypatch.setitem(sys.modules, "matplotlib", None)
+    logs = tmp_path / "logs"
+    _write_session(logs, "DL-0001", expected, day(0))
+    out = tmp_path / "r.html"
+    code, _, _ = _report(capsys, "DL-0001", "--logs", str(logs), "--out", str(out))
+    page = out.read_text()
+    assert code == 0 and "data:image/png" not in page
+    assert "plot left out: matplotlib is not installed" in page
+
+
+def test_one_session_by_id_prefix(tmp_path, capsys, expected):
+    logs = tmp_path / "logs"
+    first = _write_session(logs, "DL-0001", expected, day(0), outcome="not-fixed")
+    _write_session(logs, "DL-0001", expected, day(9))
+    out = tmp_path / "one.html"
+    code, stdout, _ = _report(
+        capsys, "DL-0001", "--logs", str(logs), "--out", str(out), "--session", first[:6]
+    )
+    page = out.read_text()
+    assert code == 0 and "1 session(s)" in stdout
+    assert "not-fixed" in page and page.count("<h2>Session") == 1
+
+
+def test_history_of_an_unknown_profile_still_gives_a_report(tmp_path, capsys):
+    logs = tmp_path / "logs"
+    h.append(logs, "retired-board", "RB-1", h.Reading(node="S3", volts=4.0), session="s1")
+    out = tmp_path / "r.md"
+    code, _, _ = _report(capsys, "RB-1", "--logs", str(logs), "--out", str(out))
+    text = out.read_text()
+    assert code == 0 and "no profile file found for 'retired-board'" in text
+    assert "| S3 |  | 4 V | — | — | no expectation |" in text
+    assert "no plot: no expected values" in text
+
+
+@pytest.mark.parametrize(
+    ("extra", "words"),
+    [
+        (["--out", "{tmp}/r.pdf"], "name the file .html or .md"),
+        (["--out", "{tmp}/no/such/dir/r.html"], "does not exist"),
+        (["--out", "{tmp}/r.html", "--session", "zzz"], "no session 'zzz'"),
+        (["--out", "{tmp}/r.html", "--profile", "{tmp}/missing.toml"], "no such file"),
+    ],
+)
+def test_report_errors_are_one_line(tmp_path, capsys, expected, extra, words):
+    logs = tmp_path / "logs"
+    _write_session(logs, "DL-0001", expected, day(0))
+    argv = ["DL-0001", "--logs", str(logs)] + [e.format(tmp=tmp_path) for e in extra]
+    code, out, err = _report(capsys, *argv)
+    assert code == 2 and out == "" and err.count("\n") == 1 and words in err
+
+
+def test_report_for_an_unknown_board(tmp_path, capsys, expected):
+    logs = tmp_path / "logs"
+    _write_session(logs, "DL-0001", expected, day(0))
+    code, _, err = _report(capsys, "DL-0002", "--logs", str(logs), "--out", str(tmp_path / "r.md"))
+    assert code == 2 and "no history for board 'DL-0002'" in err
+    assert not (tmp_path / "r.md").exists()
+
+
+def test_report_says_so_when_the_engine_is_missing(tmp_path, capsys, expected, monkeypatch):
+    logs = tmp_path / "logs"
+    _write_session(logs, "DL-0001", expected, day(0))
+    monkeypatch.setitem(sys.modules, "fieldtool.core.dictionary", None)
+    out = tmp_path / "r.md"
+    code, _, _ = _report(capsys, "DL-0001", "--logs", str(logs), "--out", str(out))
+    text = out.read_text()
+    assert code == 0 and "diagnosis engine is not installed" in text
+    assert "band = meter accuracy only" in text and "| OUT |" in text
+
+
+def test_report_bands_come_from_the_fault_dictionary(expected):
+    from fieldtool.core.dictionary import load_or_build
+
+    d = load_or_build(load_profile(ROOT / "profiles" / f"{PROFILE}.toml"))
+    assert "fault dictionary" in expected.source
+    assert [e.node for e in expected.nodes] == list(d.nodes)
+    band = d.band("OUT")
+    assert (expected.get("OUT").low, expected.get("OUT").high) == (band.low, band.high)
