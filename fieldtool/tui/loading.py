@@ -11,6 +11,8 @@ from textual.worker import get_current_worker
 
 from fieldtool.core.dictionary import load_or_build
 from fieldtool.core.errors import FieldtoolError
+from fieldtool.core.history import HistoryError
+from fieldtool.core.priors import published_priors
 from fieldtool.core.safety import CAUTION
 from fieldtool.tui.session import choose_priors, unfinished_session
 
@@ -51,12 +53,22 @@ class LoadingScreen(Screen):
             dictionary = load_or_build(
                 r.profile, cache_dir=self.config.cache_dir, progress=progress
             )
-            priors = choose_priors(r.profile, dictionary, self.config.logs_dir)
-            unfinished = unfinished_session(self.config.logs_dir, r.serial)
         except FieldtoolError as exc:
             if not worker.is_cancelled:
                 self.app.call_from_thread(self._failed, exc)
             return
+        # A history folder that cannot be read must not stop the probing: published priors,
+        # no resume, and the writer says so (and keeps every reading) when it cannot save.
+        try:
+            priors = choose_priors(r.profile, dictionary, self.config.logs_dir)
+        except HistoryError as exc:
+            priors = published_priors(r.profile, dictionary.hypotheses)
+            self.app.call_from_thread(self._warn, f"Fleet counts not used: {exc.message}")
+        try:
+            unfinished = unfinished_session(self.config.logs_dir, r.serial)
+        except HistoryError as exc:
+            unfinished = None
+            self.app.call_from_thread(self._warn, f"History not read: {exc.message}")
         if not worker.is_cancelled:
             self.app.call_from_thread(self.app.loaded, r, dictionary, priors, unfinished)
 
@@ -65,6 +77,9 @@ class LoadingScreen(Screen):
             f"Building the fault dictionary (first time for this profile): {done}/{total}"
         )
         self.query_one("#loading-bar", ProgressBar).update(total=total, progress=done)
+
+    def _warn(self, text: str) -> None:
+        self.app.notify(text, severity="warning", timeout=8)
 
     def _failed(self, error: FieldtoolError) -> None:
         self.app.loading_failed(error)

@@ -19,7 +19,7 @@ from textual.content import Content
 from textual.message import Message
 from textual.reactive import reactive
 from textual.widgets import Sparkline, Static
-from textual.worker import get_current_worker
+from textual.worker import Worker, WorkerState, get_current_worker
 
 from fieldtool.core.errors import FieldtoolError
 from fieldtool.core.faults import Fault
@@ -212,6 +212,18 @@ class MeterStrip(Horizontal):
             self.app.call_from_thread(callback, *args)
         except RuntimeError:
             self._stop.set()  # the app has stopped; nothing to hand back to
+
+    def on_worker_state_changed(self, event: Worker.StateChanged) -> None:
+        """A meter loop that ended for any reason leaves no meter connected."""
+        if event.worker.group == "meter" and event.state in (
+            WorkerState.ERROR,
+            WorkerState.SUCCESS,
+        ):
+            if event.worker.state == WorkerState.ERROR or not self._stop.is_set():
+                self.connected = False
+                if event.state == WorkerState.ERROR:
+                    self.status = "no meter: it stopped unexpectedly (m reconnects)"
+            self.app.refresh_bindings()
 
     def _connected(self, identity: str) -> None:
         self.identity = identity

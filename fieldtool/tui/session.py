@@ -63,7 +63,7 @@ class BoardSession:
         profile: Profile,
         serial: str,
         dictionary: FaultDictionary,
-        save: Callable[[object], None],
+        save: Callable[[object, str | None], None],
         priors=None,
         technician: str = "",
     ) -> None:
@@ -73,7 +73,8 @@ class BoardSession:
         self.dictionary = dictionary
         self.priors = priors
         self.technician = technician
-        self._save = save
+        self._submit = save
+        self.session_id: str | None = None  # set when the session is opened or resumed
         self.phase = "probing"
         self.taken: dict[str, Taken] = {}
         self.actions: list[hist.Action] = []
@@ -84,16 +85,19 @@ class BoardSession:
 
     # --- opening -------------------------------------------------------------------------
 
+    def _save(self, event) -> None:
+        self._submit(event, self.session_id)
+
     def open(self, ambient_c: float | None = None) -> None:
         """Start a new session on the board and record it."""
-        self._save(
-            hist.SessionOpened(
-                technician=self.technician,
-                profile_hash=self.profile.digest,
-                tool_version=__version__,
-                ambient_c=ambient_c,
-            )
+        opened = hist.SessionOpened(
+            technician=self.technician,
+            profile_hash=self.profile.digest,
+            tool_version=__version__,
+            ambient_c=ambient_c,
         )
+        self.session_id = opened.session_id
+        self._save(opened)
 
     def resume(self, history: hist.BoardHistory) -> int:
         """Pick up the board's last unclosed session from its history; return readings restored."""
@@ -104,8 +108,11 @@ class BoardSession:
         if start is None:
             return 0
         self.resumed_from = history.events[start].time
+        self.session_id = history.events[start].session_id
         restored = 0
         for record in history.events[start + 1 :]:
+            if record.session is not None and record.session != self.session_id:
+                continue  # another terminal's session on the same board
             event = record.event
             if isinstance(event, hist.Action):
                 self.actions.append(event)

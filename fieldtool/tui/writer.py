@@ -42,15 +42,15 @@ class HistoryWriter:
             Path(tempfile.gettempdir()) / "fieldtool-rescue",
         )
         self.saved = 0
-        self.unsaved: list[object] = []  # waiting for a retry after a failure, oldest first
+        self.unsaved: list[tuple[object, str | None]] = []  # (event, session), oldest first
         self._queue: queue.Queue = queue.Queue()
         self._lock = threading.Lock()
         self._thread = threading.Thread(target=self._run, name="history-writer", daemon=True)
         self._thread.start()
 
-    def submit(self, event: object) -> None:
-        """Hand over one event to be saved (returns at once)."""
-        self._queue.put(event)
+    def submit(self, event: object, session: str | None = None) -> None:
+        """Hand over one event of a session to be saved (returns at once)."""
+        self._queue.put((event, session))
 
     def retry(self) -> None:
         """Try the unsaved events again."""
@@ -77,8 +77,9 @@ class HistoryWriter:
         count, used = len(self.unsaved), None
         for folder in self.rescue_dirs:
             while self.unsaved:
+                event, session = self.unsaved[0]
                 try:
-                    hist.append(folder, self.profile_name, self.serial, self.unsaved[0])
+                    hist.append(folder, self.profile_name, self.serial, event, session=session)
                 except FieldtoolError:
                     break  # try the next folder with what is left
                 self.unsaved.pop(0)
@@ -100,9 +101,9 @@ class HistoryWriter:
 
     def _write_unsaved(self) -> None:
         while self.unsaved:
-            event = self.unsaved[0]
+            event, session = self.unsaved[0]
             try:
-                hist.append(self.logs_dir, self.profile_name, self.serial, event)
+                hist.append(self.logs_dir, self.profile_name, self.serial, event, session=session)
             except FieldtoolError as exc:
                 if self.on_error is not None:
                     self.on_error(exc, event)

@@ -117,8 +117,10 @@ def interrupted_history(logs, profile) -> None:
         hist.Reading(node="S0", volts=15.0),
         hist.Reading(node="S8", volts=96.3),
     ]
+    session = events[0].session_id
     for i, event in enumerate(events):
-        hist.append(logs, profile.name, "TG-0042", event, time=t0 + timedelta(minutes=i))
+        moment = t0 + timedelta(minutes=i)
+        hist.append(logs, profile.name, "TG-0042", event, time=moment, session=session)
 
 
 async def test_resume_an_interrupted_session(profile, cache_dir, tmp_path):

@@ -26,7 +26,9 @@ def board_history(logs, profile) -> None:
     """A closed repair session on TG-0042 with fixed times."""
     t0 = datetime(2026, 11, 2, 8, 30, tzinfo=UTC)
     events = [
-        hist.SessionOpened(technician="JM", profile_hash=profile.digest, tool_version="0.1.0"),
+        hist.SessionOpened(
+            technician="JM", profile_hash=profile.digest, tool_version="0.1.0", session_id="s-1"
+        ),
         hist.Reading(node="S0", volts=15.02),
         hist.Reading(node="S4", volts=61.7, source="BENCH,DMM-9,0042,1.0", spread=0.004),
         hist.Reading(node="S8", volts=None, overload=True),
@@ -35,8 +37,10 @@ def board_history(logs, profile) -> None:
         hist.Verification(node="S8", volts=125.6),
         hist.SessionClosed(outcome="fixed"),
     ]
+    session = events[0].session_id
     for i, event in enumerate(events):
-        hist.append(logs, profile.name, "TG-0042", event, time=t0 + timedelta(minutes=3 * i))
+        moment = t0 + timedelta(minutes=3 * i)
+        hist.append(logs, profile.name, "TG-0042", event, time=moment, session=session)
 
 
 @pytest.mark.parametrize("size", SIZES)
@@ -84,3 +88,24 @@ def test_history_screen(snap_compare, profile, tmp_path, size):
 def test_help_screen(snap_compare, tmp_path, size):
     app = make_app(logs_dir=tmp_path, profiles_dir=ROOT / "profiles")
     assert snap_compare(app, terminal_size=size, press=["question_mark"])
+
+
+async def test_fleet_screen_and_priors_follow_confirmed_repairs(profile, dictionary, tmp_path):
+    """A repair confirmed in a session closed fixed counts on the fleet screen and feeds the
+    priors (the history store's fleet view)."""
+    from fieldtool.tui.history import FleetScreen
+    from fieldtool.tui.session import choose_priors
+
+    published = choose_priors(profile, dictionary, tmp_path)
+    board_history(tmp_path, profile)
+    fleet = choose_priors(profile, dictionary, tmp_path)
+    assert fleet.of("C6:short") > published.of("C6:short")
+    app = make_app(logs_dir=tmp_path, profiles_dir=ROOT / "profiles")
+    async with app.run_test(size=(80, 24)) as pilot:
+        pilot.app.action_fleet(profile.name)
+        await until(pilot, lambda: isinstance(pilot.app.screen, FleetScreen), what="fleet")
+        await pilot.app.workers.wait_for_complete()
+        await pilot.pause()
+        table = pilot.app.screen.query_one("#failures")
+        assert table.row_count == 1
+        assert [str(c) for c in table.get_row_at(0)] == ["C6", "short", "1"]
