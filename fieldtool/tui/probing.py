@@ -344,7 +344,10 @@ class ProbingScreen(Screen):
         """Record the outcome and end the session."""
         s = self.session
         top = s.diagnosis.suspects[0] if s.diagnosis.suspects else None
-        lines = [f"{len(s.taken)} readings in this phase, {len(s.actions)} repairs recorded."]
+        lines = [
+            f"{_count(len(s.taken), 'reading')} in this phase, "
+            f"{_count(len(s.actions), 'repair')} recorded."
+        ]
         if top is not None:
             lines.append(f"Top suspect now: {top.words} ({top.probability:.0%}).")
         self.app.push_screen(OutcomeDialog(" ".join(lines)), self._session_closed)
@@ -377,3 +380,8 @@ class ProbingScreen(Screen):
             f"The hidden fault was {hidden}. {verdict}{ranked} "
             f"Readings after the last repair: {read or 'none'}."
         )
+
+
+def _count(n: int, word: str) -> str:
+    """``1 reading``, ``2 readings``."""
+    return f"{n} {word}{'' if n == 1 else 's'}"
