@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import errno
+import termios
 import time
 from typing import Protocol
 
@@ -16,6 +17,10 @@ from fieldtool.meters.errors import (
     PortPermission,
     permission_message,
 )
+
+# What a port that has gone away raises: pyserial's own error, the OS error, and termios.error
+# from tcdrain/tcflush on a line that hung up (EIO), which is neither of the others.
+PORT_ERRORS = (serial.SerialException, OSError, termios.error)
 
 
 class Transport(Protocol):
@@ -54,7 +59,7 @@ class SerialTransport:
         try:
             self.port.write(data)
             self.port.flush()
-        except (serial.SerialException, OSError) as exc:
+        except PORT_ERRORS as exc:
             raise self._disconnected(exc) from None
 
     def readline(self, timeout: float) -> bytes:
@@ -78,7 +83,7 @@ class SerialTransport:
                 self.port.timeout = min(left, 0.05)
                 waiting = getattr(self.port, "in_waiting", 0) or 1
                 chunk = self.port.read(waiting)
-            except (serial.SerialException, OSError) as exc:
+            except PORT_ERRORS as exc:
                 raise self._disconnected(exc) from None
             self._pending += chunk
 
@@ -87,14 +92,14 @@ class SerialTransport:
         self._pending = b""
         try:
             self.port.reset_input_buffer()
-        except (serial.SerialException, OSError) as exc:
+        except PORT_ERRORS as exc:
             raise self._disconnected(exc) from None
 
     def close(self) -> None:
         """Close the port; closing twice is harmless."""
         try:
             self.port.close()
-        except (serial.SerialException, OSError):
+        except PORT_ERRORS:
             pass  # the port is already gone; nothing left to release
 
 

@@ -6,9 +6,11 @@ posterior entropy after a reading never exceeds the current one (information gai
 a reading equal to the healthy expectation never raises a fault's odds against healthy.
 """
 
+import functools
+
 import numpy as np
 import pytest
-from hypothesis import HealthCheck, given, settings
+from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from fieldtool.core import diagnosis as dg
@@ -23,23 +25,27 @@ from tests.conftest import make_profile
 PROFILE = make_profile(load={"ohms": 10000.0})
 
 
-@pytest.fixture(scope="module")
-def d():
+@functools.cache
+def _dictionary():
     return build(PROFILE)
+
+
+@pytest.fixture
+def d():
+    return _dictionary()
 
 
 def _readings(d, values: dict) -> list[NodeReading]:
     return [NodeReading(n, v) for n, v in values.items()]
 
 
-SETTINGS = settings(
-    max_examples=25, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
-)
+SETTINGS = settings(max_examples=25, deadline=None)
 
 
 @SETTINGS
 @given(data=st.data())
-def test_posterior_sums_to_one_and_gains_are_not_negative(d, data):
+def test_posterior_sums_to_one_and_gains_are_not_negative(data):
+    d = _dictionary()
     nodes = data.draw(st.lists(st.sampled_from(d.nodes), unique=True, max_size=4))
     values = {n: data.draw(st.floats(-30.0, 30.0)) for n in nodes}
     result = diagnose(d, _readings(d, values))
@@ -52,16 +58,21 @@ def test_posterior_sums_to_one_and_gains_are_not_negative(d, data):
 
 
 @SETTINGS
-@given(data=st.data())
-def test_expected_entropy_never_exceeds_current(d, data):
-    nodes = data.draw(st.lists(st.sampled_from(d.nodes), unique=True, max_size=3))
-    values = {n: data.draw(st.floats(-30.0, 30.0)) for n in nodes}
+@given(
+    picks=st.lists(st.integers(0, 6), unique=True, max_size=3),
+    volts=st.lists(st.floats(-30.0, 30.0), min_size=3, max_size=3),
+    probe=st.integers(0, 6),
+)
+def test_expected_entropy_never_exceeds_current(picks, volts, probe):
+    d = _dictionary()
+    nodes = [d.nodes[i] for i in picks]
+    values = dict(zip(nodes, volts, strict=False))
     result = diagnose(d, _readings(d, values))
     post = np.array([s.probability for s in result.suspects])
     h_now = float(-(post[post > 0] * np.log2(post[post > 0])).sum())
     # recompute the raw expectation (before any clamping) for one unmeasured node
     free = [n for n in d.nodes if n not in nodes]
-    j = d.node_index(data.draw(st.sampled_from(free)))
+    j = d.node_index(free[probe % len(free)])
     index = {s.key: s.probability for s in result.suspects}
     w = np.array([index[d.hypotheses[h].key] for h in d.row_hypothesis])
     counts = np.bincount(d.row_hypothesis)
@@ -69,12 +80,14 @@ def test_expected_entropy_never_exceeds_current(d, data):
     mu = d.mean[:, j]
     sd = np.sqrt(d.sigma[:, j] ** 2 + d.meter_sigma(mu) ** 2)
     expected = dg._expected_entropy(mu, sd, w / w.sum(), d.row_hypothesis, len(d.hypotheses))
-    assert expected <= h_now + 1e-6
+    # exact in theory; 6-point Gauss–Hermite quadrature is good to about 1e-5 bits here
+    assert expected <= h_now + 1e-4
 
 
 @SETTINGS
 @given(nodes=st.lists(st.integers(0, 6), unique=True, min_size=1, max_size=7))
-def test_healthy_readings_never_favour_a_fault(d, nodes):
+def test_healthy_readings_never_favour_a_fault(nodes):
+    d = _dictionary()
     healthy = d.rows_of("healthy")[0]
     readings = [NodeReading(d.nodes[j], float(d.mean[healthy, j])) for j in nodes]
     prior = diagnose(d, [])

@@ -1,0 +1,144 @@
+"""``fieldtool`` (start screen), ``fieldtool probe`` and ``fieldtool demo``: the terminal UI."""
+
+from __future__ import annotations
+
+import argparse
+import os
+import random
+import sys
+import tempfile
+from pathlib import Path
+
+from fieldtool.core import history as hist
+from fieldtool.core.circuit import build_circuit
+from fieldtool.core.errors import InputError
+from fieldtool.core.faults import Fault, catalog
+from fieldtool.core.profile import Profile, load_profile
+from fieldtool.meters.settings import MeterSettings, load_settings, with_overrides
+
+DEMO_PROFILE = Path(__file__).resolve().parents[2] / "profiles" / "tidegauge-apd-bias.toml"
+
+
+def register(subparsers: argparse._SubParsersAction) -> None:
+    """Add ``probe``, ``demo`` and ``tui``; with no subcommand at all, open the start screen."""
+    common = argparse.ArgumentParser(add_help=False)
+    common.add_argument("--logs", help="history folder (default: $FIELDTOOL_LOGS or ./logs)")
+    common.add_argument("--technician", default="", help="your name or initials for the history")
+    common.add_argument("--cache", help="fault dictionary cache folder")
+
+    tui = subparsers.add_parser("tui", parents=[common], help="open the start screen")
+    tui.add_argument("--settings", help="meter settings TOML file")
+    tui.set_defaults(handler=run_start)
+
+    probe = subparsers.add_parser(
+        "probe", parents=[common], help="open the probing screen for one board"
+    )
+    probe.add_argument("profile", help="board profile TOML file")
+    probe.add_argument("--board", required=True, help="the board's serial")
+    probe.add_argument("--port", help="meter port or URL (omit to type readings)")
+    probe.add_argument("--protocol", choices=("scpi", "stream"))
+    probe.add_argument("--baud", type=int)
+    probe.add_argument("--settings", help="meter settings TOML file")
+    choice = probe.add_mutually_exclusive_group()
+    choice.add_argument("--resume", action="store_true", help="resume an unfinished session")
+    choice.add_argument("--new", action="store_true", help="start a new session without asking")
+    probe.set_defaults(handler=run_probe)
+
+    demo = subparsers.add_parser(
+        "demo", parents=[common], help="practise on an invented board with a hidden fault"
+    )
+    demo.add_argument("--seed", type=int, default=1, help="which hidden fault (default 1)")
+    demo.add_argument("--profile", default=str(DEMO_PROFILE), help="board profile for the demo")
+    demo.set_defaults(handler=run_demo, demo_logs=True)
+
+    # argparse keeps one defaults table per parser and shares it with this argument group:
+    # with no subcommand the start screen opens; a subcommand's own handler replaces it.
+    subparsers.container.set_defaults(handler=run_default)
+
+
+def run_default(args: argparse.Namespace) -> int:
+    """``fieldtool`` alone opens the start screen."""
+    if getattr(args, "command", None):
+        raise InputError(f"'{args.command}' needs a subcommand; see 'fieldtool {args.command} -h'")
+    return run_start(args)
+
+
+def _settings(args: argparse.Namespace) -> MeterSettings:
+    base = load_settings(args.settings) if getattr(args, "settings", None) else MeterSettings()
+    return with_overrides(
+        base, protocol=getattr(args, "protocol", None), baud=getattr(args, "baud", None)
+    )
+
+
+def _logs(args: argparse.Namespace) -> Path:
+    if getattr(args, "demo_logs", False) and not args.logs:
+        return Path(tempfile.gettempdir()) / "fieldtool-demo"
+    return hist.resolve_logs_dir(getattr(args, "logs", None), os.environ)
+
+
+def _run(args: argparse.Namespace, request=None, settings: MeterSettings | None = None) -> int:
+    from fieldtool.tui.app import make_app
+
+    logs = _logs(args)
+    app = make_app(
+        logs_dir=logs,
+        request=request,
+        cache_dir=getattr(args, "cache", None),
+        technician=getattr(args, "technician", "") or "",
+        settings=settings,
+    )
+    app.run()
+    if app.writer_left_unsaved:
+        where = f"; kept in {app.rescued_to}" if app.rescued_to else "; they are lost"
+        print(
+            f"fieldtool: {app.writer_left_unsaved} history records could not be saved to "
+            f"{logs}{where}",
+            file=sys.stderr,
+        )
+        return 2
+    return int(app.return_code or 0)
+
+
+def run_start(args: argparse.Namespace) -> int:
+    """The start screen."""
+    return _run(args, None, _settings(args))
+
+
+def run_probe(args: argparse.Namespace) -> int:
+    """Straight to one board's probing screen."""
+    from fieldtool.tui.app import SessionRequest
+    from fieldtool.tui.meter_strip import MeterChoice
+
+    profile = load_profile(args.profile)
+    serial = hist.check_name(args.board)
+    settings = _settings(args)
+    meter = (
+        MeterChoice("port", args.port, settings) if args.port else MeterChoice(settings=settings)
+    )
+    resume = True if args.resume else (False if args.new else None)
+    return _run(args, SessionRequest(profile, serial, meter, resume=resume), settings)
+
+
+def demo_fault(profile: Profile, seed: int) -> Fault:
+    """A fault drawn from the board's catalog by the seed, at the grosser end of its grid."""
+    rng = random.Random(seed)
+    circuit, _ = build_circuit(profile)
+    hyps = [h for h in catalog(profile, circuit) if h.target is not None]
+    hyp = rng.choice(hyps)
+    faults = hyp.faults()
+    return rng.choice(faults[len(faults) // 2 :])
+
+
+def run_demo(args: argparse.Namespace) -> int:
+    """An invented board with the simulated meter and a hidden fault."""
+    from fieldtool.tui.app import SessionRequest
+    from fieldtool.tui.meter_strip import MeterChoice
+
+    profile = load_profile(args.profile)
+    fault = demo_fault(profile, args.seed)
+    meter = MeterChoice("simulated", fault=fault, seed=args.seed)
+    serial = f"DEMO-{args.seed:04d}"
+    request = SessionRequest(profile, serial, meter, resume=None, demo_fault=fault)
+    code = _run(args, request, MeterSettings())
+    print(f"fieldtool: demo history in {_logs(args)} (board {serial})")
+    return code

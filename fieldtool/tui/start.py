@@ -1,0 +1,210 @@
+"""The start screen: choose the profile, the board serial (past boards shown), and the meter."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from textual import on, work
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Horizontal, Vertical
+from textual.screen import Screen
+from textual.widgets import (
+    Button,
+    Footer,
+    Input,
+    Label,
+    OptionList,
+    RadioButton,
+    RadioSet,
+    Select,
+    Static,
+)
+from textual.widgets.option_list import Option
+
+from fieldtool.core import history as hist
+from fieldtool.core.errors import FieldtoolError, InputError
+from fieldtool.core.profile import load_profile
+from fieldtool.core.safety import CAUTION
+from fieldtool.tui.meter_strip import MeterChoice
+
+METER_KINDS = ("typed", "port", "simulated")
+
+
+def list_profiles(folder: Path) -> list[tuple[Path, str]]:
+    """(path, one-line description) of every profile in a folder, by name."""
+    found = []
+    for path in sorted(Path(folder).glob("*.toml")):
+        try:
+            p = load_profile(path)
+        except FieldtoolError as exc:
+            found.append((path, f"{path.stem}: cannot be used ({exc.title.lower()})"))
+            continue
+        found.append((path, f"{p.name}: {p.description}" if p.description else p.name))
+    return found
+
+
+def past_boards(logs_dir: Path, profile_name: str) -> list[str]:
+    """Serials with a history under this profile, newest change first."""
+    folder = Path(logs_dir) / profile_name
+    if not folder.is_dir():
+        return []
+    files = sorted(folder.glob("*.jsonl"), key=lambda f: f.stat().st_mtime, reverse=True)
+    return [f.stem for f in files]
+
+
+def board_summary(logs_dir: Path, serial: str) -> str:
+    """A line about a board's past: sessions, last outcome, an unfinished session."""
+    try:
+        h = hist.read_board(logs_dir, serial)
+    except hist.NotFoundError:
+        return f"{serial}: new board, no history yet."
+    except FieldtoolError as exc:
+        return f"{serial}: history unreadable ({exc.message})"
+    sessions = sum(r.kind == "session-opened" for r in h.events)
+    outcomes = [r.fields.get("outcome") for r in h.events if r.kind == "session-closed"]
+    last = f", last outcome {outcomes[-1]}" if outcomes else ""
+    open_note = "; last session unfinished (you can resume it)" if hist.last_session_open(h) else ""
+    damaged = f"; {len(h.damaged)} damaged lines" if h.damaged else ""
+    return f"{serial}: {sessions} sessions{last}{open_note}{damaged}."
+
+
+class StartScreen(Screen):
+    """Pick what to work on."""
+
+    BINDINGS = [Binding("ctrl+s", "start", "Start"), Binding("ctrl+r", "board_history", "History")]
+
+    def __init__(self, config) -> None:
+        super().__init__()
+        self.config = config
+        self.profiles = list_profiles(config.profiles_dir)
+
+    def compose(self) -> ComposeResult:
+        """Profile list, serial and past boards, meter choice, start button."""
+        yield Label("fieldtool · choose a board", id="start-title")
+        with Horizontal(id="start-columns"):
+            with Vertical(id="start-left"):
+                yield Label("Board profile")
+                yield OptionList(
+                    *[Option(text, id=str(path)) for path, text in self.profiles],
+                    id="profiles",
+                )
+                yield Input(
+                    placeholder="…or a path to a profile .toml", id="profile-path", compact=True
+                )
+            with Vertical(id="start-right"):
+                yield Label("Board serial")
+                yield Input(placeholder="e.g. TG-0042", id="serial", compact=True)
+                yield OptionList(id="boards")
+                yield Static("", id="board-summary")
+                yield Label("Meter")
+                with RadioSet(id="meter-kind", compact=True):
+                    yield RadioButton("typed readings", value=True)
+                    yield RadioButton("meter on a port")
+                    yield RadioButton("simulated meter (healthy board)")
+                yield Select([], prompt="serial port…", id="port", compact=True)
+                yield Input(
+                    placeholder="…or a URL: socket://host:port, loop://",
+                    id="port-url",
+                    compact=True,
+                )
+        with Horizontal(id="start-buttons"):
+            yield Button("Start (ctrl+s)", id="start", variant="primary")
+            yield Static(CAUTION, classes="caution")
+        yield Footer()
+
+    def on_mount(self) -> None:
+        """Select the first profile and look for serial ports."""
+        if self.profiles:
+            self.query_one("#profiles", OptionList).highlighted = 0
+        self._scan_ports()
+
+    @work(thread=True, exclusive=True, group="ports", exit_on_error=False)
+    def _scan_ports(self) -> None:
+        from serial.tools import list_ports
+
+        try:
+            ports = [(f"{p.device} {p.description}", p.device) for p in list_ports.comports()]
+        except OSError:
+            ports = []
+        self.app.call_from_thread(self.query_one("#port", Select).set_options, ports)
+
+    # --- what is chosen ------------------------------------------------------------------
+
+    def chosen_profile_path(self) -> Path | None:
+        """The profile path typed, else the one highlighted in the list."""
+        typed = self.query_one("#profile-path", Input).value.strip()
+        if typed:
+            return Path(typed).expanduser()
+        options = self.query_one("#profiles", OptionList)
+        if options.highlighted is None:
+            return None
+        return Path(options.get_option_at_index(options.highlighted).id)
+
+    def meter_choice(self, profile) -> MeterChoice:
+        """The meter as chosen; a port is required for a meter on a port."""
+        kind = METER_KINDS[self.query_one("#meter-kind", RadioSet).pressed_index]
+        settings = self.config.settings
+        if kind != "port":
+            return MeterChoice(kind=kind, settings=settings)
+        url = self.query_one("#port-url", Input).value.strip()
+        port = self.query_one("#port", Select).value
+        name = url or ("" if port is Select.NULL else str(port))
+        if not name:
+            raise InputError("no port chosen; pick one from the list or type a device or URL")
+        return MeterChoice(kind="port", port=name, settings=settings)
+
+    @on(OptionList.OptionHighlighted, "#profiles")
+    def _profile_changed(self) -> None:
+        path = self.chosen_profile_path()
+        boards = self.query_one("#boards", OptionList)
+        boards.clear_options()
+        if path is None:
+            return
+        for serial in past_boards(self.config.logs_dir, path.stem):
+            boards.add_option(Option(serial, id=serial))
+
+    @on(OptionList.OptionSelected, "#boards")
+    def _board_picked(self, event: OptionList.OptionSelected) -> None:
+        self.query_one("#serial", Input).value = str(event.option.id)
+        self.query_one("#serial", Input).focus()
+
+    @on(Input.Changed, "#serial")
+    def _serial_changed(self, event: Input.Changed) -> None:
+        serial = event.value.strip()
+        text = ""
+        if serial:
+            try:
+                text = board_summary(self.config.logs_dir, hist.check_name(serial))
+            except FieldtoolError as exc:
+                text = exc.message
+        self.query_one("#board-summary", Static).update(text)
+
+    @on(Input.Submitted, "#serial")
+    @on(Button.Pressed, "#start")
+    def _start_pressed(self) -> None:
+        self.action_start()
+
+    def action_start(self) -> None:
+        """Open the chosen board."""
+        from fieldtool.tui.app import SessionRequest
+
+        try:
+            path = self.chosen_profile_path()
+            if path is None:
+                raise InputError("no profile chosen; pick one from the list or type a path")
+            profile = load_profile(path)
+            serial = hist.check_name(self.query_one("#serial", Input).value.strip())
+            request = SessionRequest(profile, serial, self.meter_choice(profile))
+        except FieldtoolError as exc:
+            self.app.show_error(exc)
+            return
+        self.app.begin(request)
+
+    def action_board_history(self) -> None:
+        """The typed board's history."""
+        serial = self.query_one("#serial", Input).value.strip()
+        try:
+            self.app.action_history(hist.check_name(serial))
+        except FieldtoolError as exc:
+            self.app.show_error(exc)
