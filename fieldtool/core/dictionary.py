@@ -27,9 +27,10 @@ from fieldtool.core.errors import SolverError
 from fieldtool.core.faults import Hypothesis, apply_fault, catalog
 from fieldtool.core.profile import Profile
 from fieldtool.core.response import Response, linear_response
-from fieldtool.core.solver import Period, SteadyState, _take_period, steady_state
+from fieldtool.core.solver import steady_state
+from fieldtool.core.staged import staged_steady_state
 
-DICTIONARY_VERSION = 1
+DICTIONARY_VERSION = 2
 STEPS_PER_PERIOD = 40
 METER_SOLVE_FRACTION = 0.01  # meter loading above this → solve with the meter in place
 
@@ -134,7 +135,7 @@ def build(
         if progress:
             progress(int(80 * done / total), 100)
 
-    ss = _staged_steady_state(circuit, params, steps, base_progress)
+    ss = staged_steady_state(circuit, params, steps, progress=base_progress)
     if not ss.converged[0]:
         raise SolverError(f"{profile.path}: the healthy board's steady state did not converge")
     ok = ss.converged
@@ -165,73 +166,6 @@ def build(
         unloaded=resp.avg[ok],
         meter_solved=solved[ok],
         failed=failed,
-    )
-
-
-def _staged_steady_state(circuit: Circuit, params: Params, steps: int, progress) -> SteadyState:
-    """Every variant's steady state, trying cheap starts first and robust ones for the rest.
-
-    1. From the healthy board's steady state (most faults are near it; its waveforms also
-       seed each time step's Newton iteration).
-    2. What is left, from the ideal-formula charge of the faulted board itself; then from
-       all capacitors discharged (as at power-up); then after plain transient periods.
-    3. What is still left, with damped Newton steps (slow, so only for the few that need it).
-    Variants that converge in none are reported as failed, never given a number.
-    """
-    healthy = steady_state(circuit, params.take([0]), steps_per_period=steps)
-    if not healthy.converged[0]:
-        return healthy
-    rows = np.zeros(params.batch, dtype=np.intp)
-    ss = steady_state(
-        circuit,
-        params,
-        x0=healthy.period.x_start[rows],
-        steps_per_period=steps,
-        progress=progress,
-        guess=_take_period(healthy.period, rows),
-        max_iterations=12,
-        fallback_periods=0,
-    )
-    attempts = (("ideal", False, 15, 0), ("zero", False, 15, 0), ("ideal", False, 25, 20))
-    for start, damped, limit, fallback in (*attempts, ("ideal", True, 12, 0)):
-        left = np.flatnonzero(~ss.converged)
-        if len(left) == 0:
-            break
-        part = params.take(left)
-        x0 = np.zeros_like(ss.period.x_start[left]) if start == "zero" else None
-        retry = steady_state(
-            circuit,
-            part,
-            x0=x0,
-            steps_per_period=steps,
-            max_iterations=limit,
-            fallback_periods=fallback,
-            damped=damped,
-        )
-        ss = _merge_rows(ss, retry, left)
-        if progress:
-            progress(int(ss.converged.sum()), params.batch)
-    return ss
-
-
-def _merge_rows(ss: SteadyState, retry: SteadyState, rows: np.ndarray) -> SteadyState:
-    """``ss`` with the given rows replaced by a retry's results."""
-    per = ss.period
-    fields = {}
-    for name in ("x_start", "x_end", "v", "x", "src", "monodromy", "vj"):
-        merged = getattr(per, name).copy()
-        merged[rows] = getattr(retry.period, name)
-        fields[name] = merged
-    converged = ss.converged.copy()
-    converged[rows] = retry.converged
-    residual = ss.residual.copy()
-    residual[rows] = retry.residual
-    return SteadyState(
-        Period(times=per.times, newton_iterations=per.newton_iterations, **fields),
-        converged,
-        residual,
-        ss.shooting_iterations + retry.shooting_iterations,
-        ss.fallback_periods,
     )
 
 

@@ -21,6 +21,7 @@ from fieldtool.core.solver import (
     step,
     transient,
 )
+from fieldtool.core.staged import staged_steady_state
 
 
 @dataclass(frozen=True)
@@ -120,7 +121,17 @@ def expect(profile: Profile, steps: int = 80, fault: Fault | None = None) -> Exp
     heavier = scaled_load(circuit, params, 1.25)
     metered = with_meter(circuit, params, profile.meter_ohms)
     batch = stack([params, heavier, metered])
-    ss = steady_state(circuit, batch, steps_per_period=steps)
+    if fault is None:
+        ss = steady_state(circuit, batch, steps_per_period=steps)
+    else:
+        # A faulted board can be far from any formula; start from the healthy one and fall
+        # back to slower, surer starts (fieldtool.core.staged).
+        healthy = steady_state(circuit, build_circuit(profile)[1], steps_per_period=steps)
+        start = healthy.period if healthy.converged[0] else None
+        alone = staged_steady_state(circuit, params, steps, start=start)
+        if alone.converged[0]:
+            start = alone.period  # the meter and the heavier load are small changes from it
+        ss = staged_steady_state(circuit, batch, steps, start=start)
     if not ss.converged.all():
         raise SolverError(
             f"{profile.path}: periodic steady state not reached (residual "

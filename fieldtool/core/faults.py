@@ -345,7 +345,7 @@ def severity_grid(profile: Profile, mode: Mode) -> tuple[float, ...]:
     if mode.name in ("weak", "esr"):
         return tuple(z_switch * k for k in (0.5, 5.0, 50.0))
     if mode.name == "lowcap":
-        return (0.5, 0.2, 0.05)
+        return (0.7, 0.5, 0.35, 0.2, 0.1, 0.05)
     if mode.name == "low":
         return (0.9, 0.75, 0.6, 0.45, 0.3)
     if mode.name == "heavy":
