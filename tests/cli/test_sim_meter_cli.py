@@ -68,7 +68,7 @@ class SimMeter:
 
     def finish(self) -> tuple[int, str]:
         """Wait for the process to end; return its exit code and stderr."""
-        code = self.proc.wait(timeout=10)
+        code = self.proc.wait(timeout=30)  # generous: a loaded CI machine is slow to start
         self.pump.join(timeout=5)
         while not self.lines.empty():
             self.seen.append(self.lines.get())
