@@ -272,8 +272,12 @@ def _expected_entropy(mu, sd, w, hyp_of, H) -> float:
     y = pts.ravel()
     zz = (y[:, None] - mu[None, :]) / sd[None, :]
     like = w[None, :] * np.exp(-0.5 * zz**2) / sd[None, :]  # (Y, R)
-    per_h = np.zeros((len(y), H))
-    np.add.at(per_h.T, hyp_of, like.T)
+    # Sum each hypothesis's rows (rows come grouped by hypothesis; sort if they are not).
+    if np.any(np.diff(hyp_of) < 0):
+        order = np.argsort(hyp_of, kind="stable")
+        hyp_of, like = hyp_of[order], like[:, order]
+    starts = np.flatnonzero(np.r_[True, np.diff(hyp_of) != 0])
+    per_h = np.add.reduceat(like, starts, axis=1)  # (Y, hypotheses present)
     total = per_h.sum(axis=1, keepdims=True)
     p = per_h / np.where(total > 0, total, 1.0)
     return float((qw * _entropy(p)).sum())
