@@ -49,6 +49,7 @@ from fieldtool.core.priors import published_priors  # noqa: E402
 from fieldtool.core.profile import load_profile  # noqa: E402
 from fieldtool.core.readings import NodeReading  # noqa: E402
 from fieldtool.core.solver import steady_state  # noqa: E402
+from fieldtool.core.staged import staged_steady_state  # noqa: E402
 
 DIODE_SPREAD_V = 0.015  # ± forward-drop spread between parts (as the dictionary assumes)
 STEPS = 80  # as fieldtool expect
@@ -107,11 +108,16 @@ def draw_board(circuit, nominal: Params, profile, rng) -> Params:
     return p
 
 
-def as_read(circuit, rows: list[Params], meter_ohms: float) -> tuple[np.ndarray, np.ndarray]:
+def as_read(
+    circuit, rows: list[Params], meter_ohms: float, nominal: Params
+) -> tuple[np.ndarray, np.ndarray]:
     """As-read volts (B, P) with the meter on each node in turn, and which boards converged."""
     P = len(circuit.probe_nodes)
     metered = stack([with_meter(circuit, r, meter_ohms) for r in rows])
-    ss = steady_state(circuit, metered, steps_per_period=STEPS)
+    # the same staged starts the engine uses (healthy board first, then surer starts)
+    healthy = steady_state(circuit, nominal, steps_per_period=STEPS)
+    start = healthy.period if healthy.converged[0] else None
+    ss = staged_steady_state(circuit, metered, STEPS, start=start)
     avg = period_average(ss.period)
     idx = np.array(circuit.probe_nodes) - 1
     B = len(rows)
@@ -139,7 +145,7 @@ def make_trials(profile, d, n_trials: int, rng) -> tuple[list[Trial], list[str],
     for _, fault in chosen:
         board = draw_board(circuit, nominal, profile, rng)
         rows.append(board if fault is None else apply_fault(circuit, board, fault, profile))
-    volts, ok = as_read(circuit, rows, profile.meter_ohms)
+    volts, ok = as_read(circuit, rows, profile.meter_ohms, nominal)
     bands = [d.band(node) for node in d.nodes]
     trials, dropped = [], []
     for (cls, fault), v, good in zip(chosen, volts, ok, strict=True):
