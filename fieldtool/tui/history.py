@@ -63,8 +63,7 @@ class HistoryScreen(Screen):
         yield Footer()
 
     def on_mount(self) -> None:
-        """Columns, then read the files in a worker."""
-        self.query_one(DataTable).add_columns("When (UTC)", "What", "Details")
+        """Read the files in a worker; the table's columns come with the rows."""
         self._read()
 
     @work(thread=True, exclusive=True, exit_on_error=False)
@@ -81,9 +80,19 @@ class HistoryScreen(Screen):
 
     def _show(self, h: hist.BoardHistory | None, note: str) -> None:
         table = self.query_one(DataTable)
+        rows = (
+            []
+            if h is None
+            else [(r.time[:19].replace("T", " "), r.kind, event_words(r)) for r in h.events]
+        )
+        # Widths set from the rows themselves, so the columns never wait on a later refresh.
+        heads = ("When (UTC)", "What", "Details")
+        for i, head in enumerate(heads):
+            width = max([len(head), *(len(row[i]) for row in rows)])
+            table.add_column(head, width=min(width, 200))
         if h is not None:
-            for r in h.events:
-                table.add_row(r.time[:19].replace("T", " "), r.kind, event_words(r))
+            for row in rows:
+                table.add_row(*row)
             sessions = sum(r.kind == "session-opened" for r in h.events)
             note = f"{len(h.events)} records, {sessions} sessions."
             if h.damaged:
