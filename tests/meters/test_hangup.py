@@ -8,27 +8,18 @@ from fieldtool.meters.errors import MeterDisconnected
 from fieldtool.meters.scpi import ScpiMeter
 from fieldtool.meters.settings import MeterSettings
 from fieldtool.meters.transport import open_port
+from tests.pty_lines import pty_lines
 
 
 def _meter_that_hangs_up(fd: int, hang_up: threading.Event) -> None:
     """Answer *IDN? and READ? until told to hang up, then close on the next request."""
-    buf = b""
-    while True:
-        try:
-            chunk = os.read(fd, 256)
-        except OSError:
+    for line in pty_lines(fd):
+        if hang_up.is_set():
+            os.close(fd)
             return
-        if not chunk:
-            return
-        buf += chunk
-        while b"\n" in buf:
-            line, buf = buf.split(b"\n", 1)
-            if hang_up.is_set():
-                os.close(fd)
-                return
-            reply = {"*IDN?": "ACME,DMM,1,1", "READ?": "+1.25E+01"}.get(line.decode().strip())
-            if reply:
-                os.write(fd, (reply + "\n").encode())
+        reply = {"*IDN?": "ACME,DMM,1,1", "READ?": "+1.25E+01"}.get(line)
+        if reply:
+            os.write(fd, (reply + "\n").encode())
 
 
 def test_hang_up_is_disconnected_every_time():

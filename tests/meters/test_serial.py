@@ -19,6 +19,7 @@ from fieldtool.meters.settings import MeterSettings, SettleRule
 from fieldtool.meters.settle import settle
 from fieldtool.meters.stream import StreamMeter
 from fieldtool.meters.transport import SerialTransport, open_port
+from tests.pty_lines import pty_lines
 
 
 @pytest.fixture
@@ -35,24 +36,9 @@ def pty_pair():
         pass
 
 
-def _lines(fd):
-    buf = b""
-    while True:
-        try:
-            chunk = os.read(fd, 256)
-        except OSError:
-            return
-        if not chunk:
-            return
-        buf += chunk
-        while b"\n" in buf:
-            line, buf = buf.split(b"\n", 1)
-            yield line.decode().strip()
-
-
 def play_scpi(fd, answers, log):
     """Answer SCPI queries on the master fd from a dict of command -> list of replies."""
-    for line in _lines(fd):
+    for line in pty_lines(fd):
         log.append(line)
         if line in answers and answers[line]:
             os.write(fd, answers[line].pop(0))

@@ -13,6 +13,7 @@ from fieldtool.meters.settings import MeterSettings, SettleRule
 from fieldtool.tui.dialogs import ResumeDialog
 from fieldtool.tui.meter_strip import MeterChoice, MeterStrip
 from fieldtool.tui.node_table import NodeTable
+from tests.pty_lines import pty_lines
 from tests.tui.conftest import drain, probing, type_reading, typed_app, until
 
 IDENTITY = "BENCH,DMM-9,0042,1.0"
@@ -24,28 +25,17 @@ def answer_scpi(fd: int, volts: str, log: list[str], unplug: threading.Event) ->
     The thread closes the master itself: closing it from another thread while this one is
     blocked reading it would leave the file open and let the number be reused.
     """
-    buf = b""
-    while True:
-        try:
-            chunk = os.read(fd, 256)
-        except OSError:
+    for command in pty_lines(fd):
+        log.append(command)
+        if unplug.is_set():
+            os.close(fd)  # the cable is pulled with a request unanswered
             return
-        if not chunk:
-            return
-        buf += chunk
-        while b"\n" in buf:
-            line, buf = buf.split(b"\n", 1)
-            command = line.decode().strip()
-            log.append(command)
-            if unplug.is_set():
-                os.close(fd)  # the cable is pulled with a request unanswered
+        reply = {"*IDN?": IDENTITY, "READ?": volts}.get(command)
+        if reply is not None:
+            try:
+                os.write(fd, (reply + "\n").encode())
+            except OSError:
                 return
-            reply = {"*IDN?": IDENTITY, "READ?": volts}.get(command)
-            if reply is not None:
-                try:
-                    os.write(fd, (reply + "\n").encode())
-                except OSError:
-                    return
 
 
 @pytest.fixture
