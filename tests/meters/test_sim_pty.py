@@ -14,8 +14,7 @@ import tomllib
 
 import pytest
 
-from fieldtool.core.expect import expect
-from fieldtool.core.profile import load_profile, profile_from_dict
+from fieldtool.core.profile import profile_from_dict
 from fieldtool.meters.errors import MeterTimeout
 from fieldtool.meters.parse import Reading
 from fieldtool.meters.scpi import ScpiMeter
@@ -32,23 +31,7 @@ from fieldtool.meters.sim_pty import (
 from fieldtool.meters.simulated import SimulatedMeter
 from fieldtool.meters.stream import StreamMeter
 from fieldtool.meters.transport import open_port
-from tests.conftest import ROOT
-
-BOARD = ROOT / "profiles" / "tidegauge-apd-bias.toml"
-
-
-@pytest.fixture(scope="module")
-def board():
-    return load_profile(BOARD)
-
-
-@pytest.fixture(scope="module")
-def healthy(board):
-    return expect(board)
-
-
-def accuracy(profile, volts):
-    return profile.meter_percent / 100 * abs(volts) + profile.meter_volts
+from tests.meters.conftest import BOARD, accuracy
 
 
 class Served:

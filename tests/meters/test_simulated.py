@@ -17,7 +17,7 @@ from fieldtool.core.circuit import build_circuit
 from fieldtool.core.errors import InputError
 from fieldtool.core.expect import expect
 from fieldtool.core.faults import catalog, parse_fault
-from fieldtool.core.profile import load_profile, profile_from_dict
+from fieldtool.core.profile import profile_from_dict
 from fieldtool.meters.errors import MeterDisconnected, UnknownNode
 from fieldtool.meters.simulated import (
     METER_TAU_S,
@@ -27,9 +27,7 @@ from fieldtool.meters.simulated import (
     random_fault,
     step_response,
 )
-from tests.conftest import ROOT
-
-BOARD = ROOT / "profiles" / "tidegauge-apd-bias.toml"
+from tests.meters.conftest import BOARD, accuracy
 
 
 class FakeClock:
@@ -46,23 +44,8 @@ class FakeClock:
 
 
 @pytest.fixture(scope="module")
-def board():
-    return load_profile(BOARD)
-
-
-@pytest.fixture(scope="module")
-def healthy(board):
-    return expect(board)
-
-
-@pytest.fixture(scope="module")
 def d5_open(board):
     return expect(board, fault=parse_fault("D5:open", board))
-
-
-def accuracy(profile, volts: float) -> float:
-    """The meter's stated accuracy at a reading."""
-    return profile.meter_percent / 100 * abs(volts) + profile.meter_volts
 
 
 def meter_on(profile, expectation, fault=None, seed=0, **kw):
