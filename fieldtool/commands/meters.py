@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import json
 import random
+import signal
 import sys
 
 from fieldtool.core.errors import InputError
@@ -146,6 +147,9 @@ def run_sim_meter(args: argparse.Namespace) -> int:
     """Serve a simulated meter on a pty until quit, end of input or Ctrl-C."""
     if args.command_gap < 0:
         raise InputError(f"--command-gap {args.command_gap:g}: expected seconds, 0 or more")
+    # Ctrl-C is how sim-meter stops; a shell that starts it in the background hands it an
+    # ignored SIGINT, so ask for the usual KeyboardInterrupt back.
+    signal.signal(signal.SIGINT, signal.default_int_handler)
     profile = load_profile(args.profile)
     seed = args.seed if args.seed is not None else random.SystemRandom().randrange(1_000_000)
     fault = _chosen_fault(args, profile, seed)

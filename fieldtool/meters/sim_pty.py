@@ -16,6 +16,7 @@ import tty
 from collections import deque
 from collections.abc import Callable
 
+from fieldtool.core.errors import InputError
 from fieldtool.meters.errors import UnknownNode
 from fieldtool.meters.parse import Reading
 from fieldtool.meters.simulated import SimulatedMeter
@@ -262,7 +263,15 @@ class PtyMeter:
     def serve(self, console_fd: int) -> None:
         """Answer the port and the console until ``quit``, end of console input or Ctrl-C."""
         with selectors.DefaultSelector() as sel:
-            sel.register(console_fd, selectors.EVENT_READ, lambda: self._console_input(console_fd))
+            try:
+                sel.register(
+                    console_fd, selectors.EVENT_READ, lambda: self._console_input(console_fd)
+                )
+            except PermissionError:  # a regular file or device cannot be waited on
+                raise InputError(
+                    "sim-meter takes probe moves from a terminal or a pipe, not a file; "
+                    "run it in a terminal, or pipe the node names in (e.g. cat moves.txt | ...)"
+                ) from None
             sel.register(self.master, selectors.EVENT_READ, self._port_input)
             interval = self.meter.reading_interval_s
             due = time.monotonic() + interval

@@ -30,7 +30,7 @@ BOARD = ROOT / "profiles" / "tidegauge-apd-bias.toml"
 class SimMeter:
     """``python -m fieldtool sim-meter ...`` running, with its output lines in a queue."""
 
-    def __init__(self, *args: str) -> None:
+    def __init__(self, *args: str, preexec_fn=None) -> None:
         self.proc = subprocess.Popen(
             [sys.executable, "-m", "fieldtool", "sim-meter", str(BOARD), *args],
             cwd=ROOT,
@@ -39,6 +39,7 @@ class SimMeter:
             stderr=subprocess.PIPE,
             text=True,
             bufsize=1,
+            preexec_fn=preexec_fn,
         )
         self.lines: queue.Queue[str] = queue.Queue()
         self.seen: list[str] = []
@@ -93,8 +94,8 @@ class SimMeter:
 def sim_meter():
     started: list[SimMeter] = []
 
-    def start(*args: str) -> SimMeter:
-        s = SimMeter(*args)
+    def start(*args: str, **kw) -> SimMeter:
+        s = SimMeter(*args, **kw)
         started.append(s)
         return s
 
@@ -169,6 +170,15 @@ def test_ctrl_c_stops_cleanly(sim_meter):
     assert sim.seen[-1] == "sim-meter stopped"
 
 
+def test_ctrl_c_stops_it_even_when_started_with_sigint_ignored(sim_meter):
+    # a shell starts background jobs with SIGINT ignored (POSIX sh, "Asynchronous Lists")
+    sim = sim_meter(preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_IGN))
+    sim.proc.send_signal(signal.SIGINT)
+    code, _ = sim.finish()
+    assert code == 0
+    assert sim.seen[-1] == "sim-meter stopped"
+
+
 def test_negative_command_gap_is_refused(capsys):
     assert main(["sim-meter", str(BOARD), "--command-gap", "-1"]) == 2
     assert capsys.readouterr().err == (
@@ -182,3 +192,18 @@ def test_bad_fault_spec_is_one_line_exit_2(capsys):
     assert code == 2
     assert err.startswith("fieldtool: bad input: ") and err.count("\n") == 1
     assert "Q9" in err
+
+
+def test_stdin_from_a_file_is_one_clear_line():
+    with open("/dev/zero", "rb") as zero:
+        proc = subprocess.run(
+            [sys.executable, "-m", "fieldtool", "sim-meter", str(BOARD), "--seed", "1"],
+            cwd=ROOT,
+            stdin=zero,
+            capture_output=True,
+            text=True,
+            timeout=60,
+        )
+    assert proc.returncode == 2
+    assert "Traceback" not in proc.stderr
+    assert proc.stderr.startswith("fieldtool: bad input: sim-meter takes probe moves from a")
