@@ -330,15 +330,9 @@ def _unsplit(d, a: int, b: int, best_row, mu, sd) -> bool:
 
 def _splitter(d, group, post, best_row, measured) -> str | None:
     """The unmeasured node that best separates the group's hypotheses, if any does."""
-    rows = np.concatenate([d.rows_of(d.hypotheses[h].key) for h in group])
-    w = np.concatenate(
-        [
-            np.full(
-                len(d.rows_of(d.hypotheses[h].key)), post[h] / len(d.rows_of(d.hypotheses[h].key))
-            )
-            for h in group
-        ]
-    )
+    rows = np.flatnonzero(np.isin(d.row_hypothesis, group))  # grouped by hypothesis
+    counts = np.bincount(d.row_hypothesis[rows], minlength=len(post))
+    w = post[d.row_hypothesis[rows]] / counts[d.row_hypothesis[rows]]
     w = w / w.sum()
     local = {h: i for i, h in enumerate(group)}
     hyp_of = np.array([local[h] for h in d.row_hypothesis[rows]])
