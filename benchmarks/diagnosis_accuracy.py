@@ -40,16 +40,17 @@ sys.path.insert(0, str(ROOT))
 
 from ten_stage import ten_stage_profile  # noqa: E402
 
-from fieldtool.core.circuit import Params, build_circuit, stack, with_meter  # noqa: E402
-from fieldtool.core.diagnosis import CONFIDENT, diagnose  # noqa: E402
-from fieldtool.core.dictionary import load_or_build  # noqa: E402
-from fieldtool.core.expect import period_average  # noqa: E402
-from fieldtool.core.faults import BOARD_TARGETS, Fault, apply_fault, display_name  # noqa: E402
-from fieldtool.core.priors import published_priors  # noqa: E402
-from fieldtool.core.profile import load_profile  # noqa: E402
+from fieldtool.core.circuit.expect import period_average  # noqa: E402
+from fieldtool.core.circuit.netlist import Params, build_circuit, stack, with_meter  # noqa: E402
+from fieldtool.core.circuit.profile import load_profile  # noqa: E402
+from fieldtool.core.circuit.solver import steady_state  # noqa: E402
+from fieldtool.core.circuit.spec import display_name  # noqa: E402
+from fieldtool.core.circuit.staged import staged_steady_state  # noqa: E402
+from fieldtool.core.diagnosis.dictionary_cache import load_or_build  # noqa: E402
+from fieldtool.core.diagnosis.faults import BOARD_TARGETS, Fault, apply_fault  # noqa: E402
+from fieldtool.core.diagnosis.priors import published_priors  # noqa: E402
+from fieldtool.core.diagnosis.ranking import CONFIDENT, diagnose  # noqa: E402
 from fieldtool.core.readings import NodeReading  # noqa: E402
-from fieldtool.core.solver import steady_state  # noqa: E402
-from fieldtool.core.staged import staged_steady_state  # noqa: E402
 
 DIODE_SPREAD_V = 0.015  # ± forward-drop spread between parts (as the dictionary assumes)
 STEPS = 80  # as fieldtool expect
@@ -241,7 +242,7 @@ def main() -> None:
     shares = ", ".join(f"{c} {SHARE[c]:.0%}" for c in DRAWN)
     print(f"{args.trials} trials a board, sampled by class ({shares})")
     print("probes: mean count (share of trials whose top hypothesis passed 0.9)\n")
-    boards = [load_profile(p) for p in sorted((ROOT / "profiles").glob("*.toml"))]
+    boards = [load_profile(p) for p in sorted((ROOT / "fieldtool" / "profiles").glob("*.toml"))]
     boards.append(ten_stage_profile())
     rng = np.random.default_rng(args.seed)
     header = (

@@ -32,11 +32,11 @@ sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
 
 from ten_stage import ten_stage_profile  # noqa: E402
 
-from fieldtool.core import dictionary  # noqa: E402
-from fieldtool.core.diagnosis import diagnose  # noqa: E402
-from fieldtool.core.dictionary_cache import cache_path, load_or_build, save  # noqa: E402
-from fieldtool.core.expect import expect  # noqa: E402
-from fieldtool.core.faults import parse_fault  # noqa: E402
+from fieldtool.core.circuit.expect import expect  # noqa: E402
+from fieldtool.core.diagnosis import dictionary  # noqa: E402
+from fieldtool.core.diagnosis.dictionary_cache import cache_path, load_or_build, save  # noqa: E402
+from fieldtool.core.diagnosis.faults import parse_fault  # noqa: E402
+from fieldtool.core.diagnosis.ranking import diagnose  # noqa: E402
 from fieldtool.core.readings import NodeReading  # noqa: E402
 
 FAULTS = ("D7:open", "D12:short", "C9:open", "C14:short", "C6:lowcap=0.2", "drive:low=0.75")

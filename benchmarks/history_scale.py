@@ -34,10 +34,10 @@ from pathlib import Path
 sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
 
 from fieldtool.core import history as h  # noqa: E402
-from fieldtool.core.fleet import fleet_view  # noqa: E402
-from fieldtool.core.fleet_cache import CACHE_NAME  # noqa: E402
-from fieldtool.core.history_merge import merge  # noqa: E402
-from fieldtool.core.history_sessions import group_sessions  # noqa: E402
+from fieldtool.core.history.fleet import fleet_view  # noqa: E402
+from fieldtool.core.history.fleet_cache import CACHE_NAME  # noqa: E402
+from fieldtool.core.history.merge import merge  # noqa: E402
+from fieldtool.core.history.sessions import group_sessions  # noqa: E402
 
 PROFILE = "tidegauge-apd-bias"
 NODES = ["S0"] + [f"{p}{k}" for k in range(1, 9) for p in ("P", "S")]

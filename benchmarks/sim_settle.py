@@ -16,7 +16,7 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
 
-from fieldtool.core.profile import load_profile  # noqa: E402
+from fieldtool.core.circuit.profile import load_profile  # noqa: E402
 from fieldtool.meters.settings import SettleRule  # noqa: E402
 from fieldtool.meters.settle import settle  # noqa: E402
 from fieldtool.meters.simulated import SimulatedMeter  # noqa: E402
@@ -68,7 +68,7 @@ def main() -> None:
     print(f"timeout {rule.timeout_s} s; simulated seconds\n")
     print("| board | fault | settled | median s | worst s | worst error / accuracy |")
     print("|---|---|---:|---:|---:|---:|")
-    for path in sorted((ROOT / "profiles").glob("*.toml")):
+    for path in sorted((ROOT / "fieldtool" / "profiles").glob("*.toml")):
         profile = load_profile(path)
         for fault in FAULTS.get(profile.name, [None]):
             settled, times, worst, n = walk(profile, fault, rule)

@@ -20,11 +20,11 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
 
-from fieldtool.core.circuit import build_circuit  # noqa: E402
-from fieldtool.core.expect import period_average  # noqa: E402
-from fieldtool.core.profile import profile_from_dict  # noqa: E402
-from fieldtool.core.solver import initial_state, steady_state  # noqa: E402
-from fieldtool.core.spice import spice_netlist  # noqa: E402
+from fieldtool.core.circuit.expect import period_average  # noqa: E402
+from fieldtool.core.circuit.netlist import build_circuit  # noqa: E402
+from fieldtool.core.circuit.profile import profile_from_dict  # noqa: E402
+from fieldtool.core.circuit.solver import initial_state, steady_state  # noqa: E402
+from fieldtool.core.circuit.spice import spice_netlist  # noqa: E402
 
 
 def board(stages: int):

@@ -6,7 +6,7 @@ capacitors (±20 %), small-signal silicon diodes, a 220 kΩ load, a 10 MΩ meter
 
 from __future__ import annotations
 
-from fieldtool.core.profile import Profile, profile_from_dict
+from fieldtool.core.circuit.profile import Profile, profile_from_dict
 
 TEN_STAGE = {
     "board": {"name": "bench-dc-ladder-10", "topology": "dc-ladder", "stages": 10},

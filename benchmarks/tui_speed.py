@@ -29,7 +29,7 @@ sys.path.insert(0, str(ROOT))
 SAFETY_MS = 0
 CHILD = """
 import asyncio, sys
-from fieldtool.core.profile import load_profile
+from fieldtool.core.circuit.profile import load_profile
 from fieldtool.tui.app import SessionRequest, make_app
 from fieldtool.tui.meter_strip import MeterChoice
 from fieldtool.tui.probing import ProbingScreen
@@ -74,9 +74,9 @@ def startup_runs(profile: str, cache: str, runs: int) -> list[float]:
 
 async def reading_runs(profile_path: str, cache: str) -> tuple[list[float], list[float]]:
     """(accept-and-update seconds, accept-update-and-repaint seconds) for every node."""
-    from fieldtool.core.expect import expect
-    from fieldtool.core.faults import parse_fault
-    from fieldtool.core.profile import load_profile
+    from fieldtool.core.circuit.expect import expect
+    from fieldtool.core.circuit.profile import load_profile
+    from fieldtool.core.diagnosis.faults import parse_fault
     from fieldtool.tui.app import SessionRequest, make_app
     from fieldtool.tui.meter_strip import MeterChoice
     from fieldtool.tui.node_table import NodeTable
@@ -129,10 +129,10 @@ def main() -> None:
     """Run both measurements and print them with the machine."""
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--runs", type=int, default=5)
-    parser.add_argument("--profile", default=str(ROOT / "profiles" / "tidegauge-apd-bias.toml"))
+    parser.add_argument("--profile", default=str(ROOT / "fieldtool" / "profiles" / "tidegauge-apd-bias.toml"))
     args = parser.parse_args()
-    from fieldtool.core.dictionary import load_or_build
-    from fieldtool.core.profile import load_profile
+    from fieldtool.core.circuit.profile import load_profile
+    from fieldtool.core.diagnosis.dictionary_cache import load_or_build
 
     with tempfile.TemporaryDirectory() as cache:
         t0 = time.perf_counter()

@@ -16,6 +16,7 @@ from fieldtool.core.errors import FieldtoolError
 
 COMMAND_MODULES = (
     "fieldtool.commands.expect",
+    "fieldtool.commands.profiles",
     "fieldtool.commands.meters",
     "fieldtool.commands.history",
     "fieldtool.commands.diagnosis",

@@ -10,10 +10,10 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from fieldtool.core.profile import Profile, profile_from_dict
+from fieldtool.core.circuit.profile import Profile, profile_from_dict
 
 ROOT = Path(__file__).resolve().parent.parent
-PROFILES = sorted((ROOT / "profiles").glob("*.toml"))
+PROFILES = sorted((ROOT / "fieldtool" / "profiles").glob("*.toml"))
 
 BASE = {
     "board": {"name": "test-board", "topology": "dc-ladder", "polarity": "positive", "stages": 3},

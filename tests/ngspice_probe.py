@@ -2,14 +2,14 @@
 
 The reference readings for the diagnosis checks come from ngspice (a general-purpose SPICE
 simulator, Debian package ``ngspice``), not from fieldtool's own solver. The healthy netlist
-is ``fieldtool.core.spice.spice_netlist``; the fault is then written into the SPICE text
-independently of ``fieldtool.core.faults`` (an open part's lines are deleted, a short is a
+is ``fieldtool.core.circuit.spice.spice_netlist``; the fault is then written into the SPICE text
+independently of ``fieldtool.core.diagnosis.faults`` (an open part's lines are deleted, a short is a
 1 Ω resistor across the part, lost capacitance scales the capacitor's value), and the meter is
 a resistor from the probed node to ground. One ngspice run gives one node's reading, as a
 technician gets it by moving the probe.
 
 A reading counts only once it has settled. The run starts from the ideal-formula charge
-(``fieldtool.core.solver.initial_state``); period averages are measured at twelve equally
+(``fieldtool.core.circuit.solver.initial_state``); period averages are measured at twelve equally
 spaced periods, and the settled value is the Aitken Δ² extrapolation of the 4th, 8th and 12th
 (A. C. Aitken, Proc. R. Soc. Edinburgh 46, 1926), as in ``tests/core/test_ngspice_crosscheck``.
 The drift still to go, |settled − last period|, must be within 0.5 % or 20 mV (where the
@@ -29,9 +29,9 @@ from pathlib import Path
 
 import numpy as np
 
-from fieldtool.core.circuit import Circuit, Params
-from fieldtool.core.solver import initial_state
-from fieldtool.core.spice import spice_netlist
+from fieldtool.core.circuit.netlist import Circuit, Params
+from fieldtool.core.circuit.solver import initial_state
+from fieldtool.core.circuit.spice import spice_netlist
 from tests.conftest import NGSPICE
 
 SHORT_OHMS = 1.0  # a failed-short diode or capacitor reads about an ohm (common practice)

@@ -10,18 +10,20 @@ import tomllib
 from datetime import UTC, datetime
 from pathlib import Path
 
+from fieldtool.commands.boards import PROFILE_HELP, profile_arg
 from fieldtool.commands.expect import to_json as expectation_json
 from fieldtool.commands.expect import to_text as expectation_text
-from fieldtool.core.calibrate import calibrate
-from fieldtool.core.diagnosis import Diagnosis, diagnose
-from fieldtool.core.dictionary import FaultDictionary
-from fieldtool.core.dictionary_cache import default_cache_dir, load_or_build
+from fieldtool.core.circuit.expect import expect
+from fieldtool.core.circuit.profile import Profile, profile_from_dict
+from fieldtool.core.circuit.profile_write import to_toml
+from fieldtool.core.diagnosis.calibrate import calibrate
+from fieldtool.core.diagnosis.dictionary import FaultDictionary
+from fieldtool.core.diagnosis.dictionary_cache import default_cache_dir, load_or_build
+from fieldtool.core.diagnosis.faults import describe, parse_fault
+from fieldtool.core.diagnosis.priors import Priors, fleet_priors, published_priors
+from fieldtool.core.diagnosis.ranking import Diagnosis, diagnose
 from fieldtool.core.errors import InputError, ProfileError
-from fieldtool.core.expect import expect
-from fieldtool.core.faults import describe, parse_fault
-from fieldtool.core.priors import Priors, fleet_priors, published_priors
-from fieldtool.core.profile import Profile, load_profile, profile_from_dict
-from fieldtool.core.profile_write import to_toml
+from fieldtool.core.history.fleet import confirmed_failures
 from fieldtool.core.readings import load_readings
 
 FAULT_HELP = (
@@ -39,7 +41,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         help="expected readings with one fault injected",
         description="What every node should read with the given fault (same output as expect).",
     )
-    inj.add_argument("profile", help="board profile (.toml)")
+    inj.add_argument("profile", help=PROFILE_HELP)
     inj.add_argument("--fault", required=True, help=FAULT_HELP)
     inj.add_argument("--json", action="store_true", help="one JSON object on stdout")
     inj.set_defaults(handler=run_inject)
@@ -49,7 +51,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         help="rank the likely failed part from node readings, and the next node to probe",
         description="Readings CSV: header node,volts (optional ripple_vpp); OL for overload.",
     )
-    dia.add_argument("profile", help="board profile (.toml)")
+    dia.add_argument("profile", help=PROFILE_HELP)
     dia.add_argument("--readings", required=True, help="CSV file: node,volts[,ripple_vpp]")
     dia.add_argument("--logs", help="history folder whose confirmed repairs set the priors")
     dia.add_argument("--cache", help="dictionary cache folder (default: $FIELDTOOL_CACHE)")
@@ -61,7 +63,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         help="fit drive swing and diode drop to readings from a known-good board",
         description="Least-squares fit to a golden board; writes a new profile.",
     )
-    cal.add_argument("profile", help="board profile (.toml)")
+    cal.add_argument("profile", help=PROFILE_HELP)
     cal.add_argument("--readings", required=True, help="CSV of a known-good board's readings")
     cal.add_argument("--out", required=True, help="where to write the fitted profile (.toml)")
     cal.add_argument("--force", action="store_true", help="overwrite --out if it exists")
@@ -74,7 +76,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
 
 def run_inject(args: argparse.Namespace) -> int:
     """Handle ``fieldtool inject``."""
-    profile = load_profile(args.profile)
+    profile = profile_arg(args.profile)
     fault = parse_fault(args.fault, profile)
     result = expect(profile, fault=fault)
     if args.json:
@@ -117,10 +119,6 @@ def priors_for(profile: Profile, d: FaultDictionary, logs: str | None) -> Priors
     """Fleet priors from a history folder, or the published ones."""
     if not logs:
         return published_priors(profile, d.hypotheses)
-    try:
-        from fieldtool.core.fleet import confirmed_failures
-    except ImportError:  # history fleet view not installed in this build
-        return published_priors(profile, d.hypotheses)
     if not Path(logs).is_dir():
         raise InputError(f"--logs {logs}: no such folder")
     return fleet_priors(profile, d.hypotheses, confirmed_failures(logs, profile.name))
@@ -128,7 +126,7 @@ def priors_for(profile: Profile, d: FaultDictionary, logs: str | None) -> Priors
 
 def run_diagnose(args: argparse.Namespace) -> int:
     """Handle ``fieldtool diagnose``."""
-    profile = load_profile(args.profile)
+    profile = profile_arg(args.profile)
     d = dictionary_for(profile, args.cache)
     readings = load_readings(args.readings, d.nodes, d.labels)
     result = diagnose(d, readings, priors_for(profile, d, args.logs))
@@ -183,8 +181,8 @@ def run_calibrate(args: argparse.Namespace) -> int:
     out = Path(args.out)
     if out.exists() and not args.force:
         raise InputError(f"{out} exists; pass --force to overwrite it, or choose another --out")
-    profile = load_profile(args.profile)
-    from fieldtool.core.circuit import build_circuit
+    profile = profile_arg(args.profile)
+    from fieldtool.core.circuit.netlist import build_circuit
 
     circuit, _ = build_circuit(profile)
     nodes = [circuit.name(i) for i in circuit.probe_nodes]

@@ -5,8 +5,8 @@ from __future__ import annotations
 import json
 import math
 
-from fieldtool.core.expect import Expectation, expect
-from fieldtool.core.profile import load_profile
+from fieldtool.commands.boards import PROFILE_HELP, profile_arg
+from fieldtool.core.circuit.expect import Expectation, expect
 
 
 def register(subparsers) -> None:
@@ -16,7 +16,7 @@ def register(subparsers) -> None:
         help="expected reading at every node of a board, and its safety figures",
         description="Expected DC reading (as the meter reads it) and ripple at every node.",
     )
-    p.add_argument("profile", help="board profile (.toml), e.g. profiles/tidegauge-apd-bias.toml")
+    p.add_argument("profile", help=PROFILE_HELP)
     p.add_argument("--load-ohms", type=float, help="use this load instead of the profile's")
     p.add_argument("--json", action="store_true", help="one JSON object on stdout")
     p.set_defaults(handler=run)
@@ -24,7 +24,7 @@ def register(subparsers) -> None:
 
 def run(args) -> int:
     """Handle `fieldtool expect`."""
-    profile = load_profile(args.profile)
+    profile = profile_arg(args.profile)
     if args.load_ohms is not None:
         profile = profile.with_load_ohms(args.load_ohms)
     result = expect(profile)

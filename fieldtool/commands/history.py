@@ -7,25 +7,22 @@ The logs folder is ``--logs DIR``, else ``$FIELDTOOL_LOGS``, else ``./logs``.
 from __future__ import annotations
 
 import argparse
-import difflib
 import json
 import os
-from pathlib import Path
 
+from fieldtool.commands.boards import existing_logs, load_board, profile_arg
 from fieldtool.commands.history_text import fleet_text, safe, timeline
+from fieldtool.core.circuit.library import looks_like_path
 from fieldtool.core.errors import InputError
-from fieldtool.core.fleet import fleet_view
 from fieldtool.core.history import (
     ENV_VAR,
     OUTCOMES,
     HistoryError,
-    NotFoundError,
-    check_name,
-    read_board,
     resolve_logs_dir,
 )
-from fieldtool.core.history_merge import merge
-from fieldtool.core.history_sessions import confirmed_in, group_sessions
+from fieldtool.core.history.fleet import fleet_view
+from fieldtool.core.history.merge import merge
+from fieldtool.core.history.sessions import confirmed_in, group_sessions
 
 LOGS_HELP = f"logs folder (default: ${ENV_VAR}, else ./logs)"
 
@@ -73,35 +70,6 @@ def register(subparsers: argparse._SubParsersAction) -> None:
 
 def _logs_without_subcommand(args: argparse.Namespace) -> int:
     raise InputError("'fieldtool logs' needs a subcommand: merge (see 'fieldtool logs --help')")
-
-
-def existing_logs(option: str | None) -> Path:
-    """The logs folder to read; a clear error when it is missing or not a folder."""
-    path = resolve_logs_dir(option, os.environ)
-    if not path.exists():
-        raise NotFoundError(f"logs folder {path} does not exist; pass --logs DIR or set {ENV_VAR}")
-    if not path.is_dir():
-        raise HistoryError(f"logs folder {path} is not a folder; pass --logs DIR")
-    return path
-
-
-def _known_serials(logs: Path) -> list[str]:
-    serials = set()
-    for folder in logs.iterdir():
-        if folder.is_dir() and not folder.name.startswith("."):
-            serials.update(p.stem for p in folder.glob("*.jsonl"))
-    return sorted(serials)
-
-
-def load_board(logs: Path, serial: str):
-    """A board's history; an unknown serial names the closest ones that exist."""
-    check_name(serial)
-    try:
-        return read_board(logs, serial)
-    except NotFoundError:
-        close = difflib.get_close_matches(serial, _known_serials(logs), n=3)
-        hint = f"; did you mean {', '.join(close)}?" if close else ""
-        raise NotFoundError(f"no history for board {serial!r} in {logs}{hint}") from None
 
 
 def _conflicts(history) -> list[str]:
@@ -187,10 +155,8 @@ def run_merge(args: argparse.Namespace) -> int:
 
 def profile_name_of(text: str) -> str:
     """A profile name from a name or a ``.toml`` path."""
-    if text.endswith(".toml"):
-        from fieldtool.core.profile import load_profile
-
-        return load_profile(text).name
+    if looks_like_path(text):
+        return profile_arg(text).name
     return text
 
 

@@ -20,11 +20,16 @@ import os
 from pathlib import Path
 
 from fieldtool import __version__
+from fieldtool.commands.boards import PROFILE_HELP, profile_arg
 from fieldtool.commands.history_text import safe
-from fieldtool.core.circuit import default_designators
-from fieldtool.core.errors import FieldtoolError, InputError
-from fieldtool.core.faults import BOARD_TARGETS, display_name, parse_fault
-from fieldtool.core.fleet import confirmed_failures
+from fieldtool.core.circuit.netlist import default_designators
+from fieldtool.core.circuit.profile import Profile
+from fieldtool.core.circuit.spec import display_name
+from fieldtool.core.diagnosis.dictionary_cache import load_or_build
+from fieldtool.core.diagnosis.faults import BOARD_TARGETS, parse_fault
+from fieldtool.core.diagnosis.priors import fleet_priors
+from fieldtool.core.diagnosis.ranking import diagnose
+from fieldtool.core.errors import InputError
 from fieldtool.core.history import (
     Action,
     Diagnosis,
@@ -39,7 +44,7 @@ from fieldtool.core.history import (
     check_name,
     resolve_logs_dir,
 )
-from fieldtool.core.profile import Profile, load_profile
+from fieldtool.core.history.fleet import confirmed_failures
 from fieldtool.core.readings import NodeReading, load_readings
 
 TOP_SUSPECTS = 5  # suspects kept in the stored diagnosis snapshot
@@ -53,7 +58,7 @@ def register(subparsers: argparse._SubParsersAction, logs_help: str, outcomes) -
         description=__doc__.split("\n\n")[1],
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
-    p.add_argument("profile", help="board profile (.toml)")
+    p.add_argument("profile", help=PROFILE_HELP)
     p.add_argument("--board", required=True, help="board serial")
     p.add_argument("--readings", required=True, help="readings CSV (node,volts[,ripple_vpp])")
     p.add_argument(
@@ -110,19 +115,6 @@ def parse_action(text: str, profile: Profile) -> Action:
     return Action(designator=display_name(profile, target), done=done, mode=mode)
 
 
-def _engine():
-    try:
-        from fieldtool.core.diagnosis import diagnose
-        from fieldtool.core.dictionary import load_or_build
-        from fieldtool.core.priors import fleet_priors
-    except ImportError:
-        raise FieldtoolError(
-            "the diagnosis engine is not part of this install; 'record' needs it",
-            title="Not available",
-        ) from None
-    return diagnose, load_or_build, fleet_priors
-
-
 def _measurements(cls, readings: tuple[NodeReading, ...], source: str) -> list[Reading]:
     return [
         cls(
@@ -138,7 +130,7 @@ def _measurements(cls, readings: tuple[NodeReading, ...], source: str) -> list[R
 
 def run_record(args: argparse.Namespace) -> int:
     """Handle ``fieldtool record``."""
-    profile = load_profile(args.profile)
+    profile = profile_arg(args.profile)
     serial = check_name(args.board)
     logs = resolve_logs_dir(args.logs, os.environ)
     if logs.exists() and not logs.is_dir():
@@ -149,7 +141,6 @@ def run_record(args: argparse.Namespace) -> int:
     if actions and (args.part or args.note):
         a = actions[0]
         actions = [Action(a.designator, a.done, a.mode, args.part, args.note or "")]
-    diagnose, load_or_build, fleet_priors = _engine()
     dictionary = load_or_build(profile)
     readings = load_readings(args.readings, dictionary.nodes, profile.labels)
     after = load_readings(args.verify, dictionary.nodes, profile.labels) if args.verify else ()

@@ -9,16 +9,17 @@ import uuid
 from pathlib import Path
 from urllib.parse import quote
 
+from fieldtool.commands.boards import existing_logs, load_board, profile_arg
 from fieldtool.commands.history_text import safe
+from fieldtool.core.circuit.library import available, user_profiles_dir
+from fieldtool.core.circuit.profile import Profile
 from fieldtool.core.errors import FieldtoolError, InputError
-from fieldtool.core.history_sessions import group_sessions
-from fieldtool.core.profile import Profile, load_profile
-from fieldtool.core.report import build_report, expectations_for, pick_sessions
-from fieldtool.core.report_plot import MISSING, ladder_plot, plotting_available
-from fieldtool.core.report_render import to_html, to_markdown
+from fieldtool.core.history.sessions import group_sessions
+from fieldtool.core.report.content import build_report, expectations_for, pick_sessions
+from fieldtool.core.report.plot import MISSING, ladder_plot, plotting_available
+from fieldtool.core.report.render import to_html, to_markdown
 
 FORMATS = {".html": "html", ".htm": "html", ".md": "md"}
-BUNDLED = Path(__file__).resolve().parent.parent.parent / "profiles"
 
 
 def register(subparsers: argparse._SubParsersAction, logs_help: str) -> None:
@@ -35,8 +36,8 @@ def register(subparsers: argparse._SubParsersAction, logs_help: str) -> None:
     p.add_argument("--session", help="one session only: its id or the start of it")
     p.add_argument(
         "--profile",
-        help="board profile (.toml) for the expected readings (default: profiles/NAME.toml "
-        "here, then the bundled profiles)",
+        help="board profile (a name or a .toml file) for the expected readings (default: the "
+        "profile the history names, from your profiles folder or the shipped ones)",
     )
     p.set_defaults(handler=run_report)
 
@@ -44,17 +45,16 @@ def register(subparsers: argparse._SubParsersAction, logs_help: str) -> None:
 def find_profile(name: str, option: str | None) -> tuple[Profile | None, str]:
     """The profile to take expectations from, and a note when there is none or it differs."""
     if option:
-        profile = load_profile(option)
+        profile = profile_arg(option)
         if profile.name != name:
             return profile, f"profile {option} is {profile.name!r}, the history says {name!r}"
         return profile, ""
-    for folder in (Path.cwd() / "profiles", BUNDLED):
-        candidate = folder / f"{name}.toml"
-        if candidate.is_file():
-            return load_profile(candidate), ""
+    for entry in available(user_profiles_dir(os.environ)):
+        if entry.name == name:
+            return entry.load(), ""
     return None, (
-        f"no profile file found for {name!r} (looked for profiles/{name}.toml here and in the "
-        "bundled profiles): expected values left out; pass --profile FILE"
+        f"no profile named {name!r} in your profiles folder or among the shipped ones: "
+        "expected values left out; pass --profile FILE"
     )
 
 
@@ -71,7 +71,6 @@ def _write(path: Path, data: bytes) -> None:
 
 def run_report(args: argparse.Namespace) -> int:
     """Handle ``fieldtool report``."""
-    from fieldtool.commands.history import existing_logs, load_board
 
     out = Path(args.out)
     kind = FORMATS.get(out.suffix.lower())

@@ -5,9 +5,9 @@ from __future__ import annotations
 import unicodedata
 from typing import Any
 
-from fieldtool.core.fleet import FleetView
 from fieldtool.core.history import BoardHistory, Record, time_key
-from fieldtool.core.history_sessions import Session, confirmed_in
+from fieldtool.core.history.fleet import FleetView
+from fieldtool.core.history.sessions import Session, confirmed_in
 
 LIST_LIMIT = 15  # rows per list in text output; --json has them all
 

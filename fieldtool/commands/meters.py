@@ -8,9 +8,9 @@ import random
 import signal
 import sys
 
+from fieldtool.commands.boards import PROFILE_HELP, profile_arg
+from fieldtool.core.diagnosis.faults import describe, parse_fault
 from fieldtool.core.errors import InputError
-from fieldtool.core.faults import describe, parse_fault
-from fieldtool.core.profile import load_profile
 from fieldtool.meters.scpi import ScpiMeter
 from fieldtool.meters.settings import MeterSettings, load_settings, with_overrides
 from fieldtool.meters.settle import settle
@@ -43,7 +43,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
             " app to the path it prints, and type node names here to move the probe."
         ),
     )
-    sim.add_argument("profile", help="board profile (.toml), e.g. profiles/tidegauge-apd-bias.toml")
+    sim.add_argument("profile", help=PROFILE_HELP)
     sim.add_argument(
         "--fault", help="fault spec such as D5:open or C3:lowcap=0.3; 'random' picks one"
     )
@@ -150,7 +150,7 @@ def run_sim_meter(args: argparse.Namespace) -> int:
     # Ctrl-C is how sim-meter stops; a shell that starts it in the background hands it an
     # ignored SIGINT, so ask for the usual KeyboardInterrupt back.
     signal.signal(signal.SIGINT, signal.default_int_handler)
-    profile = load_profile(args.profile)
+    profile = profile_arg(args.profile)
     seed = args.seed if args.seed is not None else random.SystemRandom().randrange(1_000_000)
     fault = _chosen_fault(args, profile, seed)
     meter = SimulatedMeter(profile, fault, seed=seed)

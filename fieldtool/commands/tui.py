@@ -9,14 +9,16 @@ import sys
 import tempfile
 from pathlib import Path
 
+from fieldtool.commands.boards import PROFILE_HELP, profile_arg
 from fieldtool.core import history as hist
-from fieldtool.core.circuit import build_circuit
+from fieldtool.core.circuit.library import user_profiles_dir
+from fieldtool.core.circuit.netlist import build_circuit
+from fieldtool.core.circuit.profile import Profile
+from fieldtool.core.diagnosis.faults import Fault, catalog
 from fieldtool.core.errors import InputError
-from fieldtool.core.faults import Fault, catalog
-from fieldtool.core.profile import Profile, load_profile
 from fieldtool.meters.settings import MeterSettings, load_settings, with_overrides
 
-DEMO_PROFILE = Path(__file__).resolve().parents[2] / "profiles" / "tidegauge-apd-bias.toml"
+DEMO_PROFILE = "tidegauge-apd-bias"  # a shipped profile, by name
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:
@@ -33,7 +35,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     probe = subparsers.add_parser(
         "probe", parents=[common], help="open the probing screen for one board"
     )
-    probe.add_argument("profile", help="board profile TOML file")
+    probe.add_argument("profile", help=PROFILE_HELP)
     probe.add_argument("--board", required=True, help="the board's serial")
     probe.add_argument("--port", help="meter port or URL (omit to type readings)")
     probe.add_argument("--protocol", choices=("scpi", "stream"))
@@ -48,7 +50,11 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         "demo", parents=[common], help="practise on an invented board with a hidden fault"
     )
     demo.add_argument("--seed", type=int, default=1, help="which hidden fault (default 1)")
-    demo.add_argument("--profile", default=str(DEMO_PROFILE), help="board profile for the demo")
+    demo.add_argument(
+        "--profile",
+        default=DEMO_PROFILE,
+        help=f"board profile for the demo (default {DEMO_PROFILE})",
+    )
     demo.set_defaults(handler=run_demo, demo_logs=True)
 
     # argparse keeps one defaults table per parser and shares it with this argument group:
@@ -83,6 +89,7 @@ def _run(args: argparse.Namespace, request=None, settings: MeterSettings | None 
     app = make_app(
         logs_dir=logs,
         request=request,
+        profiles_dir=user_profiles_dir(os.environ),
         cache_dir=getattr(args, "cache", None),
         technician=getattr(args, "technician", "") or "",
         settings=settings,
@@ -109,7 +116,7 @@ def run_probe(args: argparse.Namespace) -> int:
     from fieldtool.tui.app import SessionRequest
     from fieldtool.tui.meter_strip import MeterChoice
 
-    profile = load_profile(args.profile)
+    profile = profile_arg(args.profile)
     serial = hist.check_name(args.board)
     settings = _settings(args)
     meter = (
@@ -134,7 +141,7 @@ def run_demo(args: argparse.Namespace) -> int:
     from fieldtool.tui.app import SessionRequest
     from fieldtool.tui.meter_strip import MeterChoice
 
-    profile = load_profile(args.profile)
+    profile = profile_arg(args.profile)
     fault = demo_fault(profile, args.seed)
     meter = MeterChoice("simulated", fault=fault, seed=args.seed)
     serial = f"DEMO-{args.seed:04d}"

@@ -31,10 +31,10 @@ from dataclasses import dataclass
 import numpy as np
 
 from fieldtool import __version__
-from fieldtool.core.circuit import build_circuit, default_nodes
-from fieldtool.core.expect import Expectation, expect
-from fieldtool.core.faults import Fault, apply_fault, catalog, parse_fault
-from fieldtool.core.profile import Profile
+from fieldtool.core.circuit.expect import Expectation, expect
+from fieldtool.core.circuit.netlist import build_circuit, default_nodes
+from fieldtool.core.circuit.profile import Profile
+from fieldtool.core.diagnosis.faults import Fault, apply_fault, catalog, parse_fault
 from fieldtool.meters.errors import MeterDisconnected, UnknownNode
 from fieldtool.meters.parse import Reading, overload_reading
 

@@ -14,17 +14,16 @@ from textual.screen import Screen
 from textual.worker import Worker, WorkerState
 
 from fieldtool.core import history as hist
-from fieldtool.core.dictionary import FaultDictionary
+from fieldtool.core.circuit.profile import Profile
+from fieldtool.core.diagnosis.dictionary import FaultDictionary
+from fieldtool.core.diagnosis.faults import Fault
 from fieldtool.core.errors import FieldtoolError
-from fieldtool.core.faults import Fault
-from fieldtool.core.profile import Profile
 from fieldtool.meters.settings import MeterSettings
 from fieldtool.tui.dialogs import ErrorDialog, NoticeDialog, ResumeDialog
 from fieldtool.tui.meter_strip import MeterChoice
 from fieldtool.tui.session import BoardSession
 from fieldtool.tui.writer import HistoryWriter
 
-ROOT = Path(__file__).resolve().parents[2]
 PALETTE_WORDS = "Command palette: the main actions by name"
 
 
@@ -33,7 +32,7 @@ class AppConfig:
     """Where things live and who is working; passed in, never read from the environment here."""
 
     logs_dir: Path
-    profiles_dir: Path = ROOT / "profiles"
+    profiles_dir: Path | None = None  # your own profiles; the shipped ones are always listed
     cache_dir: Path | None = None
     technician: str = ""
     settings: MeterSettings = field(default_factory=MeterSettings)
@@ -292,7 +291,7 @@ def make_app(
     """The app, shared by the CLI and the tests."""
     config = AppConfig(
         logs_dir=Path(logs_dir),
-        profiles_dir=Path(profiles_dir) if profiles_dir else ROOT / "profiles",
+        profiles_dir=Path(profiles_dir) if profiles_dir else None,
         cache_dir=Path(cache_dir) if cache_dir else None,
         technician=technician,
         settings=settings or MeterSettings(),

@@ -11,10 +11,10 @@ from textual.content import Content
 from textual.screen import ModalScreen
 from textual.widgets import Button, DataTable, Input, Label, Select, Static
 
+from fieldtool.core.circuit.profile import Profile
+from fieldtool.core.circuit.safety import CAUTION, SafetyFigures, format_duration
+from fieldtool.core.diagnosis.faults import BOARD_TARGETS, modes_for, target_kind
 from fieldtool.core.errors import FieldtoolError
-from fieldtool.core.faults import BOARD_TARGETS, modes_for, target_kind
-from fieldtool.core.profile import Profile
-from fieldtool.core.safety import CAUTION, SafetyFigures, format_duration
 from fieldtool.tui.view import volts_text
 
 DONE_WORDS = ("replaced", "resoldered", "cleaned", "reworked", "adjusted", "inspected only")
@@ -266,6 +266,6 @@ class SafetyDetails(ModalScreen[None]):
 
 def part_choices(profile: Profile, refs: list[str]) -> list[tuple[str, str]]:
     """(label shown, default ref) for every part and board target, in board order."""
-    from fieldtool.core.faults import display_name
+    from fieldtool.core.circuit.spec import display_name
 
     return [(display_name(profile, r), r) for r in refs] + [(t, t) for t in BOARD_TARGETS]

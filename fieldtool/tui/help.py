@@ -7,7 +7,7 @@ from textual.binding import Binding
 from textual.screen import ModalScreen
 from textual.widgets import Footer, Label, Markdown
 
-from fieldtool.core.safety import CAUTION
+from fieldtool.core.circuit.safety import CAUTION
 
 TYPED = """\
 **Typed readings.** Type a digit (or press **t**) to start; Enter takes the value into the

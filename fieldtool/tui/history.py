@@ -128,11 +128,11 @@ class FleetScreen(Screen):
     @work(thread=True, exclusive=True, exit_on_error=False)
     def _count(self) -> None:
         try:
-            fleet = importlib.import_module("fieldtool.core.fleet")
+            fleet = importlib.import_module("fieldtool.core.history.fleet")
         except ModuleNotFoundError as exc:
-            if exc.name != "fieldtool.core.fleet":
+            if exc.name != "fieldtool.core.history.fleet":
                 raise
-            note = "Fleet counts need fieldtool.core.fleet, which this build does not have."
+            note = "Fleet counts need fieldtool.core.history.fleet, which this build does not have."
             self.app.call_from_thread(self._show, {}, note)
             return
         try:

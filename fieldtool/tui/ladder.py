@@ -14,8 +14,8 @@ from textual.content import Content
 from textual.reactive import reactive
 from textual.widget import Widget
 
-from fieldtool.core.faults import display_name
-from fieldtool.core.profile import Profile
+from fieldtool.core.circuit.profile import Profile
+from fieldtool.core.circuit.spec import display_name
 from fieldtool.tui.view import STYLE, SYMBOL, UNREAD
 
 RANK_MARK = "¹²³"  # the top three suspects carry their rank, not only a colour

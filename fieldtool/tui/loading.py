@@ -9,11 +9,11 @@ from textual.screen import Screen
 from textual.widgets import Footer, Label, ProgressBar, Static
 from textual.worker import get_current_worker
 
-from fieldtool.core.dictionary import load_or_build
+from fieldtool.core.circuit.safety import CAUTION
+from fieldtool.core.diagnosis.dictionary_cache import load_or_build
+from fieldtool.core.diagnosis.priors import published_priors
 from fieldtool.core.errors import FieldtoolError
 from fieldtool.core.history import HistoryError
-from fieldtool.core.priors import published_priors
-from fieldtool.core.safety import CAUTION
 from fieldtool.tui.session import choose_priors, unfinished_session
 
 

@@ -21,9 +21,9 @@ from textual.reactive import reactive
 from textual.widgets import Sparkline, Static
 from textual.worker import Worker, WorkerState, get_current_worker
 
+from fieldtool.core.circuit.profile import Profile
+from fieldtool.core.diagnosis.faults import Fault
 from fieldtool.core.errors import FieldtoolError
-from fieldtool.core.faults import Fault
-from fieldtool.core.profile import Profile
 from fieldtool.meters.errors import MeterTimeout
 from fieldtool.meters.parse import Reading
 from fieldtool.meters.settings import MeterSettings, SettleRule

@@ -15,7 +15,7 @@ from textual.message import Message
 from textual.reactive import reactive
 from textual.widget import Widget
 
-from fieldtool.core.dictionary import FaultDictionary
+from fieldtool.core.diagnosis.dictionary import FaultDictionary
 from fieldtool.tui.view import SHORT, STYLE, Verdict, band_text, deviation_text, verdict, volts_text
 
 WIDE_TABLE = 62  # content width from which test points and expected values show

@@ -5,14 +5,14 @@ from __future__ import annotations
 from textual.content import Content
 from textual.widgets import Static
 
-from fieldtool.core.diagnosis import Diagnosis
-from fieldtool.core.safety import (
+from fieldtool.core.circuit.safety import (
     CAUTION,
     HAZARD_NOTE,
     HAZARD_STANDARD,
     SafetyFigures,
     format_duration,
 )
+from fieldtool.core.diagnosis.ranking import Diagnosis
 from fieldtool.tui.view import bar, percent_text, volts_text
 
 

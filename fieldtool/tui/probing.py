@@ -12,9 +12,10 @@ from textual.content import Content
 from textual.screen import Screen
 from textual.widgets import Footer, Input, Static
 
+from fieldtool.core.circuit.safety import node_hazard, safety_figures
+from fieldtool.core.circuit.spec import display_name
+from fieldtool.core.diagnosis.faults import describe
 from fieldtool.core.errors import FieldtoolError
-from fieldtool.core.faults import describe, display_name
-from fieldtool.core.safety import node_hazard, safety_figures
 from fieldtool.meters.parse import parse_typed
 from fieldtool.tui.dialogs import (
     ActionDialog,

@@ -16,11 +16,11 @@ from pathlib import Path
 
 from fieldtool import __version__
 from fieldtool.core import history as hist
-from fieldtool.core.circuit import build_circuit
-from fieldtool.core.diagnosis import Diagnosis, diagnose
-from fieldtool.core.dictionary import FaultDictionary
-from fieldtool.core.priors import fleet_priors, published_priors
-from fieldtool.core.profile import Profile
+from fieldtool.core.circuit.netlist import build_circuit
+from fieldtool.core.circuit.profile import Profile
+from fieldtool.core.diagnosis.dictionary import FaultDictionary
+from fieldtool.core.diagnosis.priors import fleet_priors, published_priors
+from fieldtool.core.diagnosis.ranking import Diagnosis, diagnose
 from fieldtool.core.readings import NodeReading
 
 SNAPSHOT_SUSPECTS = 5  # how many suspects a Diagnosis record keeps
@@ -44,9 +44,9 @@ class Taken:
 def choose_priors(profile: Profile, dictionary: FaultDictionary, logs_dir: Path):
     """Fleet priors when the fleet's confirmed failures are available, else published ones."""
     try:
-        fleet = importlib.import_module("fieldtool.core.fleet")
+        fleet = importlib.import_module("fieldtool.core.history.fleet")
     except ModuleNotFoundError as exc:
-        if exc.name != "fieldtool.core.fleet":
+        if exc.name != "fieldtool.core.history.fleet":
             raise
         return published_priors(profile, dictionary.hypotheses)
     confirmed = fleet.confirmed_failures(logs_dir, profile.name)

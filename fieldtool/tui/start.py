@@ -23,24 +23,25 @@ from textual.widgets import (
 from textual.widgets.option_list import Option
 
 from fieldtool.core import history as hist
+from fieldtool.core.circuit.library import ProfileEntry, available
+from fieldtool.core.circuit.safety import CAUTION
 from fieldtool.core.errors import FieldtoolError, InputError
-from fieldtool.core.profile import load_profile
-from fieldtool.core.safety import CAUTION
 from fieldtool.tui.meter_strip import MeterChoice
 
 METER_KINDS = ("typed", "port", "simulated")
 
 
-def list_profiles(folder: Path) -> list[tuple[Path, str]]:
-    """(path, one-line description) of every profile in a folder, by name."""
+def list_profiles(folder: Path | None) -> list[tuple[ProfileEntry, str]]:
+    """(entry, one-line description) of every profile: your folder's, then the shipped ones."""
     found = []
-    for path in sorted(Path(folder).glob("*.toml")):
+    for entry in available(folder):
         try:
-            p = load_profile(path)
+            p = entry.load()
         except FieldtoolError as exc:
-            found.append((path, f"{path.stem}: cannot be used ({exc.title.lower()})"))
+            found.append((entry, f"{entry.name}: cannot be used ({exc.title.lower()})"))
             continue
-        found.append((path, f"{p.name}: {p.description}" if p.description else p.name))
+        text = f"{p.name}: {p.description}" if p.description else p.name
+        found.append((entry, text if entry.shipped else f"{text} (your folder)"))
     return found
 
 
@@ -86,7 +87,7 @@ class StartScreen(Screen):
             with Vertical(id="start-left"):
                 yield Label("Board profile")
                 yield OptionList(
-                    *[Option(text, id=str(path)) for path, text in self.profiles],
+                    *[Option(text, id=str(i)) for i, (_, text) in enumerate(self.profiles)],
                     id="profiles",
                 )
                 yield Input(
@@ -131,15 +132,16 @@ class StartScreen(Screen):
 
     # --- what is chosen ------------------------------------------------------------------
 
-    def chosen_profile_path(self) -> Path | None:
+    def chosen_entry(self) -> ProfileEntry | None:
         """The profile path typed, else the one highlighted in the list."""
         typed = self.query_one("#profile-path", Input).value.strip()
         if typed:
-            return Path(typed).expanduser()
+            path = Path(typed).expanduser()
+            return ProfileEntry(path.stem, str(path), shipped=False)
         options = self.query_one("#profiles", OptionList)
         if options.highlighted is None:
             return None
-        return Path(options.get_option_at_index(options.highlighted).id)
+        return self.profiles[int(options.get_option_at_index(options.highlighted).id)][0]
 
     def meter_choice(self, profile) -> MeterChoice:
         """The meter as chosen; a port is required for a meter on a port."""
@@ -156,12 +158,12 @@ class StartScreen(Screen):
 
     @on(OptionList.OptionHighlighted, "#profiles")
     def _profile_changed(self) -> None:
-        path = self.chosen_profile_path()
+        entry = self.chosen_entry()
         boards = self.query_one("#boards", OptionList)
         boards.clear_options()
-        if path is None:
+        if entry is None:
             return
-        for serial in past_boards(self.config.logs_dir, path.stem):
+        for serial in past_boards(self.config.logs_dir, entry.name):
             boards.add_option(Option(serial, id=serial))
 
     @on(OptionList.OptionSelected, "#boards")
@@ -190,10 +192,10 @@ class StartScreen(Screen):
         from fieldtool.tui.app import SessionRequest
 
         try:
-            path = self.chosen_profile_path()
-            if path is None:
+            entry = self.chosen_entry()
+            if entry is None:
                 raise InputError("no profile chosen; pick one from the list or type a path")
-            profile = load_profile(path)
+            profile = entry.load()
             serial = hist.check_name(self.query_one("#serial", Input).value.strip())
             request = SessionRequest(profile, serial, self.meter_choice(profile))
         except FieldtoolError as exc:

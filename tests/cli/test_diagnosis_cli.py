@@ -14,10 +14,10 @@ from dataclasses import replace
 import pytest
 
 from fieldtool.cli import main
-from fieldtool.core.circuit import build_circuit
-from fieldtool.core.expect import expect
-from fieldtool.core.faults import catalog
-from fieldtool.core.profile import load_profile
+from fieldtool.core.circuit.expect import expect
+from fieldtool.core.circuit.netlist import build_circuit
+from fieldtool.core.circuit.profile import load_profile
+from fieldtool.core.diagnosis.faults import catalog
 from tests.conftest import PROFILES
 
 FAULT = "D2:open"  # on every topology: stage 1's output diode (ladders), P1 → P2 (Dickson)

@@ -155,6 +155,6 @@ def test_fleet_text_and_json(logs, capsys):
 def test_fleet_accepts_the_profile_file(logs, capsys):
     from tests.conftest import ROOT
 
-    toml = ROOT / "profiles" / f"{PROFILE}.toml"
+    toml = ROOT / "fieldtool" / "profiles" / f"{PROFILE}.toml"
     code, out, _ = _run(capsys, "fleet", str(toml), "--logs", str(logs), "--json")
     assert code == 0 and json.loads(out)["boards"] == 2

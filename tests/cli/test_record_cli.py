@@ -9,17 +9,17 @@ import pytest
 from fieldtool.cli import main
 from fieldtool.commands.history_record import parse_action
 from fieldtool.core import history as h
-from fieldtool.core.dictionary import load_or_build
+from fieldtool.core.circuit.expect import expect
+from fieldtool.core.circuit.profile import load_profile
+from fieldtool.core.diagnosis.dictionary_cache import load_or_build
+from fieldtool.core.diagnosis.faults import Fault
+from fieldtool.core.diagnosis.priors import fleet_priors, published_priors
 from fieldtool.core.errors import InputError
-from fieldtool.core.expect import expect
-from fieldtool.core.faults import Fault
-from fieldtool.core.fleet import confirmed_failures
-from fieldtool.core.priors import fleet_priors, published_priors
-from fieldtool.core.profile import load_profile
+from fieldtool.core.history.fleet import confirmed_failures
 from fieldtool.core.readings import NodeReading, readings_csv
 from tests.conftest import ROOT
 
-PROFILE_PATH = ROOT / "profiles" / "datalogger-eeprom-dickson.toml"
+PROFILE_PATH = ROOT / "fieldtool" / "profiles" / "datalogger-eeprom-dickson.toml"
 
 
 @pytest.fixture(autouse=True)

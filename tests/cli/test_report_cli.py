@@ -9,8 +9,8 @@ import pytest
 
 from fieldtool.cli import main
 from fieldtool.core import history as h
-from fieldtool.core.profile import load_profile
-from fieldtool.core.report import expectations_for
+from fieldtool.core.circuit.profile import load_profile
+from fieldtool.core.report.content import expectations_for
 from tests.conftest import ROOT
 from tests.history.helpers import day
 
@@ -27,7 +27,7 @@ def _engine_cache(tmp_path_factory, monkeypatch):
 
 @pytest.fixture
 def expected():
-    return expectations_for(load_profile(ROOT / "profiles" / f"{PROFILE}.toml"))
+    return expectations_for(load_profile(ROOT / "fieldtool" / "profiles" / f"{PROFILE}.toml"))
 
 
 def _write_session(logs, serial, expected, when, outcome="fixed", note=HOSTILE_NOTE):
@@ -123,7 +123,7 @@ def test_history_of_an_unknown_profile_still_gives_a_report(tmp_path, capsys):
     out = tmp_path / "r.md"
     code, _, _ = _report(capsys, "RB-1", "--logs", str(logs), "--out", str(out))
     text = out.read_text()
-    assert code == 0 and "no profile file found for 'retired-board'" in text
+    assert code == 0 and "no profile named 'retired-board'" in text
     assert "| S3 |  | 4 V | — | — | no expectation |" in text
     assert "no plot: no expected values" in text
 
@@ -153,21 +153,10 @@ def test_report_for_an_unknown_board(tmp_path, capsys, expected):
     assert not (tmp_path / "r.md").exists()
 
 
-def test_report_says_so_when_the_engine_is_missing(tmp_path, capsys, expected, monkeypatch):
-    logs = tmp_path / "logs"
-    _write_session(logs, "DL-0001", expected, day(0))
-    monkeypatch.setitem(sys.modules, "fieldtool.core.dictionary", None)
-    out = tmp_path / "r.md"
-    code, _, _ = _report(capsys, "DL-0001", "--logs", str(logs), "--out", str(out))
-    text = out.read_text()
-    assert code == 0 and "diagnosis engine is not installed" in text
-    assert "band = meter accuracy only" in text and "| OUT |" in text
-
-
 def test_report_bands_come_from_the_fault_dictionary(expected):
-    from fieldtool.core.dictionary import load_or_build
+    from fieldtool.core.diagnosis.dictionary_cache import load_or_build
 
-    d = load_or_build(load_profile(ROOT / "profiles" / f"{PROFILE}.toml"))
+    d = load_or_build(load_profile(ROOT / "fieldtool" / "profiles" / f"{PROFILE}.toml"))
     assert "fault dictionary" in expected.source
     assert [e.node for e in expected.nodes] == list(d.nodes)
     band = d.band("OUT")

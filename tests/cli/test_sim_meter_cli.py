@@ -18,13 +18,13 @@ import threading
 import pytest
 
 from fieldtool.cli import main
-from fieldtool.core.expect import expect
-from fieldtool.core.faults import describe, parse_fault
-from fieldtool.core.profile import load_profile
+from fieldtool.core.circuit.expect import expect
+from fieldtool.core.circuit.profile import load_profile
+from fieldtool.core.diagnosis.faults import describe, parse_fault
 from fieldtool.meters.simulated import random_fault
 from tests.conftest import ROOT
 
-BOARD = ROOT / "profiles" / "tidegauge-apd-bias.toml"
+BOARD = ROOT / "fieldtool" / "profiles" / "tidegauge-apd-bias.toml"
 
 
 class SimMeter:

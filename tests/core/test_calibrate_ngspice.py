@@ -24,9 +24,9 @@ import math
 import numpy as np
 import pytest
 
-from fieldtool.core.calibrate import calibrate
-from fieldtool.core.circuit import build_circuit
-from fieldtool.core.expect import expect
+from fieldtool.core.circuit.expect import expect
+from fieldtool.core.circuit.netlist import build_circuit
+from fieldtool.core.diagnosis.calibrate import calibrate
 from fieldtool.core.readings import NodeReading
 from tests.conftest import BASE, make_profile, needs_ngspice
 from tests.ngspice_probe import metered_reading

@@ -13,12 +13,12 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from fieldtool.core import diagnosis as dg
-from fieldtool.core.diagnosis import chi2_sf, diagnose
-from fieldtool.core.dictionary import build
+from fieldtool.core.circuit.expect import expect
+from fieldtool.core.diagnosis import ranking as dg
+from fieldtool.core.diagnosis.dictionary import build
+from fieldtool.core.diagnosis.faults import parse_fault
+from fieldtool.core.diagnosis.ranking import chi2_sf, diagnose
 from fieldtool.core.errors import InputError
-from fieldtool.core.expect import expect
-from fieldtool.core.faults import parse_fault
 from fieldtool.core.readings import NodeReading
 from tests.conftest import make_profile
 

@@ -1,17 +1,17 @@
 """Guided diagnosis of faults simulated in ngspice (a general-purpose SPICE simulator).
 
-For each case a part of a small board is opened, shorted or robbed of capacitance *in the
-SPICE text* (``tests.ngspice_probe``: the part's lines deleted, a 1 Ω resistor across it, its
-capacitance scaled; independent of ``fieldtool.core.faults``), and the technician's loop is
-played: ``diagnose()`` on the readings so far names the next node; ngspice gives that node's
-settled reading with the meter's input resistance on it (one run per probed node, from the
-ideal-formula charge, settling checked by Aitken extrapolation as in the solver cross-check);
-until the diagnosis needs no more probes or eight nodes are read. The injected fault must then
-be the top suspect, or sit in an ambiguity group reported together with the top suspect (the
-readings honestly cannot split them), and the readings must not be flagged as fitting nothing.
-Fault dictionaries and simulate-before-test diagnosis: Bandler & Salama, Proc. IEEE 73(8),
-1985; tolerance-band ambiguity sets: Hochwald & Bastian, IEEE Trans. Circuits Syst. 26(7),
-1979 (both from memory). Next probe by information gain: de Kleer & Williams, Artificial
+For each case a part of a small board is opened, shorted or robbed of capacitance *in the SPICE
+text* (``tests.ngspice_probe``: the part's lines deleted, a 1 Ω resistor across it, its
+capacitance scaled; independent of ``fieldtool.core.diagnosis.faults``), and the technician's
+loop is played: ``diagnose()`` on the readings so far names the next node; ngspice gives that
+node's settled reading with the meter's input resistance on it (one run per probed node, from
+the ideal-formula charge, settling checked by Aitken extrapolation as in the solver
+cross-check); until the diagnosis needs no more probes or eight nodes are read. The injected
+fault must then be the top suspect, or sit in an ambiguity group reported together with the top
+suspect (the readings honestly cannot split them), and the readings must not be flagged as
+fitting nothing. Fault dictionaries and simulate-before-test diagnosis: Bandler & Salama, Proc.
+IEEE 73(8), 1985; tolerance-band ambiguity sets: Hochwald & Bastian, IEEE Trans. Circuits Syst.
+26(7), 1979 (both from memory). Next probe by information gain: de Kleer & Williams, Artificial
 Intelligence 32(1), 1987.
 
 Why these boards: three stages at 10 kHz with 47 nF capacitors, a 100 kΩ load and a 100 kΩ
@@ -29,9 +29,9 @@ from __future__ import annotations
 
 import pytest
 
-from fieldtool.core.circuit import build_circuit
-from fieldtool.core.diagnosis import diagnose
-from fieldtool.core.dictionary import load_or_build
+from fieldtool.core.circuit.netlist import build_circuit
+from fieldtool.core.diagnosis.dictionary_cache import load_or_build
+from fieldtool.core.diagnosis.ranking import diagnose
 from fieldtool.core.readings import NodeReading
 from tests.conftest import make_profile, needs_ngspice
 from tests.ngspice_probe import SpiceFault, metered_reading

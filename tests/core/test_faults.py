@@ -5,9 +5,8 @@ import math
 import numpy as np
 import pytest
 
-from fieldtool.core.circuit import build_circuit
-from fieldtool.core.errors import InputError
-from fieldtool.core.faults import (
+from fieldtool.core.circuit.netlist import build_circuit
+from fieldtool.core.diagnosis.faults import (
     OPEN_FARADS,
     OPEN_OHMS,
     SHORT_OHMS,
@@ -19,6 +18,7 @@ from fieldtool.core.faults import (
     parse_fault,
     parse_si,
 )
+from fieldtool.core.errors import InputError
 from tests.conftest import make_profile
 
 PROFILE = make_profile(designators={"D3": "CR103"})

@@ -5,9 +5,9 @@ import math
 import numpy as np
 import pytest
 
-from fieldtool.core.circuit import build_circuit
-from fieldtool.core.expect import expect, period_average
-from fieldtool.core.solver import steady_state, transient
+from fieldtool.core.circuit.expect import expect, period_average
+from fieldtool.core.circuit.netlist import build_circuit
+from fieldtool.core.circuit.solver import steady_state, transient
 from tests.conftest import make_profile
 
 # A near-ideal diode: n·Vt ≈ 1.3 mV, so its drop is a few mV at the currents used here.

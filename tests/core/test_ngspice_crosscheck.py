@@ -1,6 +1,6 @@
 """The solver against ngspice (a general-purpose SPICE simulator, Debian package `ngspice`).
 
-The same netlist (``fieldtool.core.spice``) is simulated by ngspice from the ideal-formula
+The same netlist (``fieldtool.core.circuit.spice``) is simulated by ngspice from the ideal-formula
 initial charge until it settles; every S and P node's DC average must agree with the shooting
 result within 0.5 % or 20 mV, whichever is larger, for each topology and polarity, at light
 and at heavy load. Settling is checked, not assumed: light-load ladders approach their steady
@@ -12,10 +12,10 @@ remaining drift it implies must itself be within the tolerance.
 import numpy as np
 import pytest
 
-from fieldtool.core.circuit import build_circuit
-from fieldtool.core.expect import period_average
-from fieldtool.core.solver import initial_state, steady_state
-from fieldtool.core.spice import spice_netlist
+from fieldtool.core.circuit.expect import period_average
+from fieldtool.core.circuit.netlist import build_circuit
+from fieldtool.core.circuit.solver import initial_state, steady_state
+from fieldtool.core.circuit.spice import spice_netlist
 from tests.conftest import make_profile, needs_ngspice, run_ngspice
 
 CASES = {

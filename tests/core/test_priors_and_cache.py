@@ -5,10 +5,10 @@ import os
 import numpy as np
 import pytest
 
-from fieldtool.core import dictionary_cache as cache
-from fieldtool.core.circuit import build_circuit
-from fieldtool.core.faults import catalog
-from fieldtool.core.priors import HEALTHY_PRIOR, fleet_priors, published_priors
+from fieldtool.core.circuit.netlist import build_circuit
+from fieldtool.core.diagnosis import dictionary_cache as cache
+from fieldtool.core.diagnosis.faults import catalog
+from fieldtool.core.diagnosis.priors import HEALTHY_PRIOR, fleet_priors, published_priors
 from tests.conftest import make_profile
 
 ELECTROLYTIC = make_profile(designators={"D2": "CR2"})

@@ -4,8 +4,8 @@ from pathlib import Path
 
 import pytest
 
+from fieldtool.core.circuit.profile import load_profile
 from fieldtool.core.errors import ProfileError
-from fieldtool.core.profile import load_profile
 from tests.conftest import PROFILES, make_profile
 
 

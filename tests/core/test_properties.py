@@ -4,9 +4,9 @@ import numpy as np
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from fieldtool.core.circuit import build_circuit
-from fieldtool.core.expect import expect
-from fieldtool.core.solver import Network, StepState, period_grid, run_period, steady_state
+from fieldtool.core.circuit.expect import expect
+from fieldtool.core.circuit.netlist import build_circuit
+from fieldtool.core.circuit.solver import Network, StepState, period_grid, run_period, steady_state
 from tests.conftest import make_profile
 
 boards = st.fixed_dictionaries(

@@ -10,10 +10,10 @@ actually on the node (Thevenin's theorem for the small-signal network: v = v_oc/
 import numpy as np
 import pytest
 
-from fieldtool.core.circuit import build_circuit, with_meter
-from fieldtool.core.expect import period_average
-from fieldtool.core.response import linear_response
-from fieldtool.core.solver import steady_state
+from fieldtool.core.circuit.expect import period_average
+from fieldtool.core.circuit.netlist import build_circuit, with_meter
+from fieldtool.core.circuit.response import linear_response
+from fieldtool.core.circuit.solver import steady_state
 from tests.conftest import make_profile
 
 BOARDS = {

@@ -4,8 +4,8 @@ import math
 
 import pytest
 
-from fieldtool.core.expect import expect
-from fieldtool.core.safety import (
+from fieldtool.core.circuit.expect import expect
+from fieldtool.core.circuit.safety import (
     HAZARD_STANDARD,
     above_threshold,
     expected_volts,

@@ -8,9 +8,9 @@ import json
 import pytest
 
 from fieldtool.core import history as h
-from fieldtool.core.fleet import confirmed_failures, fleet_view
-from fieldtool.core.fleet_cache import CACHE_NAME
-from fieldtool.core.history_merge import merge
+from fieldtool.core.history.fleet import confirmed_failures, fleet_view
+from fieldtool.core.history.fleet_cache import CACHE_NAME
+from fieldtool.core.history.merge import merge
 from tests.history.helpers import day, session
 
 
@@ -235,7 +235,7 @@ def test_kind_markers_inside_text_do_not_fool_the_fast_path(tmp_path):
 
 
 def test_summaries_read_by_worker_processes_match_one_process(tmp_path, monkeypatch):
-    import fieldtool.core.fleet_cache as fc
+    import fieldtool.core.history.fleet_cache as fc
 
     _small_fleet(tmp_path)
     one = fleet_view(tmp_path, "cw6", use_cache=False)

@@ -10,7 +10,7 @@ from pathlib import Path
 import pytest
 
 from fieldtool.core import history as h
-from fieldtool.core.history_merge import merge
+from fieldtool.core.history.merge import merge
 
 T0 = datetime(2026, 3, 1, 8, 0, tzinfo=UTC)
 
@@ -268,7 +268,7 @@ def test_cli_record_into_a_read_only_folder_is_one_clear_line(
     logs = read_only_dir(tmp_path / "logs")
     readings = tmp_path / "r.csv"
     readings.write_text("node,volts\nS0,3.3\nOUT,9.0\n")
-    profile = ROOT / "profiles" / "datalogger-eeprom-dickson.toml"
+    profile = ROOT / "fieldtool" / "profiles" / "datalogger-eeprom-dickson.toml"
     argv = ["record", str(profile), "--board", "DL-1", "--readings", str(readings)]
     code = main([*argv, "--logs", str(logs)])
     out, err = capsys.readouterr()

@@ -9,7 +9,7 @@ import os
 import pytest
 
 from fieldtool.core import history as h
-from fieldtool.core.history_sessions import confirmed_in, group_sessions, is_catalogued
+from fieldtool.core.history.sessions import confirmed_in, group_sessions, is_catalogued
 from tests.history.helpers import day, session
 
 

@@ -2,11 +2,11 @@
 
 import pytest
 
-from fieldtool.core.expect import expect
-from fieldtool.core.profile import load_profile
+from fieldtool.core.circuit.expect import expect
+from fieldtool.core.circuit.profile import load_profile
 from tests.conftest import ROOT
 
-BOARD = ROOT / "profiles" / "tidegauge-apd-bias.toml"
+BOARD = ROOT / "fieldtool" / "profiles" / "tidegauge-apd-bias.toml"
 
 
 @pytest.fixture(scope="module")

@@ -14,7 +14,7 @@ import tomllib
 
 import pytest
 
-from fieldtool.core.profile import profile_from_dict
+from fieldtool.core.circuit.profile import profile_from_dict
 from fieldtool.meters.errors import MeterTimeout
 from fieldtool.meters.parse import Reading
 from fieldtool.meters.scpi import ScpiMeter

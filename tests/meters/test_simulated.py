@@ -13,11 +13,11 @@ import tomllib
 import numpy as np
 import pytest
 
-from fieldtool.core.circuit import build_circuit
+from fieldtool.core.circuit.expect import expect
+from fieldtool.core.circuit.netlist import build_circuit
+from fieldtool.core.circuit.profile import profile_from_dict
+from fieldtool.core.diagnosis.faults import catalog, parse_fault
 from fieldtool.core.errors import InputError
-from fieldtool.core.expect import expect
-from fieldtool.core.faults import catalog, parse_fault
-from fieldtool.core.profile import profile_from_dict
 from fieldtool.meters.errors import MeterDisconnected, UnknownNode
 from fieldtool.meters.simulated import (
     METER_TAU_S,

@@ -8,13 +8,13 @@ from pathlib import Path
 
 import pytest
 
-from fieldtool.core.dictionary import load_or_build
-from fieldtool.core.profile import load_profile
+from fieldtool.core.circuit.profile import load_profile
+from fieldtool.core.diagnosis.dictionary_cache import load_or_build
 from fieldtool.tui.app import SessionRequest, make_app
 from fieldtool.tui.meter_strip import MeterChoice
 
 ROOT = Path(__file__).resolve().parents[2]
-BOARD = ROOT / "profiles" / "tidegauge-apd-bias.toml"
+BOARD = ROOT / "fieldtool" / "profiles" / "tidegauge-apd-bias.toml"
 
 
 @pytest.fixture(scope="session")

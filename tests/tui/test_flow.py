@@ -9,8 +9,8 @@ from __future__ import annotations
 import pytest
 
 from fieldtool.core import history as hist
-from fieldtool.core.expect import expect
-from fieldtool.core.faults import parse_fault
+from fieldtool.core.circuit.expect import expect
+from fieldtool.core.diagnosis.faults import parse_fault
 from fieldtool.tui.dialogs import ActionDialog, OutcomeDialog
 from fieldtool.tui.node_table import NodeTable
 from fieldtool.tui.start import StartScreen

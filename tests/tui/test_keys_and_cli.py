@@ -6,8 +6,8 @@ import pytest
 
 from fieldtool.cli import build_parser, main
 from fieldtool.commands import tui as tui_cmd
-from fieldtool.core.circuit import build_circuit
-from fieldtool.core.faults import catalog
+from fieldtool.core.circuit.netlist import build_circuit
+from fieldtool.core.diagnosis.faults import catalog
 from fieldtool.tui.app import PALETTE, FieldtoolApp
 from fieldtool.tui.dialogs import ActionDialog, OutcomeDialog, ResumeDialog
 from fieldtool.tui.help import _key, help_text

@@ -12,8 +12,8 @@ from datetime import UTC, datetime, timedelta
 import pytest
 
 from fieldtool.core import history as hist
-from fieldtool.core.expect import expect
-from fieldtool.core.faults import parse_fault
+from fieldtool.core.circuit.expect import expect
+from fieldtool.core.diagnosis.faults import parse_fault
 from fieldtool.tui.app import make_app
 from fieldtool.tui.history import HistoryScreen
 from fieldtool.tui.node_table import NodeTable
@@ -45,7 +45,7 @@ def board_history(logs, profile) -> None:
 
 @pytest.mark.parametrize("size", SIZES)
 def test_start_screen(snap_compare, tmp_path, size):
-    app = make_app(logs_dir=tmp_path, profiles_dir=ROOT / "profiles")
+    app = make_app(logs_dir=tmp_path)
     assert snap_compare(app, terminal_size=size)
 
 
@@ -72,7 +72,7 @@ def test_probing_screen(snap_compare, profile, cache_dir, tmp_path, size):
 @pytest.mark.parametrize("size", SIZES)
 def test_history_screen(snap_compare, profile, tmp_path, size):
     board_history(tmp_path, profile)
-    app = make_app(logs_dir=tmp_path, profiles_dir=ROOT / "profiles")
+    app = make_app(logs_dir=tmp_path)
 
     async def open_history(pilot):
         pilot.app.action_history("TG-0042")
@@ -87,7 +87,7 @@ def test_history_screen(snap_compare, profile, tmp_path, size):
 
 @pytest.mark.parametrize("size", SIZES)
 def test_help_screen(snap_compare, tmp_path, size):
-    app = make_app(logs_dir=tmp_path, profiles_dir=ROOT / "profiles")
+    app = make_app(logs_dir=tmp_path)
     assert snap_compare(app, terminal_size=size, press=["question_mark"])
 
 
@@ -101,7 +101,7 @@ async def test_fleet_screen_and_priors_follow_confirmed_repairs(profile, diction
     board_history(tmp_path, profile)
     fleet = choose_priors(profile, dictionary, tmp_path)
     assert fleet.of("C6:short") > published.of("C6:short")
-    app = make_app(logs_dir=tmp_path, profiles_dir=ROOT / "profiles")
+    app = make_app(logs_dir=tmp_path)
     async with app.run_test(size=(80, 24)) as pilot:
         pilot.app.action_fleet(profile.name)
         await until(pilot, lambda: isinstance(pilot.app.screen, FleetScreen), what="fleet")

@@ -18,7 +18,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from fieldtool.core.circuit import Circuit, Params
+from fieldtool.core.circuit.netlist import Circuit, Params
 
 GMIN = 1e-12  # S, from every node to ground (SPICE practice)
 VNTOL = 1e-6  # V, Newton absolute tolerance

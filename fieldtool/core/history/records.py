@@ -10,7 +10,7 @@ from dataclasses import dataclass
 from datetime import UTC, datetime
 from typing import Any
 
-from fieldtool.core.history_events import Event, SessionOpened, event_from_fields
+from fieldtool.core.history.events import Event, SessionOpened, event_from_fields
 
 SCHEMA = 1
 _BASE_KEYS = ("schema", "id", "time", "board", "profile", "kind")

@@ -13,9 +13,10 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
 
+from fieldtool.core.circuit.profile import Profile
+from fieldtool.core.diagnosis.dictionary_cache import load_or_build
 from fieldtool.core.history import BoardHistory, HistoryError, Record, now_utc
-from fieldtool.core.history_sessions import ConfirmedFailure, Session, confirmed_in
-from fieldtool.core.profile import Profile
+from fieldtool.core.history.sessions import ConfirmedFailure, Session, confirmed_in
 
 CAUTIONS = (
     "A voltage multiplier stores charge and can hold a dangerous voltage long after "
@@ -97,11 +98,7 @@ class Report:
 
 
 def expectations_for(profile: Profile) -> Expectations:
-    """Expected readings with bands: the fault dictionary's, or the solver's with meter accuracy."""
-    try:
-        from fieldtool.core.dictionary import load_or_build
-    except ImportError:
-        return _solver_only(profile)
+    """Expected readings with the fault dictionary's healthy bands."""
     dictionary = load_or_build(profile)
     rows = []
     for node in dictionary.nodes:
@@ -112,21 +109,6 @@ def expectations_for(profile: Profile) -> Expectations:
         tuple(rows),
         "healthy band from the fault dictionary: part tolerances, model and meter accuracy "
         "(about 95 % of healthy boards read inside it)",
-    )
-
-
-def _solver_only(profile: Profile) -> Expectations:
-    from fieldtool.core.expect import expect
-
-    result = expect(profile)
-    rows = []
-    for n in result.nodes:
-        spread = abs(n.volts) * profile.meter_percent / 100 + profile.meter_volts
-        rows.append(Expected(n.node, n.label, n.volts, n.volts - spread, n.volts + spread))
-    return Expectations(
-        tuple(rows),
-        "the diagnosis engine is not installed: expected values from the solver, band = meter "
-        "accuracy only (part tolerances NOT included, so the band is too narrow)",
     )
 
 

@@ -4,7 +4,7 @@ Simulate-after-test (Bandler & Salama, Proc. IEEE 73(8), 1985): the drive swing,
 shift of every diode's forward drop and, where S0 was read, the DC supply are adjusted so the
 predicted as-read node voltages match the golden readings in the least-squares sense,
 weighting each reading by the meter's accuracy. Gauss–Newton on the steady-state solver, with
-the Jacobian from the linear response (``fieldtool.core.response``); see ``calibrate`` for
+the Jacobian from the linear response (``fieldtool.core.circuit.response``); see ``calibrate`` for
 what DC readings can and cannot tell apart.
 """
 
@@ -16,12 +16,12 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from fieldtool.core.circuit import build_circuit
+from fieldtool.core.circuit.netlist import build_circuit
+from fieldtool.core.circuit.profile import DiodeSpec, Profile
+from fieldtool.core.circuit.response import linear_response
+from fieldtool.core.circuit.solver import steady_state
 from fieldtool.core.errors import InputError, SolverError
-from fieldtool.core.profile import DiodeSpec, Profile
 from fieldtool.core.readings import NodeReading
-from fieldtool.core.response import linear_response
-from fieldtool.core.solver import steady_state
 
 MAX_ITERATIONS = 12
 BACKTRACK_STEPS = 6

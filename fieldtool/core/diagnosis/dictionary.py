@@ -22,13 +22,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from fieldtool.core.circuit import Circuit, Params, build_circuit, stack
+from fieldtool.core.circuit.netlist import Circuit, Params, build_circuit, stack
+from fieldtool.core.circuit.profile import Profile
+from fieldtool.core.circuit.response import Response, linear_response
+from fieldtool.core.circuit.solver import steady_state
+from fieldtool.core.circuit.staged import staged_steady_state
+from fieldtool.core.diagnosis.faults import Hypothesis, apply_fault, catalog
 from fieldtool.core.errors import SolverError
-from fieldtool.core.faults import Hypothesis, apply_fault, catalog
-from fieldtool.core.profile import Profile
-from fieldtool.core.response import Response, linear_response
-from fieldtool.core.solver import steady_state
-from fieldtool.core.staged import staged_steady_state
 
 DICTIONARY_VERSION = 2
 STEPS_PER_PERIOD = 40
@@ -270,11 +270,3 @@ def _finish_sigma(
     # A faulted board carries every tolerance of the healthy one and more: its spread is never
     # narrower, so a reading at the healthy value never favours a fault over healthy.
     return np.maximum(s, s[row_hyp == 0][0][None, :])
-
-
-def load_or_build(profile: Profile, cache_dir=None, progress=None) -> FaultDictionary:
-    """The profile's dictionary from the disk cache, or built and cached (see
-    ``fieldtool.core.dictionary_cache.load_or_build``)."""
-    from fieldtool.core.dictionary_cache import load_or_build as cached
-
-    return cached(profile, cache_dir, progress)

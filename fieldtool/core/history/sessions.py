@@ -15,7 +15,7 @@ from __future__ import annotations
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 
-from fieldtool.core.faults import BOARD_TARGETS, MODES
+from fieldtool.core.diagnosis.faults import BOARD_TARGETS, MODES
 from fieldtool.core.history import Record, SessionClosed, SessionOpened, time_key
 
 PART_MODES = frozenset(m.name for m in MODES if m.applies_to in ("diode", "capacitor"))

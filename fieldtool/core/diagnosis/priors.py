@@ -31,8 +31,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from fieldtool.core.faults import BOARD_TARGETS, Hypothesis, display_name
-from fieldtool.core.profile import Profile
+from fieldtool.core.circuit.profile import Profile
+from fieldtool.core.circuit.spec import display_name
+from fieldtool.core.diagnosis.faults import BOARD_TARGETS, Hypothesis
 
 PUBLISHED = "RAC FMD-97 mode shares (capacitors via MIL-HDBK-338B; diodes from memory)"
 HEALTHY_PRIOR = 0.10

@@ -25,78 +25,27 @@ from collections.abc import Mapping, Sequence
 from datetime import UTC, datetime, timedelta
 from pathlib import Path
 
-from fieldtool.core.history_events import (
+from fieldtool.core.history.events import (
     EVENT_TYPES,
-    OUTCOMES,
-    Action,
     BadNameError,
-    Diagnosis,
     Event,
     HistoryError,
     NotFoundError,
-    Reading,
     SaveError,
-    SessionClosed,
     SessionOpened,
-    Suspect,
-    Verification,
     event_fields,
-    event_from_fields,
 )
-from fieldtool.core.history_io import append_lines, fsync_dir, locked_file
-from fieldtool.core.history_records import (
+from fieldtool.core.history.files import append_lines, fsync_dir, locked_file
+from fieldtool.core.history.records import (
     SCHEMA,
     BoardHistory,
     Damaged,
     Record,
     format_time,
-    loads_line,
     now_utc,
     parse_lines,
-    parse_record,
-    record_id_time,
     time_key,
 )
-
-__all__ = [
-    "ENV_VAR",
-    "EVENT_TYPES",
-    "OUTCOMES",
-    "SCHEMA",
-    "Action",
-    "BadNameError",
-    "BoardHistory",
-    "Damaged",
-    "Diagnosis",
-    "Event",
-    "HistoryError",
-    "NotFoundError",
-    "Reading",
-    "Record",
-    "SaveError",
-    "SessionClosed",
-    "SessionOpened",
-    "Suspect",
-    "Verification",
-    "append",
-    "append_many",
-    "board_files",
-    "board_path",
-    "check_name",
-    "event_fields",
-    "event_from_fields",
-    "format_time",
-    "last_session_open",
-    "loads_line",
-    "now_utc",
-    "parse_lines",
-    "parse_record",
-    "read_board",
-    "read_file",
-    "record_id_time",
-    "resolve_logs_dir",
-    "time_key",
-]
 
 ENV_VAR = "FIELDTOOL_LOGS"
 

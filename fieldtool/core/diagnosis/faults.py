@@ -28,14 +28,14 @@ load         heavy       load current up by a factor                          fa
 from __future__ import annotations
 
 import math
-import re
 from dataclasses import dataclass
 
 import numpy as np
 
-from fieldtool.core.circuit import Circuit, Params
+from fieldtool.core.circuit.netlist import Circuit, Params
+from fieldtool.core.circuit.spec import Profile, display_name
 from fieldtool.core.errors import InputError
-from fieldtool.core.profile import Profile
+from fieldtool.core.units import format_si, parse_si
 
 SHORT_OHMS = 1.0  # a failed-short diode or capacitor reads about an ohm (common practice)
 OPEN_FARADS = 1e-12  # what is left of an open capacitor: pad and lead stray (common practice)
@@ -85,6 +85,10 @@ class Fault:
         """The hypothesis this fault belongs to, severity left out: ``D5:open``."""
         return f"{self.target}:{self.mode}"
 
+    def apply(self, circuit: Circuit, params: Params, profile: Profile) -> Params:
+        """A copy of ``params`` (every row) with this fault made."""
+        return apply_fault(circuit, params, self, profile)
+
     def spec(self, profile: Profile | None = None) -> str:
         """The fault as a spec string, with the board's designator where it has one."""
         target = display_name(profile, self.target) if profile else self.target
@@ -124,44 +128,7 @@ def modes_for(profile: Profile, kind: str) -> tuple[Mode, ...]:
     return tuple(out)
 
 
-def display_name(profile: Profile | None, target: str) -> str:
-    """The board's designator for a default one (``D5`` → ``CR105`` if renamed)."""
-    if profile is None:
-        return target
-    return profile.designators.get(target, target)
-
-
 # --- spec strings ------------------------------------------------------------------------
-
-_SI = {"p": 1e-12, "n": 1e-9, "u": 1e-6, "µ": 1e-6, "μ": 1e-6, "m": 1e-3, "": 1.0}
-_SI.update({"k": 1e3, "K": 1e3, "M": 1e6, "G": 1e9})
-_NUMBER = re.compile(
-    r"^\s*(?P<num>[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?)\s*"
-    r"(?P<prefix>[pnuµμmkKMG]?)\s*(?P<unit>ohms?|Ω|%|x|×|)\s*$"
-)
-
-
-def parse_si(text: str) -> float:
-    """A number with an optional SI prefix and unit: ``47k``, ``2.2MΩ``, ``0.3``, ``30%``."""
-    match = _NUMBER.match(text)
-    if match is None:
-        raise ValueError(text)
-    value = float(match["num"]) * _SI[match["prefix"]]
-    if match["unit"] == "%":
-        value /= 100.0
-    if not math.isfinite(value):
-        raise ValueError(text)
-    return value
-
-
-def format_si(value: float) -> str:
-    """A compact SI spelling that ``parse_si`` reads back: 47000 → ``47k``."""
-    if value == 0 or not math.isfinite(value):
-        return f"{value:g}"
-    for scale, prefix in ((1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m")):
-        if abs(value) >= scale:
-            return f"{value / scale:.4g}{prefix}"
-    return f"{value:.3g}"
 
 
 def parse_fault(spec: str, profile: Profile) -> Fault:
@@ -222,7 +189,7 @@ def _check_severity(spec: str, mode: Mode, value: float) -> None:
 
 
 def _resolve_target(text: str, profile: Profile) -> str:
-    from fieldtool.core.circuit import default_designators
+    from fieldtool.core.circuit.netlist import default_designators
 
     if text.lower() in BOARD_TARGETS:
         return text.lower()

@@ -7,11 +7,17 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from fieldtool.core.circuit import Circuit, Params, build_circuit, scaled_load, stack, with_meter
-from fieldtool.core.errors import SolverError
-from fieldtool.core.faults import Fault, apply_fault
-from fieldtool.core.profile import Profile
-from fieldtool.core.solver import (
+from fieldtool.core.circuit.netlist import (
+    Change,
+    Circuit,
+    Params,
+    build_circuit,
+    scaled_load,
+    stack,
+    with_meter,
+)
+from fieldtool.core.circuit.profile import Profile
+from fieldtool.core.circuit.solver import (
     Network,
     Period,
     StepState,
@@ -21,7 +27,8 @@ from fieldtool.core.solver import (
     step,
     transient,
 )
-from fieldtool.core.staged import staged_steady_state
+from fieldtool.core.circuit.staged import staged_steady_state
+from fieldtool.core.errors import SolverError
 
 
 @dataclass(frozen=True)
@@ -113,11 +120,14 @@ def solve_variants(
     return volts, ripple, ss
 
 
-def expect(profile: Profile, steps: int = 80, fault: Fault | None = None) -> Expectation:
-    """Expected readings and figures for a profile at its rated load, optionally faulted."""
+def expect(profile: Profile, steps: int = 80, fault: Change | None = None) -> Expectation:
+    """Expected readings and figures for a profile at its rated load, optionally faulted.
+
+    ``fault`` is any change to the board's netlist (a catalogued fault, for one).
+    """
     circuit, params = build_circuit(profile)
     if fault is not None:
-        params = apply_fault(circuit, params, fault, profile)
+        params = fault.apply(circuit, params, profile)
     heavier = scaled_load(circuit, params, 1.25)
     metered = with_meter(circuit, params, profile.meter_ohms)
     batch = stack([params, heavier, metered])
@@ -125,7 +135,7 @@ def expect(profile: Profile, steps: int = 80, fault: Fault | None = None) -> Exp
         ss = steady_state(circuit, batch, steps_per_period=steps)
     else:
         # A faulted board can be far from any formula; start from the healthy one and fall
-        # back to slower, surer starts (fieldtool.core.staged).
+        # back to slower, surer starts (fieldtool.core.circuit.staged).
         healthy = steady_state(circuit, build_circuit(profile)[1], steps_per_period=steps)
         start = healthy.period if healthy.converged[0] else None
         alone = staged_steady_state(circuit, params, steps, start=start)

@@ -21,10 +21,14 @@ from pathlib import Path
 
 import numpy as np
 
-from fieldtool.core import dictionary as dictionary_module
-from fieldtool.core.dictionary import DICTIONARY_VERSION, STEPS_PER_PERIOD, FaultDictionary
-from fieldtool.core.faults import Hypothesis
-from fieldtool.core.profile import Profile
+from fieldtool.core.circuit.profile import Profile
+from fieldtool.core.diagnosis import dictionary as dictionary_module
+from fieldtool.core.diagnosis.dictionary import (
+    DICTIONARY_VERSION,
+    STEPS_PER_PERIOD,
+    FaultDictionary,
+)
+from fieldtool.core.diagnosis.faults import Hypothesis
 
 ENV_VAR = "FIELDTOOL_CACHE"
 _ARRAYS = ("row_hypothesis", "row_severity", "mean", "sigma", "ripple", "unloaded", "meter_solved")

@@ -9,7 +9,7 @@ from __future__ import annotations
 import io
 from collections.abc import Sequence
 
-from fieldtool.core.report import Expectations, Row
+from fieldtool.core.report.content import Expectations, Row
 
 MISSING = "plot left out: matplotlib is not installed (pip install 'fieldtool[plot]')"
 

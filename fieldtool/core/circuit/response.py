@@ -21,8 +21,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from fieldtool.core.circuit import Circuit, Params
-from fieldtool.core.solver import Network, StepState, newton, period_grid
+from fieldtool.core.circuit.netlist import Circuit, Params
+from fieldtool.core.circuit.solver import Network, StepState, newton, period_grid
 
 
 @dataclass(frozen=True)

@@ -31,7 +31,7 @@ from fieldtool.core.history import (
     record_id_time,
     time_key,
 )
-from fieldtool.core.history_io import append_lines, fsync_dir, locked_file, read_locked, rewrite
+from fieldtool.core.history.files import append_lines, fsync_dir, locked_file, read_locked, rewrite
 
 
 @dataclass(frozen=True)

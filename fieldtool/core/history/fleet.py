@@ -22,8 +22,8 @@ from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any
 
-from fieldtool.core.fleet_cache import BoardSummary, summaries
 from fieldtool.core.history import HistoryError, NotFoundError, check_name
+from fieldtool.core.history.fleet_cache import BoardSummary, summaries
 
 OUTCOME_ORDER = ("fixed", "not-fixed", "escalated", "open")
 

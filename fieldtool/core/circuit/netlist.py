@@ -13,10 +13,11 @@ C1..CN, output capacitor C(N+1).
 from __future__ import annotations
 
 from dataclasses import dataclass, replace
+from typing import Protocol
 
 import numpy as np
 
-from fieldtool.core.profile import CapacitorSpec, DiodeSpec, Profile
+from fieldtool.core.circuit.spec import CapacitorSpec, DiodeSpec, Profile
 
 
 @dataclass(frozen=True)
@@ -87,6 +88,14 @@ class Params:
     def copy(self) -> Params:
         """A deep copy whose arrays may be changed."""
         return Params(**{f: getattr(self, f).copy() for f in self.__dataclass_fields__})
+
+
+class Change(Protocol):
+    """Anything that changes a board's element values, such as a catalogued fault."""
+
+    def apply(self, circuit: Circuit, params: Params, profile: Profile) -> Params:
+        """A copy of ``params`` (every row) with the change made."""
+        ...
 
 
 def stack(batches: list[Params]) -> Params:

@@ -18,10 +18,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from fieldtool.core.circuit import build_circuit
-from fieldtool.core.expect import Expectation, discharge_time
-from fieldtool.core.faults import display_name
-from fieldtool.core.profile import DEFAULT_SAFE_VOLTS, Profile
+from fieldtool.core.circuit.expect import Expectation, discharge_time
+from fieldtool.core.circuit.netlist import build_circuit
+from fieldtool.core.circuit.profile import DEFAULT_SAFE_VOLTS, Profile
+from fieldtool.core.circuit.spec import display_name
 
 # The profile's safe_volts default. 50 V is the shock-protection threshold NFPA 70E uses
 # (from memory: check the edition in force before relying on it).

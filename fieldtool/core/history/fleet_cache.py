@@ -28,8 +28,8 @@ from pathlib import Path
 from typing import Any
 
 from fieldtool.core.history import Record, parse_record, time_key
-from fieldtool.core.history_io import rewrite
-from fieldtool.core.history_sessions import confirmed_in, group_sessions
+from fieldtool.core.history.files import rewrite
+from fieldtool.core.history.sessions import confirmed_in, group_sessions
 
 CACHE_NAME = ".fleet-cache.json"
 CACHE_FORMAT = 2  # bump when the summary's meaning changes: old caches are then ignored

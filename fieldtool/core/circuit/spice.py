@@ -7,8 +7,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from fieldtool.core.circuit import Circuit, Params
-from fieldtool.core.solver import GMIN, SINK_KNEE_VOLTS
+from fieldtool.core.circuit.netlist import Circuit, Params
+from fieldtool.core.circuit.solver import GMIN, SINK_KNEE_VOLTS
 
 
 def spice_netlist(
@@ -68,7 +68,7 @@ def spice_netlist(
         g = p.g_shunt[0, i - 1] + GMIN
         lines.append(f"RG{i} {node(i)} 0 {1 / g:.9e}")
         if p.i_load[0, i - 1] != 0:
-            # the same current-sink load as the solver (fieldtool.core.solver.sink_current)
+            # the same current-sink load as the solver (fieldtool.core.circuit.solver.sink_current)
             amps, nd = p.i_load[0, i - 1], node(i)
             s = -1.0 if amps < 0 else 1.0
             u = f"({s:g}*v({nd}))"

@@ -3,7 +3,7 @@
 From any subset of node readings the posterior over hypotheses follows from Bayes' rule: each
 dictionary row (a hypothesis at one severity) predicts every reading as a normal distribution
 (its tolerance spread plus the meter's accuracy), severities are marginalised with equal
-weight, and the priors come from ``fieldtool.core.priors``. Fault dictionaries and
+weight, and the priors come from ``fieldtool.core.diagnosis.priors``. Fault dictionaries and
 tolerance-band diagnosis: Bandler & Salama, Proc. IEEE 73(8), 1985; Hochwald & Bastian, IEEE
 Trans. Circuits Syst. 26(7), 1979 (from memory).
 
@@ -22,10 +22,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from fieldtool.core.dictionary import RIPPLE_SHARE, FaultDictionary
+from fieldtool.core.circuit.spec import display_name
+from fieldtool.core.diagnosis.dictionary import RIPPLE_SHARE, FaultDictionary
+from fieldtool.core.diagnosis.faults import Fault, describe
+from fieldtool.core.diagnosis.priors import Priors, published_priors
 from fieldtool.core.errors import InputError
-from fieldtool.core.faults import Fault, describe, display_name
-from fieldtool.core.priors import Priors, published_priors
 from fieldtool.core.readings import NodeReading
 
 CONFIDENT = 0.9  # stop suggesting probes once the top hypothesis passes this

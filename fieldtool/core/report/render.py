@@ -15,7 +15,7 @@ from typing import Any
 
 from fieldtool import __version__
 from fieldtool.core.history import time_key
-from fieldtool.core.report import Report, Row, SessionPart
+from fieldtool.core.report.content import Report, Row, SessionPart
 
 _MD_SPECIAL = re.compile(r"([\\`*_{}\[\]#|~])")
 

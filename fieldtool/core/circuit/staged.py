@@ -11,8 +11,8 @@ from collections.abc import Callable
 
 import numpy as np
 
-from fieldtool.core.circuit import Circuit, Params
-from fieldtool.core.solver import Period, SteadyState, _take_period, steady_state
+from fieldtool.core.circuit.netlist import Circuit, Params
+from fieldtool.core.circuit.solver import Period, SteadyState, _take_period, steady_state
 
 
 def staged_steady_state(

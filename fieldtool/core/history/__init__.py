@@ -1,0 +1,91 @@
+"""Board histories: records per board in JSON Lines files, sessions, merging and the fleet.
+
+The store itself (``store``: append, read, names and places), the events a history holds
+(``events``), the stored line's envelope (``records``) and the low-level file operations
+(``files``) are re-exported here; ``sessions``, ``merge``, ``fleet`` and ``fleet_cache`` are
+imported from their own modules.
+"""
+
+from fieldtool.core.history.events import (
+    EVENT_TYPES,
+    OUTCOMES,
+    Action,
+    BadNameError,
+    Diagnosis,
+    Event,
+    HistoryError,
+    NotFoundError,
+    Reading,
+    SaveError,
+    SessionClosed,
+    SessionOpened,
+    Suspect,
+    Verification,
+    event_fields,
+    event_from_fields,
+)
+from fieldtool.core.history.records import (
+    SCHEMA,
+    BoardHistory,
+    Damaged,
+    Record,
+    format_time,
+    loads_line,
+    now_utc,
+    parse_lines,
+    parse_record,
+    record_id_time,
+    time_key,
+)
+from fieldtool.core.history.store import (
+    ENV_VAR,
+    append,
+    append_many,
+    board_files,
+    board_path,
+    check_name,
+    last_session_open,
+    read_board,
+    read_file,
+    resolve_logs_dir,
+)
+
+__all__ = [
+    "ENV_VAR",
+    "EVENT_TYPES",
+    "OUTCOMES",
+    "SCHEMA",
+    "Action",
+    "BadNameError",
+    "BoardHistory",
+    "Damaged",
+    "Diagnosis",
+    "Event",
+    "HistoryError",
+    "NotFoundError",
+    "Reading",
+    "Record",
+    "SaveError",
+    "SessionClosed",
+    "SessionOpened",
+    "Suspect",
+    "Verification",
+    "append",
+    "append_many",
+    "board_files",
+    "board_path",
+    "check_name",
+    "event_fields",
+    "event_from_fields",
+    "format_time",
+    "last_session_open",
+    "loads_line",
+    "now_utc",
+    "parse_lines",
+    "parse_record",
+    "read_board",
+    "read_file",
+    "record_id_time",
+    "resolve_logs_dir",
+    "time_key",
+]

@@ -1,0 +1,1 @@
+"""Repair reports: a board's sessions against the expected readings, as Markdown or HTML."""

@@ -1,0 +1,1 @@
+"""Board profiles shipped with fieldtool (invented demonstration boards), read as package data."""
