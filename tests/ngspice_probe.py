@@ -4,7 +4,8 @@ The reference readings for the diagnosis checks come from ngspice (a general-pur
 simulator, Debian package ``ngspice``), not from fieldtool's own solver. The healthy netlist
 is ``fieldtool.core.circuit.spice.spice_netlist``; the fault is then written into the SPICE text
 independently of ``fieldtool.core.diagnosis.faults`` (an open part's lines are deleted, a short is a
-1 Ω resistor across the part, lost capacitance scales the capacitor's value), and the meter is
+resistor across the part, 1 Ω unless given, lost capacitance scales the capacitor's value, a
+grown ESR scales its series resistor), and the meter is
 a resistor from the probed node to ground. One ngspice run gives one node's reading, as a
 technician gets it by moving the probe.
 
@@ -45,8 +46,10 @@ class SpiceFault:
     """A fault as written into the SPICE text: a part designator, a mode, a severity."""
 
     ref: str  # default designator, "D3" or "C4"
-    mode: str  # "open" | "short" | "lowcap"
+    mode: str  # "open" | "short" | "lowcap" | "esr"
     fraction: float = 1.0  # capacitance left, for "lowcap"
+    ohms: float = SHORT_OHMS  # the short's resistance, for "short"
+    factor: float = 1.0  # how many times the ESR grew, for "esr"
 
 
 @dataclass(frozen=True)
@@ -80,11 +83,16 @@ def write_fault(netlist: str, circuit: Circuit, fault: SpiceFault) -> str:
         lines = [line for i, line in enumerate(lines) if i not in found]
     elif fault.mode == "short":
         at = next(i for i, line in enumerate(lines) if line.startswith(".options"))
-        lines.insert(at, f"RFAULT {a} {b} {SHORT_OHMS:g}")
+        lines.insert(at, f"RFAULT {a} {b} {fault.ohms:.9g}")
     elif fault.mode == "lowcap":
         i = next(i for i in found if lines[i].lower().startswith(f"c{fault.ref}".lower()))
         words = lines[i].split()
         words[3] = f"{float(words[3]) * fault.fraction:.6e}"
+        lines[i] = " ".join(words)
+    elif fault.mode == "esr":
+        i = next(i for i in found if lines[i].lower().startswith(f"re{j} "))
+        words = lines[i].split()
+        words[3] = f"{float(words[3]) * fault.factor:.6e}"
         lines[i] = " ".join(words)
     else:
         raise ValueError(fault.mode)

@@ -1,0 +1,223 @@
+"""ngspice as the bench for the readings beyond DC volts: the instruments as circuit elements.
+
+Each instrument is written into the board's SPICE text (``fieldtool.core.circuit.spice``) as the
+parts it is made of, independently of ``fieldtool.core.circuit.readouts``:
+
+- a scope probe: its resistance and capacitance from the node to ground;
+- a true-RMS meter on AC volts: its input capacitance to ground, its input resistance to a
+  copy of the node's own DC level (an ideal buffer of the node behind a low-pass of 20
+  periods: the DC-blocking capacitor, settled), and the reading taken as the RMS of the node's
+  AC part after a first-order RC low-pass at the meter's bandwidth;
+- a current meter: its burden resistance in series with the supply's source;
+- a test load: a resistor from the output to ground, with the voltmeter's resistance on the
+  probed node;
+- the diode test: the board's sources at 0 V, an ideal current source into the red lead,
+  clamped at the open-circuit voltage by a steep diode and a voltage source (``diode_test_op``).
+
+A powered run starts from the ideal-formula charge (``solver.initial_state``), as the solver
+cross-check does, and counts only once settled: the average of ``settle_on`` at twelve equally
+spaced periods must approach its limit (Aitken Δ² extrapolation, A. C. Aitken, Proc. R. Soc.
+Edinburgh 46, 1926) within 0.05 %, else the run is repeated four times longer.
+"""
+
+from __future__ import annotations
+
+import re
+import subprocess
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from fieldtool.core.circuit.netlist import Circuit, Params
+from fieldtool.core.circuit.solver import initial_state
+from fieldtool.core.circuit.spice import spice_netlist
+from tests.conftest import NGSPICE
+
+MARKS = 12
+SETTLE_REL = 5e-4
+POINTS_PER_PERIOD = 200  # maximum step T/200; ngspice refines the drive edges itself
+
+
+@dataclass(frozen=True)
+class BenchRun:
+    """The last period of a settled ngspice run."""
+
+    times: np.ndarray  # (S,) seconds from the start of the last period
+    values: np.ndarray  # (S, V) the requested vectors
+    periods: int
+    stdout: str
+
+
+def _node(name: str) -> str:
+    return name.lower()
+
+
+def scope_probe(node: str, ohms: float, farads: float) -> list[str]:
+    """A scope probe from the node to ground."""
+    n = _node(node)
+    return [f"RPROBE {n} 0 {ohms:.9g}", f"CPROBE {n} 0 {farads:.9g}"]
+
+
+def ac_meter(
+    node: str, ohms: float, farads: float, bandwidth_hz: float, period: float
+) -> list[str]:
+    """A DC-blocked AC voltmeter on the node; its reading is the AC RMS of v(acm2)."""
+    n = _node(node)
+    tau = 20 * period
+    return [
+        f"ELP acb 0 {n} 0 1",
+        "RLP acb aclp 1e3",
+        f"CLP aclp 0 {tau / 1e3:.9g}",
+        "EREF acref 0 aclp 0 1",
+        f"RIN {n} acref {ohms:.9g}",
+        f"CIN {n} 0 {farads:.9g}",
+        f"EM acm1 0 {n} acref 1",
+        "RBW acm1 acm2 1e3",
+        f"CBW acm2 0 {1 / (2 * np.pi * 1e3 * bandwidth_hz):.9g}",
+    ]
+
+
+def burden(netlist: str, source_index: int, ohms: float) -> str:
+    """The netlist with a resistor of ``ohms`` in series with source ``source_index``."""
+    lines = netlist.splitlines()
+    i = next(k for k, line in enumerate(lines) if line.startswith(f"RS{source_index} "))
+    name, a, b, value = lines[i].split()
+    lines[i] = f"{name} burden_n {b} {value}"
+    lines.insert(i, f"RBURDEN {a} burden_n {ohms:.9g}")
+    return "\n".join(lines) + "\n"
+
+
+def powered_run(
+    circuit: Circuit,
+    params: Params,
+    extra: list[str],
+    vectors: list[str],
+    settle_on: str,
+    workdir: Path,
+    periods: int = 400,
+    max_periods: int = 6400,
+    edit=None,
+    max_drift: float = np.inf,
+) -> BenchRun:
+    """Run until settled; the last period of ``vectors`` (e.g. ``v(s3)``, ``i(v0)``).
+
+    ``max_drift`` bounds how far the average of ``settle_on`` may still move in one period
+    (volts): a reading of ripple needs it well below the ripple, since a node still charging
+    adds its drift to the peak-to-peak of a period.
+    """
+    T = circuit.period_s
+    while True:
+        text = spice_netlist(
+            circuit, params, initial_state(circuit, params), periods, 0, POINTS_PER_PERIOD
+        )
+        if edit is not None:
+            text = edit(text)
+        marks = np.linspace(periods / MARKS, periods, MARKS).round().astype(int)
+        measures = [
+            f"meas tran a{i} integ {settle_on} from={(k - 1) * T:.9e} to={k * T:.9e}"
+            for i, k in enumerate(marks)
+        ]
+        lines = []
+        for line in text.splitlines():
+            if line.startswith(".options"):
+                lines += extra
+            if line.startswith("tran "):
+                lines.append("save " + " ".join(dict.fromkeys([*vectors, settle_on])))
+            if line.startswith("wrdata"):
+                lines += measures
+                lines.append("print " + " ".join(f"a{i}" for i in range(MARKS)))
+                lines.append("wrdata wave.txt " + " ".join(vectors))
+                continue
+            lines.append(line)
+        workdir.mkdir(parents=True, exist_ok=True)
+        (workdir / "bench.cir").write_text("\n".join(lines) + "\n")
+        (workdir / "wave.txt").unlink(missing_ok=True)
+        proc = subprocess.run(
+            [NGSPICE, "-b", "bench.cir"], cwd=workdir, capture_output=True, text=True, timeout=600
+        )
+        found = dict(re.findall(r"^(a\d+)\s+=\s+(\S+)", proc.stdout, re.MULTILINE))
+        if len(found) != MARKS or not (workdir / "wave.txt").exists():
+            raise AssertionError(f"ngspice failed:\n{proc.stdout[-1500:]}{proc.stderr[-1500:]}")
+        a = np.array([float(found[f"a{i}"]) for i in range(MARKS)]) / T
+        drift = abs(a[-1] - a[-2]) / max(marks[-1] - marks[-2], 1)
+        if _settled(a) and drift <= max_drift:
+            data = np.loadtxt(workdir / "wave.txt")  # time, then each vector
+            last = data[data[:, 0] >= (periods - 1) * T * (1 - 1e-12)]
+            return BenchRun(last[:, 0] - last[0, 0], last[:, 1:], periods, proc.stdout)
+        if periods >= max_periods:
+            raise AssertionError(
+                f"ngspice not settled after {periods} periods ({drift:.3g} V a period): {a}"
+            )
+        periods *= 4
+
+
+def _settled(a: np.ndarray) -> bool:
+    a1, a2, a3 = a[MARKS // 3 - 1], a[2 * MARKS // 3 - 1], a[-1]
+    d1, d2 = a2 - a1, a3 - a2
+    denom = d2 - d1
+    geometric = abs(denom) > 1e-15 and d1 * d2 > 0 and abs(d2) < abs(d1)
+    limit = a3 - d2 * d2 / denom if geometric else a3
+    to_go = abs(limit - a3) if geometric else abs(d2)
+    return to_go <= SETTLE_REL * max(abs(limit), 1e-9)
+
+
+def period_average(run: BenchRun, column: int = 0) -> float:
+    """Trapezoidal average of one column over the last period."""
+    t, v = run.times, run.values[:, column]
+    return float(np.trapezoid(v, t) / (t[-1] - t[0]))
+
+
+def ac_rms(run: BenchRun, column: int = 0) -> float:
+    """RMS of one column's AC part over the last period (trapezoidal)."""
+    mean = period_average(run, column)
+    t, v = run.times, run.values[:, column] - mean
+    return float(np.sqrt(np.trapezoid(v * v, t) / (t[-1] - t[0])))
+
+
+def diode_test_op(
+    circuit: Circuit,
+    params: Params,
+    red: str,
+    black: str,
+    amps: float,
+    open_volts: float,
+    workdir: Path,
+    edit=None,
+) -> float:
+    """The DC reading (v(red) − v(black)) of a diode test with the board off."""
+    off = params.copy()
+    off.s_high[:] = 0.0
+    off.s_low[:] = 0.0
+    off.i_load[:] = 0.0
+    text = spice_netlist(circuit, off, np.zeros((1, len(circuit.cap_refs))), 1, 0, 10)
+    if edit is not None:
+        text = edit(text)
+    r, b = _node(red), _node(black)
+    meter = [
+        f"IMETER {b} {r} DC {amps:.9g}",
+        f"DCLAMP {r} clamp dclamp",
+        ".model dclamp D(IS=1e-12 N=0.05)",
+        f"VCLAMP clamp {b} DC {open_volts:.9g}",
+    ]
+    lines = []
+    for line in text.splitlines():
+        if line.startswith(".options"):
+            lines += meter
+        if line.startswith("tran "):
+            lines += ["op", f"print v({r})-v({b})" if b != "0" else f"print v({r})"]
+            continue
+        if line.startswith("wrdata"):
+            continue
+        lines.append(line)
+    workdir.mkdir(parents=True, exist_ok=True)
+    (workdir / "diode.cir").write_text("\n".join(lines) + "\n")
+    proc = subprocess.run(
+        [NGSPICE, "-b", "diode.cir"], cwd=workdir, capture_output=True, text=True, timeout=120
+    )
+    found = re.findall(r"=\s+([-+0-9.eE]+)\s*$", proc.stdout, re.MULTILINE)
+    if not found:
+        raise AssertionError(
+            f"ngspice gave no reading:\n{proc.stdout[-1500:]}{proc.stderr[-1500:]}"
+        )
+    return float(found[-1])
