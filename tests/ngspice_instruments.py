@@ -175,6 +175,73 @@ def ac_rms(run: BenchRun, column: int = 0) -> float:
     return float(np.sqrt(np.trapezoid(v * v, t) / (t[-1] - t[0])))
 
 
+def _diode_meter(red: str, black: str, amps: float, open_volts: float) -> list[str]:
+    """The diode test: a current source into the red lead, clamped at the open-circuit volts."""
+    return [
+        f"IMETER {black} {red} DC {amps:.9g}",
+        f"DCLAMP {red} clamp dclamp",
+        ".model dclamp D(IS=1e-12 N=0.05)",
+        f"VCLAMP clamp {black} DC {open_volts:.9g}",
+    ]
+
+
+def _unpowered(circuit: Circuit, params: Params, text_periods: int = 1) -> str:
+    off = params.copy()
+    off.s_high[:] = 0.0
+    off.s_low[:] = 0.0
+    off.i_load[:] = 0.0
+    text = spice_netlist(circuit, off, np.zeros((1, len(circuit.cap_refs))), text_periods, 0, 10)
+    # Sources off: 0 V DC (a pulse or sine of zero amplitude would still set breakpoints).
+    lines = [
+        " ".join([*line.split()[:3], "DC", "0"]) if re.match(r"V\d+ ", line) else line
+        for line in text.splitlines()
+    ]
+    return "\n".join(lines) + "\n"
+
+
+def _difference(red: str, black: str) -> str:
+    """v(red) − v(black) as an ngspice expression, ground being node 0."""
+    if black == "0":
+        return f"v({red})"
+    return f"-v({black})" if red == "0" else f"v({red})-v({black})"
+
+
+def diode_test_transient(
+    circuit: Circuit,
+    params: Params,
+    red: str,
+    black: str,
+    amps: float,
+    open_volts: float,
+    seconds: float,
+    workdir: Path,
+) -> tuple[np.ndarray, np.ndarray]:
+    """(times, reading) of a diode test from all discharged, the board off."""
+    text = _unpowered(circuit, params)
+    r, b = _node(red), _node(black)
+    lines = []
+    for line in text.splitlines():
+        if line.startswith(".options"):
+            lines += _diode_meter(r, b, amps, open_volts)
+        if line.startswith("tran "):
+            lines.append(f"tran {seconds / 2000:.6e} {seconds:.6e} 0 {seconds / 500:.6e} uic")
+            lines.append(f"let reading = {_difference(r, b)}")
+            lines.append("wrdata dt.txt reading")
+            continue
+        if line.startswith("wrdata"):
+            continue
+        lines.append(line)
+    workdir.mkdir(parents=True, exist_ok=True)
+    (workdir / "dt.cir").write_text("\n".join(lines) + "\n")
+    proc = subprocess.run(
+        [NGSPICE, "-b", "dt.cir"], cwd=workdir, capture_output=True, text=True, timeout=300
+    )
+    if not (workdir / "dt.txt").exists():
+        raise AssertionError(f"ngspice failed:\n{proc.stdout[-1500:]}{proc.stderr[-1500:]}")
+    data = np.loadtxt(workdir / "dt.txt")
+    return data[:, 0], data[:, 1]
+
+
 def diode_test_op(
     circuit: Circuit,
     params: Params,
@@ -186,26 +253,17 @@ def diode_test_op(
     edit=None,
 ) -> float:
     """The DC reading (v(red) − v(black)) of a diode test with the board off."""
-    off = params.copy()
-    off.s_high[:] = 0.0
-    off.s_low[:] = 0.0
-    off.i_load[:] = 0.0
-    text = spice_netlist(circuit, off, np.zeros((1, len(circuit.cap_refs))), 1, 0, 10)
+    text = _unpowered(circuit, params)
     if edit is not None:
         text = edit(text)
     r, b = _node(red), _node(black)
-    meter = [
-        f"IMETER {b} {r} DC {amps:.9g}",
-        f"DCLAMP {r} clamp dclamp",
-        ".model dclamp D(IS=1e-12 N=0.05)",
-        f"VCLAMP clamp {b} DC {open_volts:.9g}",
-    ]
+    meter = _diode_meter(r, b, amps, open_volts)
     lines = []
     for line in text.splitlines():
         if line.startswith(".options"):
             lines += meter
         if line.startswith("tran "):
-            lines += ["op", f"print v({r})-v({b})" if b != "0" else f"print v({r})"]
+            lines += ["op", f"let reading = {_difference(r, b)}", "print reading"]
             continue
         if line.startswith("wrdata"):
             continue
@@ -215,7 +273,7 @@ def diode_test_op(
     proc = subprocess.run(
         [NGSPICE, "-b", "diode.cir"], cwd=workdir, capture_output=True, text=True, timeout=120
     )
-    found = re.findall(r"=\s+([-+0-9.eE]+)\s*$", proc.stdout, re.MULTILINE)
+    found = re.findall(r"^reading\s+=\s+(\S+)", proc.stdout, re.MULTILINE)
     if not found:
         raise AssertionError(
             f"ngspice gave no reading:\n{proc.stdout[-1500:]}{proc.stderr[-1500:]}"

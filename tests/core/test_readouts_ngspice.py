@@ -23,6 +23,7 @@ import numpy as np
 import pytest
 
 from fieldtool.core.circuit.netlist import build_circuit
+from fieldtool.core.circuit.readouts.diode_test import diode_tests
 from fieldtool.core.circuit.readouts.powered import powered_readouts
 from fieldtool.core.circuit.solver import steady_state
 from tests import ngspice_instruments as bench
@@ -187,3 +188,107 @@ def test_dc_under_a_test_load_matches_ngspice(board, node, tmp_path):
     spice = bench.period_average(run)
     tol = max(0.005 * abs(spice), 0.020)
     assert abs(r.dc_loaded[0, 0, r.nodes.index(node)] - spice) <= tol
+
+
+# --- diode test, board off ---------------------------------------------------------------
+
+
+def _ends(circuit, ref, reverse):
+    a, c = (circuit.name(int(i)) for i in circuit.diode_nodes[circuit.diode_refs.index(ref)])
+    red, black = (c, a) if reverse else (a, c)
+    return ("0" if red == "GND" else red), ("0" if black == "GND" else black)
+
+
+def _diode_op(profile, circuit, params, ref, reverse, tmp_path, edit=None):
+    inst = profile.instruments
+    red, black = _ends(circuit, ref, reverse)
+    return bench.diode_test_op(
+        circuit,
+        params,
+        red,
+        black,
+        inst.diode_test_amps,
+        inst.diode_test_volts,
+        tmp_path / f"{ref}{reverse}",
+        edit,
+    )
+
+
+@pytest.mark.parametrize("board", ["dc-ladder", "dickson", "ac-ladder"])
+def test_diode_test_readings_match_ngspice_dc(board, tmp_path):
+    # ngspice's DC operating point of the unpowered board (capacitors open) with the meter's
+    # test current source clamped at its open-circuit voltage, against the tool's settled
+    # transient. Forward: within 2 mV; reverse: OL on both (the clamp holds ngspice within a
+    # few tens of millivolts of the open-circuit voltage).
+    profile = BOARDS[board]
+    circuit, params = build_circuit(profile)
+    tests = diode_tests(circuit, params, profile.instruments)
+    limit = profile.instruments.diode_test_volts
+    for i, ref in enumerate(tests.diodes):
+        forward = _diode_op(profile, circuit, params, ref, False, tmp_path)
+        assert tests.volts[0, i, 0] == pytest.approx(forward, abs=0.002), ref
+        assert not tests.lift[0, i, 0] and tests.share[0, i, 0] > 0.99, ref
+        reverse = _diode_op(profile, circuit, params, ref, True, tmp_path)
+        assert tests.over_range[0, i, 1] and reverse > limit - 0.05, (ref, reverse)
+
+
+def test_diode_test_through_a_parallel_path_matches_ngspice(tmp_path):
+    # One stage with a 1 kΩ load: tested in reverse, the test current finds a path round the
+    # part (the other diode and the load), so the meter reads about 1 mA × 1 kΩ plus a diode
+    # drop instead of OL: still a number, and still one a shorted part would pull to 0 V.
+    profile = make_profile(board={"stages": 1}, load={"ohms": 1e3})
+    circuit, params = build_circuit(profile)
+    tests = diode_tests(circuit, params, profile.instruments, ("D1",))
+    spice = _diode_op(profile, circuit, params, "D1", True, tmp_path)
+    assert 1.0 < spice < profile.instruments.diode_test_volts
+    assert tests.volts[0, 0, 1] == pytest.approx(spice, abs=0.002)
+    assert not tests.lift[0, 0, 1]
+
+
+def test_diode_test_with_a_shorted_capacitor_across_it_says_lift_one_leg(tmp_path):
+    # AC ladder: C1 runs from P1 to the AC input, which sits behind the source's 2 Ω when the
+    # board is off; D1 runs from ground to P1. With C1 shorted, that 2 Ω is across D1 and
+    # takes nearly all the test current: the reading (a few millivolts) says nothing of D1.
+    profile = BOARDS["ac-ladder"]
+    circuit, params = build_circuit(profile)
+    shorted = params.copy()
+    shorted.c_gl[:, circuit.cap_refs.index("C1")] = 1.0 / 0.05
+    tests = diode_tests(circuit, shorted, profile.instruments, ("D1",))
+
+    def edit(text):
+        return write_fault(text, circuit, SpiceFault("C1", "short", ohms=0.05))
+
+    spice = _diode_op(profile, circuit, params, "D1", False, tmp_path, edit)
+    assert tests.volts[0, 0, 0] == pytest.approx(spice, abs=0.002)
+    assert tests.lift[0, 0, 0] and tests.share[0, 0, 0] < 0.01
+    assert "parallel path" in tests.reason(0, 0, 0)
+
+
+def test_diode_test_behind_a_large_discharged_capacitor_says_lift_one_leg(tmp_path):
+    # One stage with 10 mF capacitors: testing D1 forward, the test current first charges the
+    # flying capacitor C1 (its other end is grounded through the drive's source when off) to
+    # the diode's drop: t ≈ C·V/I = 10 mF × 0.58 V / 1 mA ≈ 5.8 s, longer than a technician
+    # waits (3 s, common practice, no source). ngspice's transient from all discharged agrees
+    # that the reading is still climbing at 3 s and settled by 10 s.
+    profile = make_profile(board={"stages": 1}, capacitor={"farads": 10e-3})
+    circuit, params = build_circuit(profile)
+    tests = diode_tests(circuit, params, profile.instruments, ("D1",))
+    assert tests.lift[0, 0, 0]
+    assert "settle" in tests.reason(0, 0, 0)
+    t, reading = bench.diode_test_transient(
+        circuit,
+        params,
+        "S0",
+        "P1",
+        profile.instruments.diode_test_amps,
+        profile.instruments.diode_test_volts,
+        12.0,
+        tmp_path,
+    )
+    final = reading[-1]
+    at_limit = np.interp(profile.instruments.diode_settle_s, t, reading)
+    accuracy = final * profile.instruments.diode_accuracy_percent / 100 + 0.002
+    assert final - at_limit > accuracy
+    settled = t[np.flatnonzero(np.abs(reading - final) > accuracy)[-1] + 1]
+    assert tests.settle_s[0, 0, 0] == pytest.approx(settled, rel=0.1)
+    assert tests.volts[0, 0, 0] == pytest.approx(final, abs=0.003)
