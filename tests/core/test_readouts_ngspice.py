@@ -25,6 +25,8 @@ import pytest
 from fieldtool.core.circuit.netlist import build_circuit
 from fieldtool.core.circuit.readouts.diode_test import diode_tests
 from fieldtool.core.circuit.readouts.powered import powered_readouts
+from fieldtool.core.circuit.readouts.spread import accuracy_sigma, tolerance_sigma
+from fieldtool.core.circuit.response import linear_response
 from fieldtool.core.circuit.solver import steady_state
 from tests import ngspice_instruments as bench
 from tests.conftest import make_profile, needs_ngspice
@@ -140,7 +142,7 @@ NODES = [
     ("dickson", "P2"),
     ("dickson", "OUT"),
     ("ac-ladder", "P1"),
-    ("ac-ladder", "S2"),
+    ("ac-ladder", "S1"),
 ]
 
 
@@ -292,3 +294,88 @@ def test_diode_test_behind_a_large_discharged_capacitor_says_lift_one_leg(tmp_pa
     settled = t[np.flatnonzero(np.abs(reading - final) > accuracy)[-1] + 1]
     assert tests.settle_s[0, 0, 0] == pytest.approx(settled, rel=0.1)
     assert tests.volts[0, 0, 0] == pytest.approx(final, abs=0.003)
+
+
+# --- worn parts: what DC volts cannot see ------------------------------------------------
+
+
+def _healthy_band(board):
+    """Every probe node's as-read DC band on the healthy board: mean ± 2σ (tolerances and the
+    meter's accuracy, first order; the fault dictionary's construction)."""
+    profile = BOARDS[board]
+    circuit, params, ss, _ = _predict(board)
+    resp = linear_response(circuit, params, ss.period.x_start)
+    mean = (resp.avg / (1.0 + resp.thevenin_ohms / profile.meter_ohms))[0]
+    tol = tolerance_sigma(profile, circuit, resp.d_cap, resp.d_diode, resp.d_drive, resp.d_supply)
+    sigma = np.sqrt(tol[0] ** 2 + accuracy_sigma(profile, "dc", mean) ** 2)
+    return mean, 2 * sigma
+
+
+WORN = [
+    # Reservoir at a quarter of its value (electrolytic wear-out): the ripple on its own node
+    # grows about fourfold, I/(f·C) (Horowitz & Hill, as in test_readouts).
+    ("dc-ladder", SpiceFault("C4", "lowcap", fraction=0.25), "S2"),
+    ("dickson", SpiceFault("C4", "lowcap", fraction=0.25), "OUT"),
+    # ESR grown 80× (0.05 → 4 Ω; a dried-out electrolytic): it shows where the reservoir is
+    # recharged in short pulses (the sine-fed ladder), as the pulse current times the ESR.
+    ("ac-ladder", SpiceFault("C2", "esr", factor=80.0), "S1"),
+]
+
+
+@pytest.mark.parametrize(
+    "board, fault, node", WORN, ids=[f"{b}-{f.ref}-{f.mode}" for b, f, _ in WORN]
+)
+def test_worn_reservoir_multiplies_its_ripple_while_dc_stays_in_band(board, fault, node, tmp_path):
+    *_, healthy = _predict(board)
+    j = healthy.nodes.index(node)
+    *_, worn = _predict(board, fault)
+    spice_healthy, _ = _scope(board, node, tmp_path, healthy.ripple_pp[0, j])
+    spice_worn, averages = _scope(board, node, tmp_path, worn.ripple_pp[0, j], fault)
+    assert spice_worn >= 3.0 * spice_healthy, (spice_worn, spice_healthy)
+    assert worn.ripple_pp[0, j] == pytest.approx(spice_worn, rel=0.05)
+    # Every node's DC reading stays inside its healthy band (ngspice's averages with no
+    # voltmeter on the node: on these boards the meter pulls them by under 0.1 %).
+    mean, half = _healthy_band(board)
+    for k, name in enumerate(worn.nodes):
+        assert abs(averages[name] - mean[k]) <= half[k], (name, averages[name], mean[k], half[k])
+
+
+FLYING = [
+    ("dc-ladder", SpiceFault("C3", "lowcap", fraction=0.3)),
+    ("dickson", SpiceFault("C2", "lowcap", fraction=0.3)),
+]
+
+
+@pytest.mark.parametrize("board, fault", FLYING, ids=[f"{b}-{f.ref}" for b, f in FLYING])
+def test_flying_capacitor_loss_shows_under_a_test_load(board, fault, tmp_path):
+    # A flying capacitor at 30 % raises the ladder's output resistance, (1/f)·Σ 1/C over the
+    # capacitors the output charge passes (switched-capacitor slow-switching limit, Seeman &
+    # Sanders, IEEE Trans. Power Electron. 23(2), 2008; from memory): the drop the test load
+    # causes at the output grows by a third or more, while the unloaded reading stays in band.
+    profile = BOARDS[board]
+    circuit, *_, healthy = _predict(board)
+    *_, worn = _predict(board, fault)
+    out = circuit.name(circuit.output_node)
+    o = healthy.nodes.index(out)
+    meter = f"RMETER {out.lower()} 0 {profile.meter_ohms:.9g}"
+    load = f"RTEST {out.lower()} 0 {TEST_LOAD:.9g}"
+
+    def reading(extra, f=None):
+        return bench.period_average(_run(board, out, extra, [f"v({out.lower()})"], tmp_path, f))
+
+    drop_healthy = reading([meter]) - reading([load, meter])
+    unloaded_worn = reading([meter], fault)
+    drop_worn = unloaded_worn - reading([load, meter], fault)
+    assert drop_worn >= 1.25 * drop_healthy, (drop_worn, drop_healthy)
+    tool_drop = _predict_unloaded(board, fault)[o] - worn.dc_loaded[0, 0, o]
+    assert tool_drop == pytest.approx(drop_worn, rel=0.03)
+    mean, half = _healthy_band(board)
+    assert abs(unloaded_worn - mean[o]) <= half[o]
+
+
+def _predict_unloaded(board, fault):
+    """The tool's as-read DC at every probe node with no test load (the meter in place)."""
+    profile = BOARDS[board]
+    circuit, params, ss, _ = _predict(board, fault)
+    resp = linear_response(circuit, params, ss.period.x_start)
+    return (resp.avg / (1.0 + resp.thevenin_ohms / profile.meter_ohms))[0]
