@@ -23,6 +23,12 @@ PART_KINDS = ("diode", "capacitor")
 BOARD_TARGETS = ("drive", "supply", "load")
 NO_SEVERITY = (math.nan,)  # the grid of a mode without a severity
 IDEAL_DIODE_DROP = 0.6  # V, for scaling grids only (common practice, no source)
+SHORT_OHMS = 1.0  # a failed-short part reads about an ohm (common practice, no source)
+# Shorts from a burnt part (ohms) to a welded one (milliohms), mild to gross, five points
+# evenly spaced in log from 10 Ω to 10 mΩ (a factor of about 5.6 apart; common practice, no
+# source): each short costs five variants in the fault dictionary.
+SHORT_GRID_OHMS = (10.0, 1.78, 0.316, 0.0562, 0.01)
+SHORT_MAX_OHMS = 100.0  # above this a part is leaky, not shorted
 
 _EXAMPLES = {"ohms": "47k", "fraction": "0.3", "factor": "3"}
 
@@ -34,6 +40,7 @@ class FaultMode(ABC):
     applies_to: ClassVar[str]  # "diode" | "capacitor" | "drive" | "supply" | "load"
     unit: ClassVar[str | None]  # severity unit: "ohms" | "fraction" | "factor"; None: none
     words: ClassVar[str]  # plain words: "lost capacitance"
+    default_severity: ClassVar[float | None] = None  # used when a spec gives none (else needed)
 
     def available(self, profile: Profile) -> bool:
         """True when the mode can happen on this board (default: always)."""
@@ -78,6 +85,16 @@ class FaultMode(ABC):
         if self.unit == "factor":
             return f"(×{severity:g})"
         return ""
+
+
+def short_problem(mode: FaultMode, value: float) -> str | None:
+    """Why a short's resistance cannot be used, or None: more than 0, at most 100 Ω."""
+    if not 0 < value <= SHORT_MAX_OHMS:
+        return (
+            f"{mode.name} needs a resistance above 0 and at most {SHORT_MAX_OHMS:g} ohms "
+            f"(e.g. 50m); a higher one is a leak: use leaky"
+        )
+    return None
 
 
 def switching_ohms(profile: Profile) -> float:
