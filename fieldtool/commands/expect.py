@@ -5,8 +5,11 @@ from __future__ import annotations
 import json
 import math
 
+from fieldtool.commands import expect_readouts
 from fieldtool.commands.boards import PROFILE_HELP, profile_arg
+from fieldtool.commands.expect_readouts import si as _si
 from fieldtool.core.circuit.expect import Expectation, expect
+from fieldtool.core.circuit.readouts.board import board_readouts
 
 
 def register(subparsers) -> None:
@@ -14,7 +17,11 @@ def register(subparsers) -> None:
     p = subparsers.add_parser(
         "expect",
         help="expected reading at every node of a board, and its safety figures",
-        description="Expected DC reading (as the meter reads it) and ripple at every node.",
+        description=(
+            "Expected DC reading (as the meter reads it) and ripple at every node; ripple on a "
+            "scope, AC RMS, DC under the profile's test loads, the supply current and each "
+            "diode's diode-test reading."
+        ),
     )
     p.add_argument("profile", help=PROFILE_HELP)
     p.add_argument("--load-ohms", type=float, help="use this load instead of the profile's")
@@ -28,7 +35,15 @@ def run(args) -> int:
     if args.load_ohms is not None:
         profile = profile.with_load_ohms(args.load_ohms)
     result = expect(profile)
-    print(json.dumps(to_json(result), indent=2) if args.json else to_text(result))
+    more = board_readouts(profile, spreads=args.json)  # the text shows no spreads
+    if args.json:
+        data = to_json(result)
+        for j, node in enumerate(data["nodes"]):
+            node.update(expect_readouts.node_json(more, j))
+        data.update(expect_readouts.board_json(more))
+        print(json.dumps(data, indent=2))
+    else:
+        print(to_text(result) + "\n" + expect_readouts.text(more))
     return 0
 
 
@@ -67,15 +82,6 @@ def to_json(e: Expectation) -> dict:
         "converged": e.converged,
         "residual_volts": e.residual_volts,
     }
-
-
-def _si(x: float | None, unit: str) -> str:
-    if x is None or not math.isfinite(x):
-        return "n/a"
-    for scale, prefix in ((1e6, "M"), (1e3, "k"), (1, ""), (1e-3, "m"), (1e-6, "µ"), (1e-9, "n")):
-        if abs(x) >= scale or scale == 1e-9:
-            return f"{x / scale:.4g} {prefix}{unit}"
-    return f"{x:g} {unit}"
 
 
 def to_text(e: Expectation) -> str:

@@ -148,12 +148,13 @@ def powered_readouts(
     if len(times) != len(period.times):
         raise ValueError(f"period has {len(period.times) - 1} steps, not {len(times) - 1}")
     plan = _Plan.of(circuit, params, profile, tuple(test_load_ohms), spreads)
+    start = _loaded_starts(circuit, params, period, plan, test_load_ohms, steps)
     ss = steady_state(
         circuit,
         plan.rows,
-        x0=period.x_start[plan.variant],
+        x0=start.x_start,
         steps_per_period=steps,
-        guess=_take_period(period, plan.variant),
+        guess=start,
         max_iterations=15,
     )
     per, bad = ss.period, ~ss.converged
@@ -189,6 +190,47 @@ def powered_readouts(
         loaded_sigma=sig.loaded,
         converged=ok,
     )
+
+
+def _loaded_starts(
+    circuit: Circuit,
+    params: Params,
+    period: Period,
+    plan: _Plan,
+    test_load_ohms: tuple[float, ...],
+    steps: int,
+) -> Period:
+    """Each row's starting period: its variant's, or under a test load the loaded board's.
+
+    A test load can move the board far from its unloaded state (a 220 kΩ load on a board
+    built for 50 MΩ); the loaded boards (B·L, no meter) are solved first, with more shooting
+    iterations, and the voltmeter's placements on each start from them.
+    """
+    start = _take_period(period, plan.variant)
+    B, L, P = plan.loaded.shape
+    if L == 0:
+        return start
+    variant = np.repeat(np.arange(B), L)
+    rows = params.take(variant).copy()
+    rows.g_shunt[:, circuit.output_node - 1] += np.tile(1.0 / np.asarray(test_load_ohms), B)
+    loaded = steady_state(
+        circuit,
+        rows,
+        x0=period.x_start[variant],
+        steps_per_period=steps,
+        guess=_take_period(period, variant),
+        max_iterations=40,
+        fallback_periods=0,
+    )
+    ok = loaded.converged  # (B·L,): where not, the voltmeter rows start from unloaded
+    into = plan.loaded.reshape(B * L, P)[ok].ravel()
+    src = np.repeat(np.flatnonzero(ok), P)
+    fields = {}
+    for name in ("x_start", "x_end", "v", "x", "src", "monodromy", "vj"):
+        value = getattr(start, name).copy()
+        value[into] = getattr(loaded.period, name)[src]
+        fields[name] = value
+    return Period(times=start.times, newton_iterations=0, **fields)
 
 
 def scope_ripple(
