@@ -155,7 +155,8 @@ def powered_readouts(
         x0=start.x_start,
         steps_per_period=steps,
         guess=start,
-        max_iterations=15,
+        max_iterations=40,  # a probe on a high-impedance node can move it far (see README)
+        fallback_periods=0,
     )
     per, bad = ss.period, ~ss.converged
     B = params.batch
