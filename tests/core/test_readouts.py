@@ -155,3 +155,21 @@ def test_cockcroft_walton_ripple_per_node(stages):
 
 def test_test_load_power_is_v_squared_over_r():
     assert load_watts(100.0, 10e3) == pytest.approx(1.0)  # P = V²/R (Joule's law)
+
+
+def test_reservoir_ripple_spread_follows_its_capacitor_tolerance():
+    # Ripple on a reservoir node goes as I/(f·C) (above): its relative spread is about the
+    # capacitor's relative 1σ, ±20 % read as rectangular, 0.2/√3 ≈ 11.5 % (GUM §4.3.7),
+    # a little less where the flying capacitors share the ripple current.
+    profile = make_profile()
+    circuit, params, ss = _solved(profile)
+    r = powered_readouts(circuit, params, ss.period, profile, test_load_ohms=(10e3,))
+    for node in ("S1", "S2", "S3"):
+        j = r.nodes.index(node)
+        assert 0.08 <= r.ripple_sigma[0, j] / r.ripple_pp[0, j] <= 0.13, node
+        assert 0.08 <= r.ac_sigma[0, j] / r.ac_rms[0, j] <= 0.13, node
+    # The supply lead carries the output current (charge balance), so its relative spread is
+    # the output's: a few percent from the drive, supply and diode tolerances.
+    o = r.nodes.index("S3")
+    assert 0 < r.loaded_sigma[0, 0, o] < 0.05 * r.dc_loaded[0, 0, o]
+    assert 0 < r.supply_sigma[0] / r.supply_amps[0] < 0.05
