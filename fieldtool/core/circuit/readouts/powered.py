@@ -175,8 +175,18 @@ def powered_readouts(
     if spreads:
         sig.ripple, sig.ac = _waveform_sigmas(circuit, params, period, profile, per, plan)
         sig.supply, sig.loaded = _linear_sigmas(circuit, profile, per, plan, steps)
-    for arr, idx in ((ripple, plan.scope), (amps, plan.burdened), (dc_loaded, plan.loaded)):
-        if idx.size:
+        nudge_failed = bad[plan.nudged].any(axis=1)[:, None]  # a spread needs every nudge
+        sig.ripple[np.broadcast_to(nudge_failed, sig.ripple.shape)] = np.nan
+        sig.ac[np.broadcast_to(nudge_failed, sig.ac.shape)] = np.nan
+    pairs = (
+        (ripple, plan.scope),
+        (amps, plan.burdened),
+        (dc_loaded, plan.loaded),
+        (sig.supply, plan.burdened),
+        (sig.loaded, plan.loaded),
+    )
+    for arr, idx in pairs:
+        if idx.size and arr.size:
             arr[bad[idx]] = np.nan
     return PoweredReadouts(
         nodes=tuple(circuit.name(i) for i in circuit.probe_nodes),
