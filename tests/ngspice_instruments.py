@@ -33,8 +33,8 @@ from fieldtool.core.circuit.netlist import Circuit, Params
 from fieldtool.core.circuit.solver import initial_state
 from fieldtool.core.circuit.spice import spice_netlist
 from tests.conftest import NGSPICE
+from tests.ngspice_probe import MARKS, aitken, period_average_measures
 
-MARKS = 12
 SETTLE_REL = 5e-4
 POINTS_PER_PERIOD = 200  # maximum step T/200; ngspice refines the drive edges itself
 
@@ -113,11 +113,9 @@ def powered_run(
         )
         if edit is not None:
             text = edit(text)
-        marks = np.linspace(periods / MARKS, periods, MARKS).round().astype(int)
-        measures = [
-            f"meas tran a{i} integ {settle_on} from={(k - 1) * T:.9e} to={k * T:.9e}"
-            for i, k in enumerate(marks)
-        ]
+        last = periods - 1  # the windows end a quarter period after their mark
+        marks = np.linspace(last / MARKS, last, MARKS).round().astype(int)
+        measures = period_average_measures(settle_on, last, T)
         lines = []
         for line in text.splitlines():
             if line.startswith(".options"):
@@ -153,12 +151,7 @@ def powered_run(
 
 
 def _settled(a: np.ndarray) -> bool:
-    a1, a2, a3 = a[MARKS // 3 - 1], a[2 * MARKS // 3 - 1], a[-1]
-    d1, d2 = a2 - a1, a3 - a2
-    denom = d2 - d1
-    geometric = abs(denom) > 1e-15 and d1 * d2 > 0 and abs(d2) < abs(d1)
-    limit = a3 - d2 * d2 / denom if geometric else a3
-    to_go = abs(limit - a3) if geometric else abs(d2)
+    limit, to_go = aitken(a)
     return to_go <= SETTLE_REL * max(abs(limit), 1e-9)
 
 
@@ -206,6 +199,41 @@ def _difference(red: str, black: str) -> str:
     return f"-v({black})" if red == "0" else f"v({red})-v({black})"
 
 
+def _diode_run(
+    circuit: Circuit,
+    params: Params,
+    red: str,
+    black: str,
+    amps: float,
+    open_volts: float,
+    analysis: list[str],
+    workdir: Path,
+    edit=None,
+) -> str:
+    """Run ``analysis`` (ngspice control lines, with ``reading`` defined) on the unpowered
+    board with the diode test on; ngspice's printed output."""
+    text = _unpowered(circuit, params)
+    if edit is not None:
+        text = edit(text)
+    r, b = _node(red), _node(black)
+    lines = []
+    for line in text.splitlines():
+        if line.startswith(".options"):
+            lines += _diode_meter(r, b, amps, open_volts)
+        if line.startswith("tran "):
+            lines += [a.replace("{reading}", _difference(r, b)) for a in analysis]
+            continue
+        if line.startswith("wrdata"):
+            continue
+        lines.append(line)
+    workdir.mkdir(parents=True, exist_ok=True)
+    (workdir / "diode.cir").write_text("\n".join(lines) + "\n")
+    proc = subprocess.run(
+        [NGSPICE, "-b", "diode.cir"], cwd=workdir, capture_output=True, text=True, timeout=300
+    )
+    return proc.stdout + proc.stderr
+
+
 def diode_test_transient(
     circuit: Circuit,
     params: Params,
@@ -217,27 +245,15 @@ def diode_test_transient(
     workdir: Path,
 ) -> tuple[np.ndarray, np.ndarray]:
     """(times, reading) of a diode test from all discharged, the board off."""
-    text = _unpowered(circuit, params)
-    r, b = _node(red), _node(black)
-    lines = []
-    for line in text.splitlines():
-        if line.startswith(".options"):
-            lines += _diode_meter(r, b, amps, open_volts)
-        if line.startswith("tran "):
-            lines.append(f"tran {seconds / 2000:.6e} {seconds:.6e} 0 {seconds / 500:.6e} uic")
-            lines.append(f"let reading = {_difference(r, b)}")
-            lines.append("wrdata dt.txt reading")
-            continue
-        if line.startswith("wrdata"):
-            continue
-        lines.append(line)
-    workdir.mkdir(parents=True, exist_ok=True)
-    (workdir / "dt.cir").write_text("\n".join(lines) + "\n")
-    proc = subprocess.run(
-        [NGSPICE, "-b", "dt.cir"], cwd=workdir, capture_output=True, text=True, timeout=300
-    )
+    (workdir / "dt.txt").unlink(missing_ok=True)
+    analysis = [
+        f"tran {seconds / 2000:.6e} {seconds:.6e} 0 {seconds / 500:.6e} uic",
+        "let reading = {reading}",
+        "wrdata dt.txt reading",
+    ]
+    out = _diode_run(circuit, params, red, black, amps, open_volts, analysis, workdir)
     if not (workdir / "dt.txt").exists():
-        raise AssertionError(f"ngspice failed:\n{proc.stdout[-1500:]}{proc.stderr[-1500:]}")
+        raise AssertionError(f"ngspice failed:\n{out[-3000:]}")
     data = np.loadtxt(workdir / "dt.txt")
     return data[:, 0], data[:, 1]
 
@@ -253,29 +269,9 @@ def diode_test_op(
     edit=None,
 ) -> float:
     """The DC reading (v(red) − v(black)) of a diode test with the board off."""
-    text = _unpowered(circuit, params)
-    if edit is not None:
-        text = edit(text)
-    r, b = _node(red), _node(black)
-    meter = _diode_meter(r, b, amps, open_volts)
-    lines = []
-    for line in text.splitlines():
-        if line.startswith(".options"):
-            lines += meter
-        if line.startswith("tran "):
-            lines += ["op", f"let reading = {_difference(r, b)}", "print reading"]
-            continue
-        if line.startswith("wrdata"):
-            continue
-        lines.append(line)
-    workdir.mkdir(parents=True, exist_ok=True)
-    (workdir / "diode.cir").write_text("\n".join(lines) + "\n")
-    proc = subprocess.run(
-        [NGSPICE, "-b", "diode.cir"], cwd=workdir, capture_output=True, text=True, timeout=120
-    )
-    found = re.findall(r"^reading\s+=\s+(\S+)", proc.stdout, re.MULTILINE)
+    analysis = ["op", "let reading = {reading}", "print reading"]
+    out = _diode_run(circuit, params, red, black, amps, open_volts, analysis, workdir, edit)
+    found = re.findall(r"^reading\s+=\s+(\S+)", out, re.MULTILINE)
     if not found:
-        raise AssertionError(
-            f"ngspice gave no reading:\n{proc.stdout[-1500:]}{proc.stderr[-1500:]}"
-        )
+        raise AssertionError(f"ngspice gave no reading:\n{out[-3000:]}")
     return float(found[-1])

@@ -99,6 +99,36 @@ def write_fault(netlist: str, circuit: Circuit, fault: SpiceFault) -> str:
     return "\n".join(lines) + "\n"
 
 
+def period_average_measures(expr: str, periods: int, period: float) -> list[str]:
+    """ngspice ``meas`` lines a0 … a11: ``expr`` integrated over one period at MARKS marks.
+
+    Each window is one whole period starting a quarter period in, so its ends fall on the
+    flat parts of a square drive rather than on an edge; ``integ`` (trapezoidal) over the
+    window, to be divided by T: ngspice-39's ``avg`` ends its window on the first time point
+    past ``to`` and is then off by O(step) on a square node.
+    """
+    T = period
+    marks = np.linspace(periods / MARKS, periods, MARKS).round().astype(int)
+    return [
+        f"meas tran a{i} integ {expr} from={(k - 1) * T + T / 4:.9e} to={k * T + T / 4:.9e}"
+        for i, k in enumerate(marks)
+    ]
+
+
+def aitken(a: np.ndarray) -> tuple[float, float]:
+    """(settled value, distance still to go) of MARKS period averages (see the module doc).
+
+    Where the 4th, 8th and 12th are not a shrinking geometric sequence, the settled value is
+    the last and the distance to go is how far the last third of the run itself moved.
+    """
+    a1, a2, a3 = a[MARKS // 3 - 1], a[2 * MARKS // 3 - 1], a[-1]
+    d1, d2 = a2 - a1, a3 - a2
+    denom = d2 - d1
+    geometric = abs(denom) > 1e-12 and d1 * d2 > 0 and abs(d2) < abs(d1)
+    settled = a3 - d2 * d2 / denom if geometric else a3
+    return float(settled), float(abs(settled - a3) if geometric else abs(d2))
+
+
 def _measure_run(
     circuit: Circuit,
     params: Params,
@@ -115,15 +145,7 @@ def _measure_run(
         text = write_fault(text, circuit, fault)
     T = circuit.period_s
     probe = node.lower()
-    # Each window is one whole period starting a quarter period in, so its ends fall on the
-    # flat parts of a square drive rather than on an edge.
-    marks = np.linspace(periods / MARKS, periods, MARKS).round().astype(int)
-    # ``integ`` (trapezoidal) over the window, divided by T: ngspice-39's ``avg`` ends its
-    # window on the first time point past ``to`` and is then off by O(step) on a square node.
-    measures = [
-        f"meas tran a{i} integ v({probe}) from={(k - 1) * T + T / 4:.9e} to={k * T + T / 4:.9e}"
-        for i, k in enumerate(marks)
-    ]
+    measures = period_average_measures(f"v({probe})", periods, T)
     lines = []
     for line in text.splitlines():
         if line.startswith(".options"):
@@ -159,14 +181,9 @@ def metered_reading(
     """The settled DC reading of ``node`` with a meter of ``meter_ohms`` on it (see module)."""
     while True:
         a = _measure_run(circuit, params, node, meter_ohms, fault, periods, workdir)
-        a1, a2, a3 = a[MARKS // 3 - 1], a[2 * MARKS // 3 - 1], a[-1]
-        d1, d2 = a2 - a1, a3 - a2
-        denom = d2 - d1
-        geometric = abs(denom) > 1e-12 and d1 * d2 > 0 and abs(d2) < abs(d1)
-        settled = a3 - d2 * d2 / denom if geometric else a3
+        settled, to_go = aitken(a)
         tol = max(SETTLE_REL * abs(settled), SETTLE_ABS)
-        # Not geometric: the last third of the run must itself have moved less than tol.
-        to_go = abs(settled - a3) if geometric else abs(d2)
+        a3 = a[-1]
         if to_go <= tol:
             return MeteredReading(node, float(settled), float(a3), periods)
         if periods >= max_periods:

@@ -9,6 +9,8 @@ from fieldtool.commands import expect_readouts
 from fieldtool.commands.boards import PROFILE_HELP, profile_arg
 from fieldtool.commands.expect_readouts import si as _si
 from fieldtool.core.circuit.expect import Expectation, expect
+from fieldtool.core.circuit.netlist import Change
+from fieldtool.core.circuit.profile import Profile
 from fieldtool.core.circuit.readouts.board import board_readouts
 
 
@@ -34,17 +36,24 @@ def run(args) -> int:
     profile = profile_arg(args.profile)
     if args.load_ohms is not None:
         profile = profile.with_load_ohms(args.load_ohms)
-    result = expect(profile)
-    more = board_readouts(profile, spreads=args.json)  # the text shows no spreads
-    if args.json:
-        data = to_json(result)
-        for j, node in enumerate(data["nodes"]):
-            node.update(expect_readouts.node_json(more, j))
-        data.update(expect_readouts.board_json(more))
-        print(json.dumps(data, indent=2))
-    else:
-        print(to_text(result) + "\n" + expect_readouts.text(more))
+    print(json.dumps(full_json(profile), indent=2) if args.json else full_text(profile))
     return 0
+
+
+def full_json(profile: Profile, fault: Change | None = None) -> dict:
+    """Everything `expect` knows of a board (optionally faulted), as one JSON object."""
+    data = to_json(expect(profile, fault=fault))
+    more = board_readouts(profile, fault=fault)
+    for j, node in enumerate(data["nodes"]):
+        node.update(expect_readouts.node_json(more, j))
+    data.update(expect_readouts.board_json(more))
+    return data
+
+
+def full_text(profile: Profile, fault: Change | None = None) -> str:
+    """Everything `expect` knows of a board (optionally faulted), as readable tables."""
+    more = board_readouts(profile, fault=fault, spreads=False)  # the text shows no spreads
+    return to_text(expect(profile, fault=fault)) + "\n" + expect_readouts.text(more)
 
 
 def _num(x: float | None) -> float | None:

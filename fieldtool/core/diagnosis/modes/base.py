@@ -87,14 +87,38 @@ class FaultMode(ABC):
         return ""
 
 
-def short_problem(mode: FaultMode, value: float) -> str | None:
-    """Why a short's resistance cannot be used, or None: more than 0, at most 100 Ω."""
-    if not 0 < value <= SHORT_MAX_OHMS:
-        return (
-            f"{mode.name} needs a resistance above 0 and at most {SHORT_MAX_OHMS:g} ohms "
-            f"(e.g. 50m); a higher one is a leak: use leaky"
-        )
-    return None
+class ShortMode(FaultMode):
+    """A part shorted: a low resistance across it, both ways.
+
+    How low varies from part to part and failure to failure (milliohms for a welded junction
+    or a metallised short, ohms for a burnt one), and what the board reads depends on it
+    wherever the short is comparable with the source resistances around it; so the dictionary
+    tries a range (``SHORT_GRID_OHMS``), marginalised like any other severity. A spec without
+    a value (``D5:short``) means a typical short of ``SHORT_OHMS``.
+    """
+
+    name = "short"
+    unit = "ohms"
+    words = "shorted"
+    default_severity = SHORT_OHMS
+
+    def grid(self, profile: Profile) -> tuple[float, ...]:
+        """10 Ω down to 10 mΩ, five points (mild to gross; ``SHORT_GRID_OHMS``)."""
+        return SHORT_GRID_OHMS
+
+    def severity_problem(self, value: float) -> str | None:
+        """A short is above 0 and at most 100 Ω; above that it is a leak."""
+        if not 0 < value <= SHORT_MAX_OHMS:
+            return (
+                f"{self.name} needs a resistance above 0 and at most {SHORT_MAX_OHMS:g} ohms "
+                f"(e.g. 50m); a higher one is a leak: use leaky"
+            )
+        return None
+
+    @staticmethod
+    def siemens(severity: float | None) -> float:
+        """The short's conductance: 1/``severity``, or 1/``SHORT_OHMS`` when none is given."""
+        return 1.0 / (SHORT_OHMS if severity is None else severity)
 
 
 def switching_ohms(profile: Profile) -> float:
