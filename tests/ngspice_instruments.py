@@ -23,7 +23,6 @@ Edinburgh 46, 1926) within 0.05 %, else the run is repeated four times longer.
 from __future__ import annotations
 
 import re
-import subprocess
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -32,8 +31,7 @@ import numpy as np
 from fieldtool.core.circuit.netlist import Circuit, Params
 from fieldtool.core.circuit.solver import initial_state
 from fieldtool.core.circuit.spice import spice_netlist
-from tests.conftest import NGSPICE
-from tests.ngspice_probe import MARKS, aitken, period_average_measures
+from tests.ngspice_probe import MARKS, aitken, period_average_measures, run_deck
 
 SETTLE_REL = 5e-4
 POINTS_PER_PERIOD = 200  # maximum step T/200; ngspice refines the drive edges itself
@@ -88,6 +86,42 @@ def burden(netlist: str, source_index: int, ohms: float) -> str:
     return "\n".join(lines) + "\n"
 
 
+def driver_from_rail(
+    netlist: str,
+    source_index: int,
+    rail_volts: float,
+    ohms: float,
+    burden_ohms: float,
+    period: float,
+    edge: float,
+) -> str:
+    """The netlist with square drive ``source_index`` made by a push-pull driver on a rail.
+
+    Two switches (on-resistance the driver's source resistance) connect the drive node to a
+    rail or to ground, clocked like the drive; the rail is fed from ``rail_volts`` through
+    the meter's burden and held up by a 100 µF bypass capacitor. The meter reads the average
+    of i(VRAIL).
+    """
+    lines = netlist.splitlines()
+    v = next(k for k, line in enumerate(lines) if line.startswith(f"V{source_index} "))
+    r = next(k for k, line in enumerate(lines) if line.startswith(f"RS{source_index} "))
+    node = lines[r].split()[2]
+    pulse = f"PULSE(0 1 0 {edge:.9g} {edge:.9g} {period / 2 - edge:.9g} {period:.9g})"
+    inverse = f"PULSE(1 0 0 {edge:.9g} {edge:.9g} {period / 2 - edge:.9g} {period:.9g})"
+    driver = [
+        f"VRAIL rail_in 0 DC {rail_volts:.9g}",
+        f"RBURDENRAIL rail_in rail {burden_ohms:.9g}",
+        f"CBYPASS rail 0 100u IC={rail_volts:.9g}",
+        f"VCTRL ctrl 0 {pulse}",
+        f"VCTRLB ctrlb 0 {inverse}",
+        f"SHIGH rail {node} ctrl 0 swdrv",
+        f"SLOW {node} 0 ctrlb 0 swdrv",
+        f".model swdrv SW(VT=0.5 VH=0 RON={ohms:.9g} ROFF=1e9)",
+    ]
+    keep = [line for k, line in enumerate(lines) if k not in (v, r)]
+    return "\n".join(keep[:v] + driver + keep[v:]) + "\n"
+
+
 def powered_run(
     circuit: Circuit,
     params: Params,
@@ -128,12 +162,8 @@ def powered_run(
                 lines.append("wrdata wave.txt " + " ".join(vectors))
                 continue
             lines.append(line)
-        workdir.mkdir(parents=True, exist_ok=True)
-        (workdir / "bench.cir").write_text("\n".join(lines) + "\n")
         (workdir / "wave.txt").unlink(missing_ok=True)
-        proc = subprocess.run(
-            [NGSPICE, "-b", "bench.cir"], cwd=workdir, capture_output=True, text=True, timeout=600
-        )
+        proc = run_deck(workdir, "bench.cir", lines)
         found = dict(re.findall(r"^(a\d+)\s+=\s+(\S+)", proc.stdout, re.MULTILINE))
         if len(found) != MARKS or not (workdir / "wave.txt").exists():
             raise AssertionError(f"ngspice failed:\n{proc.stdout[-1500:]}{proc.stderr[-1500:]}")
@@ -226,11 +256,7 @@ def _diode_run(
         if line.startswith("wrdata"):
             continue
         lines.append(line)
-    workdir.mkdir(parents=True, exist_ok=True)
-    (workdir / "diode.cir").write_text("\n".join(lines) + "\n")
-    proc = subprocess.run(
-        [NGSPICE, "-b", "diode.cir"], cwd=workdir, capture_output=True, text=True, timeout=300
-    )
+    proc = run_deck(workdir, "diode.cir", lines)
     return proc.stdout + proc.stderr
 
 

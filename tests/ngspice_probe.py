@@ -99,6 +99,15 @@ def write_fault(netlist: str, circuit: Circuit, fault: SpiceFault) -> str:
     return "\n".join(lines) + "\n"
 
 
+def run_deck(workdir: Path, name: str, lines: list[str]) -> subprocess.CompletedProcess:
+    """Write a netlist's lines to ``workdir/name`` and run ngspice on it in batch mode."""
+    workdir.mkdir(parents=True, exist_ok=True)
+    (workdir / name).write_text("\n".join(lines) + "\n")
+    return subprocess.run(
+        [NGSPICE, "-b", name], cwd=workdir, capture_output=True, text=True, timeout=600
+    )
+
+
 def period_average_measures(expr: str, periods: int, period: float) -> list[str]:
     """ngspice ``meas`` lines a0 … a11: ``expr`` integrated over one period at MARKS marks.
 
@@ -155,11 +164,7 @@ def _measure_run(
             lines.append("print " + " ".join(f"a{i}" for i in range(MARKS)))
             continue
         lines.append(line)
-    workdir.mkdir(parents=True, exist_ok=True)
-    (workdir / "probe.cir").write_text("\n".join(lines) + "\n")
-    proc = subprocess.run(
-        [NGSPICE, "-b", "probe.cir"], cwd=workdir, capture_output=True, text=True, timeout=300
-    )
+    proc = run_deck(workdir, "probe.cir", lines)
     found = dict(re.findall(r"^(a\d+)\s+=\s+(\S+)", proc.stdout, re.MULTILINE))
     if len(found) != MARKS:
         raise AssertionError(

@@ -43,7 +43,7 @@ def run(args) -> int:
 def full_json(profile: Profile, fault: Change | None = None) -> dict:
     """Everything `expect` knows of a board (optionally faulted), as one JSON object."""
     data = to_json(expect(profile, fault=fault))
-    more = board_readouts(profile, fault=fault)
+    more = board_readouts(profile, fault=fault, spreads=False)  # expect shows no spreads
     for j, node in enumerate(data["nodes"]):
         node.update(expect_readouts.node_json(more, j))
     data.update(expect_readouts.board_json(more))
@@ -52,7 +52,7 @@ def full_json(profile: Profile, fault: Change | None = None) -> dict:
 
 def full_text(profile: Profile, fault: Change | None = None) -> str:
     """Everything `expect` knows of a board (optionally faulted), as readable tables."""
-    more = board_readouts(profile, fault=fault, spreads=False)  # the text shows no spreads
+    more = board_readouts(profile, fault=fault, spreads=False)  # expect shows no spreads
     return to_text(expect(profile, fault=fault)) + "\n" + expect_readouts.text(more)
 
 

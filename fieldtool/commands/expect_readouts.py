@@ -38,14 +38,11 @@ def node_json(b: BoardReadouts, j: int) -> dict:
     r = b.powered
     return {
         "ripple_pp_scope_volts": _num(r.ripple_pp[0, j]),
-        "ripple_pp_sigma_volts": _num(r.ripple_sigma[0, j]),
         "ac_rms_volts": _num(r.ac_rms[0, j]),
-        "ac_rms_sigma_volts": _num(r.ac_sigma[0, j]),
         "test_loads": [
             {
                 "ohms": ohms,
                 "volts": _num(r.dc_loaded[0, k, j]),
-                "sigma_volts": _num(r.loaded_sigma[0, k, j]),
             }
             for k, ohms in enumerate(r.test_load_ohms)
         ],
@@ -69,7 +66,7 @@ def board_json(b: BoardReadouts) -> dict:
         tests.append(entry)
     return {
         "supply_current_metered_a": _num(r.supply_amps[0]),
-        "supply_current_sigma_a": _num(r.supply_sigma[0]),
+        "drive_rail_current_metered_a": _num(r.rail_amps[0]),
         "meter_burden_ohms": p.instruments.burden_ohms,
         "test_loads": [
             {
@@ -115,6 +112,11 @@ def text(b: BoardReadouts) -> str:
         lines.append(
             f"supply current, meter in the supply lead ({_si(inst.burden_ohms, 'Ω')} burden): "
             f"{_si(r.supply_amps[0], 'A')}"
+        )
+    if math.isfinite(r.rail_amps[0]):
+        lines.append(
+            f"drive-rail current, meter in the driver's own supply rail, where it has one: "
+            f"{_si(r.rail_amps[0], 'A')}"
         )
     for t in b.test_loads:
         rated = f" (rated {_si(t.rated_watts, 'W')})" if t.rated_watts is not None else ""

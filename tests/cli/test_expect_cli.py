@@ -51,6 +51,7 @@ def test_expect_shows_test_loads_with_their_power_and_the_diode_tests(capsys):
     assert "OVER ITS RATING" not in text
     assert "Clip a test load on only with the board off" in text
     assert "D1 … D16  forward 0.581 V, reverse OL" in text
+    assert "drive-rail current, meter in the driver's own supply rail" in text
     assert "verify every node reads below 50 V" in text
     main(["expect", str(prof), "--json"])
     out = json.loads(capsys.readouterr().out)

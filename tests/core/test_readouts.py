@@ -173,3 +173,16 @@ def test_reservoir_ripple_spread_follows_its_capacitor_tolerance():
     o = r.nodes.index("S3")
     assert 0 < r.loaded_sigma[0, 0, o] < 0.05 * r.dc_loaded[0, 0, o]
     assert 0 < r.supply_sigma[0] / r.supply_amps[0] < 0.05
+
+
+@pytest.mark.parametrize("topology", ["dc-ladder", "dickson"])
+def test_supply_lead_and_driver_rail_share_the_input_current_by_charge_balance(topology):
+    # An ideal N-stage pump draws (N+1)·I_out in all: I_out through its supply lead and N·I_out
+    # from its clock drivers' rail (Tanzawa & Tanaka, IEEE JSSC 32(8), 1997; from memory).
+    # Within 0.5 %: leakage and the meter's burden are the difference here.
+    profile = make_profile(board={"topology": topology, "stages": 4}, load={"ohms": 47e3})
+    circuit, params, ss = _solved(profile)
+    r = powered_readouts(circuit, params, ss.period, profile, spreads=False)
+    i_out = period_average(ss.period)[0, circuit.output_node - 1] / 47e3
+    assert r.supply_amps[0] == pytest.approx(i_out, rel=0.005)
+    assert r.rail_amps[0] == pytest.approx(4 * i_out, rel=0.005)

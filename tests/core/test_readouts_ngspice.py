@@ -178,6 +178,35 @@ def test_supply_current_through_the_burden_matches_ngspice(board, tmp_path):
     assert amps == pytest.approx(load_amps, rel=0.002)
 
 
+def test_driver_rail_current_matches_a_switched_driver_in_ngspice(tmp_path):
+    # ngspice: the drive made by two switches from a rail behind the burden and a bypass
+    # capacitor (an independent model of a push-pull driver); the meter reads i(VRAIL).
+    profile = BOARDS["dc-ladder"]
+    circuit, params, ss, r = _predict("dc-ladder")
+    drive = next(i for i, s in enumerate(circuit.sources) if s.kind == "square")
+    T = circuit.period_s
+
+    def edit(text):
+        return bench.driver_from_rail(
+            text,
+            drive,
+            profile.drive_volts,
+            profile.drive_ohms,
+            profile.instruments.burden_ohms,
+            T,
+            circuit.edge_fraction * T,
+        )
+
+    out = circuit.name(circuit.output_node)
+    run = _run("dc-ladder", out, [], ["i(vrail)", f"v({out.lower()})"], tmp_path, edit=edit)
+    amps = -bench.period_average(run, 0)
+    assert r.rail_amps[0] == pytest.approx(amps, rel=0.01)
+    # Charge balance: each of the N flying capacitors passes the output current, pushed up by
+    # the driver while it is high: N·I_out from the rail (Tanzawa & Tanaka 1997, from memory).
+    n_iout = profile.stages * bench.period_average(run, 1) / profile.load_ohms
+    assert amps == pytest.approx(n_iout, rel=0.01)
+
+
 @pytest.mark.parametrize(
     "board, node", [("dc-ladder", "S3"), ("dc-ladder", "S1"), ("dickson", "OUT")]
 )

@@ -15,7 +15,8 @@ predicts at each probe node and for each variant:
   first order (``[meter] ac_bandwidth_hz``).
 - ``current`` at ``supply``: the DC average the meter reads in series with the supply lead,
   solved with its burden resistance in series with the supply's source resistance (so the
-  board sees the lower supply). Boards with no DC input have no such reading (NaN).
+  board sees the lower supply). Boards with no DC input have no such reading (NaN). And at
+  ``drive``: a square driver's own supply rail (``current`` says how).
 - ``dc-loaded``: the DC average the voltmeter reads at a node while a test load of the given
   resistance is clipped from the output node to ground, both solved in place.
 
@@ -30,6 +31,13 @@ from dataclasses import dataclass
 import numpy as np
 
 from fieldtool.core.circuit.netlist import Circuit, Params, stack
+from fieldtool.core.circuit.readouts.current import (
+    rail_amps,
+    rail_sources,
+    source_amps,
+    supply_index,
+    with_rail_burden,
+)
 from fieldtool.core.circuit.readouts.spread import tolerance_sigma, tolerance_steps
 from fieldtool.core.circuit.readouts.waveform import (
     RESAMPLE_POINTS,
@@ -61,15 +69,12 @@ class PoweredReadouts:
     ac_sigma: np.ndarray  # (B, P)
     supply_amps: np.ndarray  # (B,) amps through the meter's burden; NaN without a DC input
     supply_sigma: np.ndarray  # (B,)
+    rail_amps: np.ndarray  # (B,) a square driver's own rail, through the burden; else NaN
+    rail_sigma: np.ndarray  # (B,)
     test_load_ohms: tuple[float, ...]  # (L,)
     dc_loaded: np.ndarray  # (B, L, P) volts, test load on the output, voltmeter on the node
     loaded_sigma: np.ndarray  # (B, L, P)
     converged: np.ndarray  # (B,) every solve of the variant converged
-
-
-def supply_index(circuit: Circuit) -> int | None:
-    """The DC supply source's index, or None where the board has no DC input."""
-    return next((i for i, s in enumerate(circuit.sources) if s.kind == "dc"), None)
 
 
 def node_admittance(circuit: Circuit, params: Params) -> tuple[np.ndarray, np.ndarray]:
@@ -147,7 +152,8 @@ def powered_readouts(
     times = period_grid(circuit, steps)
     if len(times) != len(period.times):
         raise ValueError(f"period has {len(period.times) - 1} steps, not {len(times) - 1}")
-    plan = _Plan.of(circuit, params, profile, tuple(test_load_ohms), spreads)
+    unmetered_rail = rail_amps(circuit, period, params, np.arange(params.batch))
+    plan = _Plan.of(circuit, params, profile, tuple(test_load_ohms), spreads, unmetered_rail)
     start = _loaded_starts(circuit, params, period, plan, test_load_ohms, steps)
     ss = steady_state(
         circuit,
@@ -169,18 +175,26 @@ def powered_readouts(
         amps = source_amps(
             per, plan.rows, plan.burdened, circuit.sources[plan.supply].node, plan.supply
         )
+    rail = np.full(B, np.nan)
+    if plan.railed.size:
+        rail = rail_amps(circuit, per, plan.rows, plan.railed)
     dc_loaded = node_average(per, plan.loaded, probe[None, None, :])
     ac = ac_rms_reading(circuit, params, period, profile.instruments)
     sig = _Sigmas.none(B, len(probe), len(test_load_ohms))
     if spreads:
         sig.ripple, sig.ac = _waveform_sigmas(circuit, params, period, profile, per, plan)
         sig.supply, sig.loaded = _linear_sigmas(circuit, profile, per, plan, steps)
+        if plan.railed.size:
+            moved = rail_amps(circuit, per, plan.rows, plan.nudged.ravel()).reshape(B, -1)
+            sig.rail = np.sqrt(((moved - unmetered_rail[:, None]) ** 2).sum(axis=1))
         nudge_failed = bad[plan.nudged].any(axis=1)[:, None]  # a spread needs every nudge
         sig.ripple[np.broadcast_to(nudge_failed, sig.ripple.shape)] = np.nan
         sig.ac[np.broadcast_to(nudge_failed, sig.ac.shape)] = np.nan
     pairs = (
         (ripple, plan.scope),
         (amps, plan.burdened),
+        (rail, plan.railed),
+        (sig.rail, plan.railed),
         (dc_loaded, plan.loaded),
         (sig.supply, plan.burdened),
         (sig.loaded, plan.loaded),
@@ -196,6 +210,8 @@ def powered_readouts(
         ac_sigma=sig.ac,
         supply_amps=amps,
         supply_sigma=sig.supply,
+        rail_amps=rail,
+        rail_sigma=sig.rail,
         test_load_ohms=tuple(test_load_ohms),
         dc_loaded=dc_loaded,
         loaded_sigma=sig.loaded,
@@ -263,26 +279,23 @@ def node_average(per: Period, rows: np.ndarray, nodes: np.ndarray) -> np.ndarray
     return ((wave * h).sum(axis=1) / per.times[-1]).reshape(rows.shape)
 
 
-def source_amps(per: Period, rows: Params, which: np.ndarray, node: int, source: int) -> np.ndarray:
-    """Period-average current out of one source into its node, for the rows ``which``."""
-    h = np.diff(per.times)
-    g = rows.s_g[which, source]
-    i_t = g[:, None] * (per.src[which, :, source] - per.v[which, :, node - 1])
-    return (i_t * h).sum(axis=1) / per.times[-1]
-
-
 @dataclass
 class _Sigmas:
     ripple: np.ndarray
     ac: np.ndarray
     supply: np.ndarray
+    rail: np.ndarray
     loaded: np.ndarray
 
     @classmethod
     def none(cls, B: int, P: int, L: int) -> _Sigmas:
         nan = np.nan
         return cls(
-            np.full((B, P), nan), np.full((B, P), nan), np.full(B, nan), np.full((B, L, P), nan)
+            np.full((B, P), nan),
+            np.full((B, P), nan),
+            np.full(B, nan),
+            np.full(B, nan),
+            np.full((B, L, P), nan),
         )
 
 
@@ -295,6 +308,7 @@ class _Plan:
     supply: int | None
     scope: np.ndarray  # (B, P) the scope on each probe node
     burdened: np.ndarray  # (B,) or (0,): the current meter in the supply lead
+    railed: np.ndarray  # (B,) or (0,): the current meter in a square driver's rail
     loaded: np.ndarray  # (B, L, P) test load on, voltmeter on each node
     nudged: np.ndarray  # (B, d) or (B, 0): one tolerance nudged per row
 
@@ -306,6 +320,7 @@ class _Plan:
         profile: Profile,
         test_load_ohms: tuple[float, ...],
         spreads: bool,
+        rail: np.ndarray,
     ) -> _Plan:
         B = params.batch
         probe = np.array(circuit.probe_nodes) - 1
@@ -330,6 +345,10 @@ class _Plan:
             rows = params.copy()
             rows.s_g[:, supply] = 1.0 / (1.0 / rows.s_g[:, supply] + inst.burden_ohms)
             burdened = block(rows, np.arange(B))
+        railed = np.zeros(0, dtype=np.intp)
+        if rail_sources(circuit):
+            rows = with_rail_burden(circuit, params, rail, inst.burden_ohms)
+            railed = block(rows, np.arange(B))
         v = np.repeat(np.arange(B), L * P)
         rows = params.take(v).copy()
         r = np.arange(len(v))
@@ -342,7 +361,16 @@ class _Plan:
         if spreads:
             rows, d = tolerance_steps(circuit, params, profile)
             nudged = block(rows, np.repeat(np.arange(B), d)).reshape(B, d)
-        return cls(stack(blocks), np.concatenate(variants), supply, scope, burdened, loaded, nudged)
+        return cls(
+            stack(blocks),
+            np.concatenate(variants),
+            supply,
+            scope,
+            burdened,
+            railed,
+            loaded,
+            nudged,
+        )
 
 
 def _waveform_sigmas(
