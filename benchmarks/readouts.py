@@ -115,8 +115,59 @@ def agreement() -> None:
                 work / f"{board}{ref}",
             )
             worst = max(worst, abs(d.volts[0, i, 0] - spice))
-        print(f"| {board} | diode test, forward | {worst * 1e3:.2f} mV | every diode |")
+        print(f"| {board} | diode test, forward | {worst * 1e6:.0f} µV | every diode |")
+        _currents_and_load(board, profile, circuit, params, r, work)
     print(f"\n(load average while measuring: {os.getloadavg()[0]:.1f})")
+
+
+def _currents_and_load(board, profile, circuit, params, r, work: Path) -> None:
+    """Supply lead, driver rail and the output under the test load, against ngspice."""
+    from tests import ngspice_instruments as bench
+    from tests.core.test_readouts_ngspice import TEST_LOAD
+
+    out = circuit.name(circuit.output_node).lower()
+    kinds = [s.kind for s in circuit.sources]
+    rows = []
+    if "dc" in kinds:
+        i = kinds.index("dc")
+        burden = profile.instruments.burden_ohms
+        run = bench.powered_run(
+            circuit,
+            params,
+            [],
+            [f"i(v{i})"],
+            f"v({out})",
+            work / f"{board}-supply",
+            edit=lambda t, i=i: bench.burden(t, i, burden),
+        )
+        rows.append(("supply current", r.supply_amps[0], -bench.period_average(run), "A"))
+    if kinds.count("square") == 1 and "square-inverted" not in kinds:
+        i = kinds.index("square")
+        T = circuit.period_s
+
+        def rail(t, i=i):
+            return bench.driver_from_rail(
+                t,
+                i,
+                profile.drive_volts,
+                profile.drive_ohms,
+                profile.instruments.burden_ohms,
+                T,
+                circuit.edge_fraction * T,
+            )
+
+        run = bench.powered_run(
+            circuit, params, [], ["i(vrail)"], f"v({out})", work / f"{board}-rail", edit=rail
+        )
+        rows.append(("drive-rail current", r.rail_amps[0], -bench.period_average(run), "A"))
+    extra = [f"RTEST {out} 0 {TEST_LOAD:.9g}", f"RMETER {out} 0 {profile.meter_ohms:.9g}"]
+    run = bench.powered_run(circuit, params, extra, [f"v({out})"], f"v({out})", work / f"{board}-l")
+    rows.append(("output under 100 kΩ", r.dc_loaded[0, 0, -1], bench.period_average(run), "V"))
+    for label, ours, spice, unit in rows:
+        print(
+            f"| {board} | {label} | {(ours - spice) / abs(spice):+.2%} | "
+            f"{ours:.5g} {unit} vs {spice:.5g} {unit} |"
+        )
 
 
 def main() -> None:

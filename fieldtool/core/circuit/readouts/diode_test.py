@@ -162,6 +162,9 @@ def _transient(
     near = (0.1 * instruments.diode_settle_s, 10 * instruments.diode_settle_s)
     while t < SETTLE_HORIZON_S:
         x, _, _ = step(net, x, state, b_src, h, False)
+        # Every step here has its own length, so the network's per-length matrices are never
+        # reused; dropping them keeps memory at one step's worth for large batches.
+        net._h_cache.clear()
         t += h
         full[:, 1:] = state.v
         readings.append(full[rows, red] - full[rows, black])
