@@ -9,11 +9,13 @@ from datetime import UTC, datetime, timedelta
 import pytest
 
 from fieldtool.core import history as hist
+from fieldtool.core.session import unfinished_session
 from fieldtool.meters.settings import MeterSettings, SettleRule
 from fieldtool.tui.dialogs import ResumeDialog
 from fieldtool.tui.meter_strip import MeterChoice, MeterStrip
 from fieldtool.tui.node_table import NodeTable
 from tests.pty_lines import pty_lines
+from tests.readings import reading
 from tests.tui.conftest import drain, probing, type_reading, typed_app, until
 
 IDENTITY = "BENCH,DMM-9,0042,1.0"
@@ -71,9 +73,9 @@ async def test_meter_unplugged_mid_session_keeps_every_reading(
         assert screen.check_action("accept", ()) is True
         assert screen.check_action("reconnect", ()) is False
         await pilot.press("a")
-        taken = screen.session.taken["S0"]
-        assert (taken.volts, taken.source) == (12.5, IDENTITY)
-        assert taken.spread == 0.0
+        taken = screen.session.latest("S0")
+        assert (taken.value, str(taken.source), taken.settled) == (12.5, IDENTITY, True)
+        assert taken.spread == 0.0 and taken.samples >= 3
         # Unplug: the far end of the serial line goes away mid-session.
         unplug.set()
         await until(
@@ -81,7 +83,7 @@ async def test_meter_unplugged_mid_session_keeps_every_reading(
             lambda: not strip.live and "Meter disconnected" in screen.last_problem,
             what="meter lost and the notice shown",
         )
-        assert screen.session.taken["S0"].volts == 12.5  # still there
+        assert screen.session.latest("S0").value == 12.5  # still there
         assert screen.check_action("accept", ()) is False
         assert screen.check_action("reconnect", ()) is True
         assert "m reconnects" in strip.status
@@ -89,11 +91,12 @@ async def test_meter_unplugged_mid_session_keeps_every_reading(
         screen.query_one(NodeTable).select("S8")
         await pilot.pause()
         await type_reading(pilot, "126.1")
-        assert screen.session.taken["S8"].volts == pytest.approx(126.1)
+        assert screen.session.latest("S8").value == pytest.approx(126.1)
         drain(app)
     assert log[:2] == ["*IDN?", "CONF:VOLT:DC"] and "READ?" in log
-    readings = [r.event for r in hist.read_board(tmp_path, "TG-0042").events if r.kind == "reading"]
-    assert [(r.node, r.volts, r.source) for r in readings] == [
+    records = hist.read_board(tmp_path, "TG-0042").events
+    readings = [r.event.measurement for r in records if r.kind == "reading"]
+    assert [(m.at, m.value, str(m.source)) for m in readings] == [
         ("S0", 12.5, IDENTITY),
         ("S8", pytest.approx(126.1), "typed"),
     ]
@@ -104,8 +107,8 @@ def interrupted_history(logs, profile) -> None:
     t0 = datetime(2026, 11, 30, 9, 0, tzinfo=UTC)
     events = [
         hist.SessionOpened(technician="AB", profile_hash=profile.digest, tool_version="0.1.0"),
-        hist.Reading(node="S0", volts=15.0),
-        hist.Reading(node="S8", volts=96.3),
+        reading("S0", 15.0),
+        reading("S8", 96.3),
     ]
     session = events[0].session_id
     for i, event in enumerate(events):
@@ -121,7 +124,7 @@ async def test_resume_an_interrupted_session(profile, cache_dir, tmp_path):
         assert "2 readings" in app.screen.text
         await pilot.press("r")
         screen = await probing(pilot)
-        assert {n: t.volts for n, t in screen.session.taken.items()} == {"S0": 15.0, "S8": 96.3}
+        assert screen.session.volts_by_node() == {"S0": 15.0, "S8": 96.3}
         assert screen.query_one(NodeTable).values == {"S0": 15.0, "S8": 96.3}
         assert screen.session.resumed_from.startswith("2026-11-30T09:00")
         # Quitting mid-session asks nothing and loses nothing.
@@ -132,8 +135,8 @@ async def test_resume_an_interrupted_session(profile, cache_dir, tmp_path):
         await until(pilot, lambda: app.return_code is not None, what="exit")
     h = hist.read_board(tmp_path, "TG-0042")
     assert [r.kind for r in h.events].count("session-opened") == 1  # resumed, not reopened
-    assert [r.fields["node"] for r in h.events if r.kind == "reading"] == ["S0", "S8", "S4"]
-    assert hist.last_session_open(h)
+    assert [r.event.measurement.at for r in h.events if r.kind == "reading"] == ["S0", "S8", "S4"]
+    assert unfinished_session(tmp_path, "TG-0042") is not None
 
 
 async def test_decline_resume_starts_a_new_session(profile, cache_dir, tmp_path):
@@ -162,7 +165,7 @@ async def test_unwritable_history_keeps_readings_and_says_so(profile, cache_dir,
         await pilot.press("escape")
         screen = await probing(pilot)
         await type_reading(pilot, "15.0")
-        assert screen.session.taken["S0"].volts == 15.0
+        assert screen.session.latest("S0").value == 15.0
         app.writer.drain()
         assert len(app.writer.unsaved) == 2  # session-opened, then the reading, in order
         assert "unsaved" in screen.title_text().plain
