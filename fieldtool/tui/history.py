@@ -13,6 +13,7 @@ from textual.widgets import DataTable, Footer, Label, Static
 from fieldtool.core import history as hist
 from fieldtool.core.errors import FieldtoolError
 from fieldtool.core.history.fleet import confirmed_failures
+from fieldtool.core.history.sessions import group_sessions
 from fieldtool.core.measurement import DC
 from fieldtool.tui.view import volts_text
 
@@ -100,7 +101,7 @@ class HistoryScreen(Screen):
         if h is not None:
             for row in rows:
                 table.add_row(*row)
-            sessions = sum(r.kind == "session-opened" for r in h.events)
+            sessions = sum(s.id is not None for s in group_sessions(h.events))
             note = f"{len(h.events)} records, {sessions} sessions."
             if h.damaged:
                 note += f" {len(h.damaged)} damaged lines left on disk untouched"

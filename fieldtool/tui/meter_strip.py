@@ -45,15 +45,6 @@ class MeterChoice:
     fault: Fault | None = None  # simulated meter: the board's hidden fault
     seed: int = 0
 
-    @property
-    def words(self) -> str:
-        """The choice in a few words for the title bar."""
-        if self.kind == "port":
-            return f"{self.settings.protocol} meter on {self.port}"
-        if self.kind == "simulated":
-            return "simulated meter"
-        return "typed readings"
-
 
 def open_meter(choice: MeterChoice, profile: Profile) -> Meter:
     """The meter for a choice, not yet connected (blocking: the meter loop calls it)."""

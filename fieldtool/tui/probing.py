@@ -27,6 +27,7 @@ from fieldtool.core.errors import FieldtoolError
 from fieldtool.core.history import Action
 from fieldtool.core.measurement import Measurement
 from fieldtool.core.session import BoardSession
+from fieldtool.core.times import now_utc
 from fieldtool.meters.loop import MeterLoop
 from fieldtool.meters.parse import parse_typed
 from fieldtool.tui.dialogs import (
@@ -43,18 +44,13 @@ from fieldtool.tui.meter_strip import MeterChoice, MeterLink, MeterStrip, open_m
 from fieldtool.tui.node_table import NodeTable
 from fieldtool.tui.palette import Commands
 from fieldtool.tui.panels import SafetyStrip, SuspectsPanel
-from fieldtool.tui.view import count_text, reveal_text
+from fieldtool.tui.view import count_text, entry_hint, ladder_ranks, reveal_text, suspect_ref
 
 TYPING_KEYS = set("0123456789-.+,")
 ACCEPT_LIVE = "Take the live value now, marked unsettled in the history"
 TYPE_WORDS = "Type a reading for the selected node (a digit starts one too)"
 REPAIR_WORDS = "Record a repair: part, fault mode found, what was done, part used, note"
 SAFETY_DELAY_S = 0.15  # let the panels repaint before the safety figures are recomputed
-
-
-def suspect_ref(key: str) -> str | None:
-    """The default designator or board target a hypothesis key names (None for healthy)."""
-    return None if key == "healthy" else key.split(":", 1)[0]
 
 
 class ProbingScreen(Commands, Screen):
@@ -189,24 +185,11 @@ class ProbingScreen(Commands, Screen):
         self.query_one(SuspectsPanel).show(s.diagnosis)
         ladder = self.query_one(LadderView)
         ladder.states = {n: table.verdict_for(n).state for n in s.dictionary.nodes}
-        ladder.ranks = self._ranks()
+        ladder.ranks = ladder_ranks(self.session.diagnosis)
         ladder.selected = self.selected
         self.query_one("#title", Static).update(self.title_text())
-        self.query_one(
-            "#entry", Input
-        ).placeholder = f"volts at {self.selected}: 12.9, 890mV, 1.2kV or OL, then Enter"
+        self.query_one("#entry", Input).placeholder = entry_hint(self.selected)
         self._update_safety()
-
-    def _ranks(self) -> dict[str, int]:
-        ranks: dict[str, int] = {}
-        for s in self.session.diagnosis.suspects:
-            ref = suspect_ref(s.key)
-            if ref is None or ref in ranks or s.probability < 0.05:
-                continue
-            ranks[ref] = len(ranks) + 1
-            if len(ranks) == 3:
-                break
-        return ranks
 
     def _hazard(self, node: str | None) -> bool:
         values = self.session.volts_by_node()
@@ -248,9 +231,7 @@ class ProbingScreen(Commands, Screen):
         self.query_one(MeterStrip).probe_node = node
         if self._meter is not None:
             self._meter.place_probe(node)
-        self.query_one(
-            "#entry", Input
-        ).placeholder = f"volts at {node}: 12.9, 890mV, 1.2kV or OL, then Enter"
+        self.query_one("#entry", Input).placeholder = entry_hint(node)
         self.query_one(SafetyStrip).show(self.figures, node, self._hazard(node))
 
     def on_key(self, event) -> None:
@@ -275,7 +256,7 @@ class ProbingScreen(Commands, Screen):
             self.app.push_screen(ErrorDialog(exc))
             return  # the text stays in the entry to be corrected
         event.input.value = ""
-        self.take(typed.placed(node))
+        self.take(replace(typed, at=node, taken=now_utc()))
         self.query_one(NodeTable).focus()
 
     # --- the meter ---------------------------------------------------------------------

@@ -71,13 +71,13 @@ def board_summary(logs_dir: Path, serial: str) -> str:
         return f"{serial}: new board, no history yet."
     except FieldtoolError as exc:
         return f"{serial}: history unreadable ({exc.message})"
-    sessions = sum(r.kind == "session-opened" for r in h.events)
-    outcomes = [r.fields.get("outcome") for r in h.events if r.kind == "session-closed"]
+    sessions = [s for s in group_sessions(h.events) if s.id is not None]
+    outcomes = [s.outcome for s in sessions if s.outcome]
     last = f", last outcome {outcomes[-1]}" if outcomes else ""
-    unfinished = open_session(group_sessions(h.events)) is not None
+    unfinished = open_session(sessions) is not None
     open_note = "; last session unfinished (you can resume it)" if unfinished else ""
     damaged = f"; {len(h.damaged)} damaged lines" if h.damaged else ""
-    return f"{serial}: {sessions} sessions{last}{open_note}{damaged}."
+    return f"{serial}: {len(sessions)} sessions{last}{open_note}{damaged}."
 
 
 class StartScreen(Commands, Screen):

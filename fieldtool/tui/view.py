@@ -7,6 +7,7 @@ from dataclasses import dataclass
 
 from fieldtool.core.circuit.spec import display_name
 from fieldtool.core.diagnosis.faults import Fault, describe
+from fieldtool.core.diagnosis.ranking import Diagnosis
 from fieldtool.core.session import BoardSession
 
 # Each state has a symbol and a word, so it never rests on colour alone.
@@ -95,6 +96,29 @@ def percent_text(p: float) -> str:
     if 0 < p < 0.005:
         return "<1%"
     return f"{p:.0%}"
+
+
+def suspect_ref(key: str) -> str | None:
+    """The default designator or board target a hypothesis key names (None for healthy)."""
+    return None if key == "healthy" else key.split(":", 1)[0]
+
+
+def ladder_ranks(diagnosis: Diagnosis) -> dict[str, int]:
+    """The parts of the top three suspects (5 % or more) and their rank, for the ladder."""
+    ranks: dict[str, int] = {}
+    for s in diagnosis.suspects:
+        ref = suspect_ref(s.key)
+        if ref is None or ref in ranks or s.probability < 0.05:
+            continue
+        ranks[ref] = len(ranks) + 1
+        if len(ranks) == 3:
+            break
+    return ranks
+
+
+def entry_hint(node: str | None) -> str:
+    """What to type into the reading entry at ``node``."""
+    return f"volts at {node}: 12.9, 890mV, 1.2kV or OL, then Enter"
 
 
 def count_text(n: int, word: str) -> str:

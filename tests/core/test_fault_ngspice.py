@@ -97,7 +97,7 @@ def test_guided_probing_finds_the_ngspice_fault(board, ref, mode, left, dictiona
     result = diagnose(d, readings)
     while result.next_probe is not None and len(readings) < MAX_PROBES:
         node = result.next_probe
-        assert node not in {r.node for r in readings}, f"{node} suggested twice"
+        assert node not in {r.at for r in readings}, f"{node} suggested twice"
         got = metered_reading(circuit, params, node, profile.meter_ohms, tmp_path, fault)
         readings.append(dc(node, got.volts))
         result = diagnose(d, readings)

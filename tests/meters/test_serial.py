@@ -7,15 +7,19 @@ import time
 import pytest
 import serial
 
+from fieldtool.core.measurement import DC, RIPPLE_PP, Source
+from fieldtool.meters.connect import PROTOCOL_DRIVERS
 from fieldtool.meters.errors import (
     MeterDisconnected,
     MeterGarbage,
+    MeterSettingsError,
     MeterTimeout,
     PortMissing,
     permission_message,
 )
 from fieldtool.meters.scpi import ScpiMeter
-from fieldtool.meters.settings import MeterSettings
+from fieldtool.meters.settings import PROTOCOLS, MeterSettings
+from fieldtool.meters.simulated import SimulatedMeter
 from fieldtool.meters.stream import StreamMeter
 from fieldtool.meters.transport import SerialTransport, open_port
 from tests.pty_lines import pty_lines
@@ -216,3 +220,25 @@ def test_no_command_delay_by_default():
     finally:
         transport.close()
     assert waits == []
+
+
+def test_capabilities_are_flags_with_defaults():
+    """A serial meter's probe is in a person's hand: placing it does nothing (no byte is sent);
+    it can be set to DC volts and refuses other kinds, naming itself."""
+    transport = open_port("loop://", timeout=0.2)
+    meter = ScpiMeter(transport, MeterSettings())
+    try:
+        assert meter.places_probe is False and SimulatedMeter.places_probe is True
+        meter.place_probe("S3")
+        with pytest.raises(MeterTimeout):
+            transport.readline(0.2)  # loop:// would echo anything written
+        meter.set_quantity(DC)
+        with pytest.raises(MeterSettingsError, match="scpi meter on loop:// cannot measure ripple"):
+            meter.set_quantity(RIPPLE_PP)
+        assert meter.quantity == DC and meter.source == Source("meter", "scpi meter on loop://")
+    finally:
+        meter.close()
+
+
+def test_every_protocol_in_the_settings_has_a_driver():
+    assert set(PROTOCOL_DRIVERS) == set(PROTOCOLS)

@@ -56,12 +56,17 @@ def pty_meter():
     os.close(slave)
 
 
+def pty_app(profile, logs, cache_dir, port: str, settle_count: int):
+    """The app on TG-0042 reading the meter on ``port``, settled after ``settle_count``."""
+    settings = MeterSettings(timeout_s=0.5, settle=SettleRule(count=settle_count, timeout_s=5.0))
+    return typed_app(profile, logs, cache_dir, meter=MeterChoice("port", port, settings))
+
+
 async def test_meter_unplugged_mid_session_keeps_every_reading(
     profile, cache_dir, tmp_path, pty_meter
 ):
     port, unplug, log = pty_meter
-    settings = MeterSettings(timeout_s=0.5, settle=SettleRule(count=3, timeout_s=5.0))
-    app = typed_app(profile, tmp_path, cache_dir, meter=MeterChoice("port", port, settings))
+    app = pty_app(profile, tmp_path, cache_dir, port, settle_count=3)
     async with app.run_test(size=(100, 30)) as pilot:
         screen = await probing(pilot)
         strip = screen.query_one(MeterStrip)
@@ -100,6 +105,23 @@ async def test_meter_unplugged_mid_session_keeps_every_reading(
         ("S0", 12.5, IDENTITY),
         ("S8", pytest.approx(126.1), "typed"),
     ]
+
+
+async def test_a_value_taken_before_it_settles_says_so(profile, cache_dir, tmp_path, pty_meter):
+    port, _, _ = pty_meter
+    app = pty_app(profile, tmp_path, cache_dir, port, settle_count=10)
+    async with app.run_test(size=(100, 30)) as pilot:
+        screen = await probing(pilot)
+        strip = screen.query_one(MeterStrip)
+        await until(pilot, lambda: strip.settle is not None, what="a first sample")
+        await pilot.press("a")  # not settled yet: nothing is taken
+        assert screen.session.latest("S0") is None
+        await pilot.press("A")
+        taken = screen.session.latest("S0")
+        assert (taken.value, taken.settled, str(taken.source)) == (12.5, False, IDENTITY)
+        drain(app)
+    (record,) = [r for r in hist.read_board(tmp_path, "TG-0042").events if r.kind == "reading"]
+    assert record.fields["settled"] is False and record.fields["samples"] < 20
 
 
 def interrupted_history(logs, profile) -> None:
