@@ -158,7 +158,7 @@ class ProbingScreen(Commands, Screen):
     def title_text(self) -> Content:
         """Board, phase, meter and history state in one line."""
         s = self.session
-        read = len(s.taken)
+        read = len({at for at, _ in s.taken})  # nodes measured in this phase
         total = len(s.dictionary.nodes)
         phase = "VERIFYING" if s.phase == "verifying" else "probing"
         unsaved = self.unsaved
