@@ -9,13 +9,20 @@ stderr and exit code 2, so no traceback reaches a user.
 from __future__ import annotations
 
 import argparse
+import importlib
 import sys
 
 from fieldtool import __version__
-from fieldtool.commands import diagnosis, expect, history, meters, profiles, tui
 from fieldtool.core.errors import FieldtoolError
 
-COMMAND_MODULES = (expect, profiles, meters, history, diagnosis, tui)
+COMMAND_MODULES = (
+    "fieldtool.commands.expect",
+    "fieldtool.commands.profiles",
+    "fieldtool.commands.meters",
+    "fieldtool.commands.history",
+    "fieldtool.commands.diagnosis",
+    "fieldtool.commands.tui",
+)
 
 
 class _Parser(argparse.ArgumentParser):
@@ -34,8 +41,8 @@ def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="fieldtool", description=__doc__.splitlines()[0])
     parser.add_argument("--version", action="version", version=f"fieldtool {__version__}")
     subparsers = parser.add_subparsers(dest="command", parser_class=_Parser)
-    for module in COMMAND_MODULES:
-        module.register(subparsers)
+    for name in COMMAND_MODULES:
+        importlib.import_module(name).register(subparsers)  # each one always exists
     return parser
 
 
