@@ -105,15 +105,9 @@ def agreement() -> None:
         for i, ref in enumerate(d.diodes):
             a, c = (circuit.name(int(k)) for k in circuit.diode_nodes[i])
             red, black = ("0" if a == "GND" else a), ("0" if c == "GND" else c)
-            spice = bench.diode_test_op(
-                circuit,
-                params,
-                red,
-                black,
-                profile.instruments.diode_test_amps,
-                profile.instruments.diode_test_volts,
-                work / f"{board}{ref}",
-            )
+            inst = profile.instruments
+            meter = bench.DiodeMeter(red, black, inst.diode_test_amps, inst.diode_test_volts)
+            spice = bench.diode_test_op(circuit, params, meter, work / f"{board}{ref}")
             worst = max(worst, abs(d.volts[0, i, 0] - spice))
         print(f"| {board} | diode test, forward | {worst * 1e6:.0f} µV | every diode |")
         _currents_and_load(board, profile, circuit, params, r, work)

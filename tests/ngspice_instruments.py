@@ -229,27 +229,29 @@ def _difference(red: str, black: str) -> str:
     return f"-v({black})" if red == "0" else f"v({red})-v({black})"
 
 
+@dataclass(frozen=True)
+class DiodeMeter:
+    """A meter on diode test: its leads' nodes (``0`` for ground), current and open volts."""
+
+    red: str
+    black: str
+    amps: float
+    open_volts: float
+
+
 def _diode_run(
-    circuit: Circuit,
-    params: Params,
-    red: str,
-    black: str,
-    amps: float,
-    open_volts: float,
-    analysis: list[str],
-    workdir: Path,
-    edit=None,
+    circuit: Circuit, params: Params, meter: DiodeMeter, analysis: list[str], workdir: Path, edit
 ) -> str:
     """Run ``analysis`` (ngspice control lines, with ``reading`` defined) on the unpowered
     board with the diode test on; ngspice's printed output."""
     text = _unpowered(circuit, params)
     if edit is not None:
         text = edit(text)
-    r, b = _node(red), _node(black)
+    r, b = _node(meter.red), _node(meter.black)
     lines = []
     for line in text.splitlines():
         if line.startswith(".options"):
-            lines += _diode_meter(r, b, amps, open_volts)
+            lines += _diode_meter(r, b, meter.amps, meter.open_volts)
         if line.startswith("tran "):
             lines += [a.replace("{reading}", _difference(r, b)) for a in analysis]
             continue
@@ -261,14 +263,7 @@ def _diode_run(
 
 
 def diode_test_transient(
-    circuit: Circuit,
-    params: Params,
-    red: str,
-    black: str,
-    amps: float,
-    open_volts: float,
-    seconds: float,
-    workdir: Path,
+    circuit: Circuit, params: Params, meter: DiodeMeter, seconds: float, workdir: Path
 ) -> tuple[np.ndarray, np.ndarray]:
     """(times, reading) of a diode test from all discharged, the board off."""
     (workdir / "dt.txt").unlink(missing_ok=True)
@@ -277,7 +272,7 @@ def diode_test_transient(
         "let reading = {reading}",
         "wrdata dt.txt reading",
     ]
-    out = _diode_run(circuit, params, red, black, amps, open_volts, analysis, workdir)
+    out = _diode_run(circuit, params, meter, analysis, workdir, None)
     if not (workdir / "dt.txt").exists():
         raise AssertionError(f"ngspice failed:\n{out[-3000:]}")
     data = np.loadtxt(workdir / "dt.txt")
@@ -285,18 +280,11 @@ def diode_test_transient(
 
 
 def diode_test_op(
-    circuit: Circuit,
-    params: Params,
-    red: str,
-    black: str,
-    amps: float,
-    open_volts: float,
-    workdir: Path,
-    edit=None,
+    circuit: Circuit, params: Params, meter: DiodeMeter, workdir: Path, edit=None
 ) -> float:
     """The DC reading (v(red) − v(black)) of a diode test with the board off."""
     analysis = ["op", "let reading = {reading}", "print reading"]
-    out = _diode_run(circuit, params, red, black, amps, open_volts, analysis, workdir, edit)
+    out = _diode_run(circuit, params, meter, analysis, workdir, edit)
     found = re.findall(r"^reading\s+=\s+(\S+)", out, re.MULTILINE)
     if not found:
         raise AssertionError(f"ngspice gave no reading:\n{out[-3000:]}")

@@ -233,16 +233,8 @@ def _ends(circuit, ref, reverse):
 def _diode_op(profile, circuit, params, ref, reverse, tmp_path, edit=None):
     inst = profile.instruments
     red, black = _ends(circuit, ref, reverse)
-    return bench.diode_test_op(
-        circuit,
-        params,
-        red,
-        black,
-        inst.diode_test_amps,
-        inst.diode_test_volts,
-        tmp_path / f"{ref}{reverse}",
-        edit,
-    )
+    meter = bench.DiodeMeter(red, black, inst.diode_test_amps, inst.diode_test_volts)
+    return bench.diode_test_op(circuit, params, meter, tmp_path / f"{ref}{reverse}", edit)
 
 
 @pytest.mark.parametrize("board", ["dc-ladder", "dickson", "ac-ladder"])
@@ -306,16 +298,9 @@ def test_diode_test_behind_a_large_discharged_capacitor_says_lift_one_leg(tmp_pa
     tests = diode_tests(circuit, params, profile.instruments, ("D1",))
     assert tests.lift[0, 0, 0]
     assert "settle" in tests.reason(0, 0, 0)
-    t, reading = bench.diode_test_transient(
-        circuit,
-        params,
-        "S0",
-        "P1",
-        profile.instruments.diode_test_amps,
-        profile.instruments.diode_test_volts,
-        12.0,
-        tmp_path,
-    )
+    inst = profile.instruments
+    meter = bench.DiodeMeter("S0", "P1", inst.diode_test_amps, inst.diode_test_volts)
+    t, reading = bench.diode_test_transient(circuit, params, meter, 12.0, tmp_path)
     final = reading[-1]
     at_limit = np.interp(profile.instruments.diode_settle_s, t, reading)
     accuracy = final * profile.instruments.diode_accuracy_percent / 100 + 0.002
