@@ -12,8 +12,10 @@
  * number of stages (George & Liu, *Computer Solution of Large Sparse Positive Definite
  * Systems*, 1981, ch. 4).
  *
- * Called through ctypes (fieldtool/core/circuit/kernel.py); the module init below only makes
- * the file an importable extension module so that the ordinary build tools compile it.
+ * Called through ctypes (fieldtool/core/circuit/kernel.py); the module init at the end only
+ * makes the file an importable extension module, so that the ordinary build tools compile it
+ * (hatch_build.py). After an edit, `pip install -e .` compiles it again; until then the stale
+ * build is not used (its source hash no longer matches).
  */
 
 #define PY_SSIZE_T_CLEAN
@@ -25,6 +27,9 @@
 #include <string.h>
 
 #define FT_ABI 1
+#ifndef FT_SOURCE_HASH /* set by the build (hatch_build.py) to a hash of this file */
+#define FT_SOURCE_HASH ""
+#endif
 
 typedef struct {
     int n, k, m, B;
@@ -46,6 +51,7 @@ typedef struct {
 } ft_board;
 
 int ft_abi(void) { return FT_ABI; }
+const char *ft_source_hash(void) { return FT_SOURCE_HASH; }
 
 /* ---- one variant's view of the board ---------------------------------------------------- */
 

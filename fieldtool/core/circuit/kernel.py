@@ -4,18 +4,21 @@ The kernel integrates backward-Euler periods of a batch of variants exactly as t
 reference in ``solver`` does (same grid, Newton iteration, limiting and tolerances); only the
 linear algebra differs: a skyline L·D·Lᵀ factorisation in an elimination order computed here
 from the netlist, so each factorisation costs time linear in the number of stages. It is built
-by ``pip install`` (setup.py); where no C compiler was available the package still installs and
-the solver runs the numpy reference instead (``available()`` says which).
+by ``pip install`` (``hatch_build.py``); where no C compiler was available the package still
+installs and the solver runs the numpy reference instead (``available()`` says which). A build
+older than its source beside it (an edited ``_kernel.c`` not yet compiled again) is not used.
 """
 
 from __future__ import annotations
 
 import ctypes
+import hashlib
 import importlib.util
 from collections.abc import Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass
 from functools import lru_cache
+from pathlib import Path
 
 import numpy as np
 
@@ -56,7 +59,8 @@ def _load() -> ctypes.CDLL | None:
         try:
             lib = ctypes.CDLL(spec.origin)
             lib.ft_abi.restype = ctypes.c_int
-            if lib.ft_abi() != ABI:
+            lib.ft_source_hash.restype = ctypes.c_char_p
+            if lib.ft_abi() != ABI or not _current(Path(spec.origin), lib.ft_source_hash()):
                 lib = None
         except (OSError, AttributeError):
             lib = None
@@ -75,6 +79,15 @@ def _load() -> ctypes.CDLL | None:
         ]
     _state["lib"] = lib
     return lib
+
+
+def _current(built: Path, compiled_hash: bytes) -> bool:
+    """False when the C source beside the build differs from the one it was compiled from."""
+    source = built.with_name("_kernel.c")
+    if not source.exists():
+        return True  # an installed wheel carries no source
+    digest = hashlib.sha256(source.read_bytes()).hexdigest()[:16]
+    return compiled_hash.decode() == digest
 
 
 def available() -> bool:
