@@ -55,40 +55,91 @@ const char *ft_source_hash(void) { return FT_SOURCE_HASH; }
 
 /* ---- one variant's view of the board ---------------------------------------------------- */
 
+/* Node n is a ground slot: element ends at ground point at it, so the inner loops need no
+ * branches (it always reads 0 V; what is added to it is thrown away). Likewise env[e], one past
+ * the envelope, takes the stamps that fall on ground. */
 typedef struct {
     const ft_board *bd;
     const double *is, *nvt, *rs, *gp, *vcrit, *cf, *esr, *gl, *gn, *il;
     int has_sink;
     /* work */
-    double *base, *env, *D, *b, *rhs, *v, *vnew, *vj, *vjnew, *gc, *a, *f, *gj;
+    double *base, *env, *D, *b, *rhs, *v, *vnew, *vj, *vjnew, *gc, *a, *f, *gj, *inv_nvt, *is_nvt;
+    int *d_off, *c_off; /* (k, 3), (m, 3): where each element stamps in the envelope */
+    int *da, *dc, *cp, *cq; /* element terminals with ground mapped to node n */
 } variant;
 
 static int sizes_env(const ft_board *bd) { return bd->start[bd->n]; }
 
+/* Offset of entry (i, j), j <= i, in the packed envelope. */
+static inline int offset(const ft_board *bd, int i, int j) { return bd->start[i] + (j - bd->first[i]); }
+
+/* Where a two-terminal element between p and q (-1 for ground) stamps: diagonal p, diagonal q,
+ * the off-diagonal entry; the spare slot e where there is none. */
+static void offsets(const ft_board *bd, int p, int q, int *off) {
+    int e = sizes_env(bd);
+    off[0] = p >= 0 ? offset(bd, p, p) : e;
+    off[1] = q >= 0 ? offset(bd, q, q) : e;
+    off[2] = e;
+    if (p >= 0 && q >= 0 && p != q) off[2] = p > q ? offset(bd, p, q) : offset(bd, q, p);
+}
+
+/* Add conductance g across an element whose stamp offsets are `off`. */
+static inline void stamp_at(double *env, const int *off, double g) {
+    env[off[0]] += g;
+    env[off[1]] += g;
+    env[off[2]] -= g;
+}
+
 static int variant_alloc(variant *w, const ft_board *bd) {
     int n = bd->n, k = bd->k, m = bd->m, e = sizes_env(bd);
-    size_t total = (size_t)2 * e + 6 * (size_t)n + 4 * (size_t)k + 2 * (size_t)m;
-    double *mem = (double *)calloc(total ? total : 1, sizeof(double));
-    if (!mem) return -1;
+    size_t total = (size_t)2 * (e + 1) + 6 * (size_t)(n + 1) + 6 * (size_t)k + 2 * (size_t)m;
+    double *mem = (double *)calloc(total, sizeof(double));
+    int *idx = (int *)malloc(sizeof(int) * (size_t)(5 * k + 5 * m + 1));
+    if (!mem || !idx) {
+        free(mem);
+        free(idx);
+        return -1;
+    }
     w->bd = bd;
-    w->base = mem; mem += e;
-    w->env = mem; mem += e;
-    w->D = mem; mem += n;
-    w->b = mem; mem += n;
-    w->rhs = mem; mem += n;
-    w->v = mem; mem += n;
-    w->vnew = mem; mem += n;
+    w->base = mem; mem += e + 1;
+    w->env = mem; mem += e + 1;
+    w->D = mem; mem += n + 1;
+    w->b = mem; mem += n + 1;
+    w->rhs = mem; mem += n + 1;
+    w->v = mem; mem += n + 1;
+    w->vnew = mem; mem += n + 1;
+    mem += n + 1; /* spare */
     w->vj = mem; mem += k;
     w->vjnew = mem; mem += k;
     w->f = mem; mem += k;
     w->gj = mem; mem += k;
+    w->inv_nvt = mem; mem += k;
+    w->is_nvt = mem; mem += k;
     w->gc = mem; mem += m;
     w->a = mem; mem += m;
-    (void)mem;
+    w->d_off = idx; idx += 3 * k;
+    w->c_off = idx; idx += 3 * m;
+    w->da = idx; idx += k;
+    w->dc = idx; idx += k;
+    w->cp = idx; idx += m;
+    w->cq = idx;
+    for (int i = 0; i < k; i++) {
+        offsets(bd, bd->d_a[i], bd->d_c[i], w->d_off + 3 * i);
+        w->da[i] = bd->d_a[i] >= 0 ? bd->d_a[i] : n;
+        w->dc[i] = bd->d_c[i] >= 0 ? bd->d_c[i] : n;
+    }
+    for (int j = 0; j < m; j++) {
+        offsets(bd, bd->c_p[j], bd->c_q[j], w->c_off + 3 * j);
+        w->cp[j] = bd->c_p[j] >= 0 ? bd->c_p[j] : n;
+        w->cq[j] = bd->c_q[j] >= 0 ? bd->c_q[j] : n;
+    }
     return 0;
 }
 
-static void variant_free(variant *w) { free(w->base); }
+static void variant_free(variant *w) {
+    free(w->base);
+    free(w->d_off);
+}
 
 static void variant_select(variant *w, int row) {
     const ft_board *bd = w->bd;
@@ -103,9 +154,14 @@ static void variant_select(variant *w, int row) {
     w->gl = bd->c_gl + (size_t)row * m;
     w->gn = bd->g_node + (size_t)row * n;
     w->il = bd->i_load + (size_t)row * n;
+    for (int i = 0; i < k; i++) {
+        w->inv_nvt[i] = 1.0 / w->nvt[i];
+        w->is_nvt[i] = w->is[i] / w->nvt[i];
+    }
     w->has_sink = 0;
     for (int i = 0; i < n; i++)
         if (w->il[i] != 0.0) w->has_sink = 1;
+    w->v[n] = w->vnew[n] = 0.0;
 }
 
 /* ---- skyline L·D·Lᵀ ----------------------------------------------------------------------- */
@@ -115,17 +171,8 @@ static inline double *at(const ft_board *bd, double *env, int i, int j) {
     return env + bd->start[i] + (j - bd->first[i]);
 }
 
-/* Add conductance g between nodes p and q (either may be ground, -1). */
-static inline void stamp(const ft_board *bd, double *env, int p, int q, double g) {
-    if (p >= 0) *at(bd, env, p, p) += g;
-    if (q >= 0) *at(bd, env, q, q) += g;
-    if (p >= 0 && q >= 0) {
-        if (p > q) *at(bd, env, p, q) -= g;
-        else *at(bd, env, q, p) -= g;
-    }
-}
-
-/* Factor in place; D gets the pivots. Returns 0, or -1 at a pivot that is not positive. */
+/* Factor in place; D gets the inverse pivots. Returns 0, or -1 at a pivot that is not
+ * positive. */
 static int factor(const ft_board *bd, double *env, double *D) {
     int n = bd->n;
     for (int i = 0; i < n; i++) {
@@ -141,12 +188,12 @@ static int factor(const ft_board *bd, double *env, double *D) {
         }
         double d = ri[i];
         for (int j = fi; j < i; j++) {
-            double l = ri[j] / D[j];
+            double l = ri[j] * D[j];
             d -= l * ri[j];
             ri[j] = l;
         }
         if (!(d > 0.0)) return -1;
-        D[i] = d;
+        D[i] = 1.0 / d;
         ri[i] = d;
     }
     return 0;
@@ -162,7 +209,7 @@ static void solve(const ft_board *bd, const double *env, const double *D, double
         for (int p = fi; p < i; p++) s -= ri[p] * x[p];
         x[i] = s;
     }
-    for (int i = 0; i < n; i++) x[i] /= D[i];
+    for (int i = 0; i < n; i++) x[i] *= D[i];
     for (int i = n - 1; i >= 0; i--) {
         int fi = bd->first[i];
         const double *ri = env + bd->start[i] - fi;
@@ -186,7 +233,7 @@ static void solve_many(const ft_board *bd, const double *env, const double *D, d
         }
     }
     for (int i = 0; i < n; i++) {
-        double inv = 1.0 / D[i];
+        double inv = D[i];
         double *xi = X + (size_t)i * cols;
         for (int c = 0; c < cols; c++) xi[c] *= inv;
     }
@@ -242,6 +289,14 @@ static void gather_rows(const variant *w, const double *Y, const double *Z, doub
 
 #define SINK_KNEE 0.5 /* V, as solver.SINK_KNEE_VOLTS */
 
+/* exp(min(x, 80)) as the reference takes it; below -50 (a junction reverse biased by more than
+ * 50 nVt) it is below 2e-22 and is taken as 0: the diode's current is then -Is to within
+ * 2e-22 relative and its conductance far below GMIN, so nothing a result shows changes. */
+static inline double junction_exp(double x) {
+    if (x < -50.0) return 0.0;
+    return exp(x < 80.0 ? x : 80.0);
+}
+
 static inline void sink(double amps, double v, double *i, double *g) {
     double mag = fabs(amps), sign = amps < 0 ? -1.0 : 1.0, u = v * sign;
     double ex = exp(-(u > 0 ? u : 0.0) / SINK_KNEE);
@@ -267,12 +322,12 @@ static void prepare_step(variant *w, double h) {
     int e = sizes_env(bd);
     memset(w->base, 0, sizeof(double) * (size_t)e);
     for (int i = 0; i < bd->n; i++) *at(bd, w->base, i, i) += w->gn[bd->perm[i]];
-    for (int i = 0; i < bd->k; i++) stamp(bd, w->base, bd->d_a[i], bd->d_c[i], w->gp[i]);
+    for (int i = 0; i < bd->k; i++) stamp_at(w->base, w->d_off + 3 * i, w->gp[i]);
     for (int j = 0; j < bd->m; j++) {
         double gc = 1.0 / (w->esr[j] + h / w->cf[j]);
         w->gc[j] = gc;
         w->a[j] = h * gc / w->cf[j];
-        stamp(bd, w->base, bd->c_p[j], bd->c_q[j], gc + w->gl[j]);
+        stamp_at(w->base, w->c_off + 3 * j, gc + w->gl[j]);
     }
 }
 
@@ -286,25 +341,24 @@ static int newton(variant *w, const double *b_src, const double *x_prev) {
     for (int i = 0; i < n; i++) w->b[i] = b_src[bd->perm[i]];
     for (int j = 0; j < bd->m; j++) {
         double q = w->gc[j] * x_prev[j];
-        if (bd->c_p[j] >= 0) w->b[bd->c_p[j]] += q;
-        if (bd->c_q[j] >= 0) w->b[bd->c_q[j]] -= q;
+        w->b[w->cp[j]] += q;
+        w->b[w->cq[j]] -= q;
     }
     int it;
     for (it = 1; it <= bd->max_newton; it++) {
         memcpy(w->env, w->base, sizeof(double) * (size_t)e);
         memcpy(w->rhs, w->b, sizeof(double) * (size_t)n);
         for (int i = 0; i < k; i++) {
-            double vj = w->vj[i], nvt = w->nvt[i];
-            double x = vj / nvt;
-            double ex = exp(x < 80.0 ? x : 80.0);
-            double f = w->is[i] * (ex - 1.0), gj = w->is[i] * ex / nvt;
-            double den = 1.0 + gj * w->rs[i];
-            double ieq = (f - gj * vj) / den;
+            double vj = w->vj[i];
+            double ex = junction_exp(vj * w->inv_nvt[i]);
+            double f = w->is[i] * (ex - 1.0), gj = w->is_nvt[i] * ex;
+            double inv_den = 1.0 / (1.0 + gj * w->rs[i]);
+            double ieq = (f - gj * vj) * inv_den;
             w->f[i] = f;
             w->gj[i] = gj;
-            stamp(bd, w->env, bd->d_a[i], bd->d_c[i], gj / den);
-            if (bd->d_a[i] >= 0) w->rhs[bd->d_a[i]] -= ieq;
-            if (bd->d_c[i] >= 0) w->rhs[bd->d_c[i]] += ieq;
+            stamp_at(w->env, w->d_off + 3 * i, gj * inv_den);
+            w->rhs[w->da[i]] -= ieq;
+            w->rhs[w->dc[i]] += ieq;
         }
         if (w->has_sink) {
             for (int i = 0; i < n; i++) {
@@ -322,15 +376,14 @@ static int newton(variant *w, const double *b_src, const double *x_prev) {
         int done = 1;
         for (int i = 0; i < n; i++) {
             double vn = w->vnew[i];
-            if (!(fabs(vn - w->v[i]) <= bd->vntol + bd->reltol * fabs(vn))) done = 0;
+            done &= fabs(vn - w->v[i]) <= bd->vntol + bd->reltol * fabs(vn);
         }
         for (int i = 0; i < k; i++) {
-            int pa = bd->d_a[i], pc = bd->d_c[i];
-            double across = (pa >= 0 ? w->vnew[pa] : 0.0) - (pc >= 0 ? w->vnew[pc] : 0.0);
+            double across = w->vnew[w->da[i]] - w->vnew[w->dc[i]];
             double rs = w->rs[i], gj = w->gj[i], vj = w->vj[i];
             double raw = (across - rs * w->f[i] + rs * gj * vj) / (1.0 + gj * rs);
             double lim = pnjlim(raw, vj, w->nvt[i], w->vcrit[i]);
-            if (!(fabs(lim - vj) <= bd->vntol + bd->reltol * fabs(lim))) done = 0;
+            done &= fabs(lim - vj) <= bd->vntol + bd->reltol * fabs(lim);
             w->vjnew[i] = lim;
         }
         memcpy(w->v, w->vnew, sizeof(double) * (size_t)n);
@@ -342,10 +395,8 @@ static int newton(variant *w, const double *b_src, const double *x_prev) {
 
 /* x_new = x_prev + a (Ac v - x_prev) */
 static void advance(const variant *w, const double *x_prev, double *x_new) {
-    const ft_board *bd = w->bd;
-    for (int j = 0; j < bd->m; j++) {
-        int p = bd->c_p[j], q = bd->c_q[j];
-        double across = (p >= 0 ? w->v[p] : 0.0) - (q >= 0 ? w->v[q] : 0.0);
+    for (int j = 0; j < w->bd->m; j++) {
+        double across = w->v[w->cp[j]] - w->v[w->cq[j]];
         x_new[j] = x_prev[j] + w->a[j] * (across - x_prev[j]);
     }
 }
@@ -436,22 +487,30 @@ int ft_period(const ft_board *bd, int T, const double *h, const double *inj, con
 
 /* ---- one period of variational equations (response.linear_response) -------------------- */
 
-/* Columns of the parameter vector θ (q = c + k + 2 + P), after the m columns of x0:
- * c part capacitors (relative value), k diode forward drops (volts), the drive and the supply
- * (relative), and a unit current into each probe node. inj, inj_drive, inj_supply (B, T, n);
- * probe (P) original node columns. Out: phi (B, m, m + q) = ∂x_end/∂(x0, θ); avg (B, P, m + q)
- * = ∂v̄_probe/∂(x0, θ) at fixed x0; v_avg, v_min, v_max (B, P). The Newton iteration of each
- * step starts from the previous step's solution (the first from zero), as the reference does.
- * Returns 0, or -1 when memory ran out; a variant whose matrix lost definiteness gets NaN. */
+/* The same derivatives as the reference's forward variational equations, taken in reverse
+ * (adjoint) mode: one backward sweep over the stored steps carries P + m row vectors (the P
+ * probe averages and the m end-of-period capacitor voltages) instead of carrying m + q columns
+ * forward, q = c + k + 2 + P parameters (Griewank & Walther, *Evaluating Derivatives*, 2nd ed.,
+ * SIAM 2008, ch. 3). The nodal matrix is symmetric, so each step's stored factor serves its
+ * transposed solve.
+ *
+ * Parameters θ, after the m columns of x0: c part capacitors (relative value), k diode forward
+ * drops (volts), the drive and the supply (relative), and a unit current into each probe node.
+ * inj, inj_drive, inj_supply (B, T, n); probe (P) original node columns. Out: phi (B, m, m + q)
+ * = ∂x_end/∂(x0, θ); avg (B, P, m + q) = ∂v̄_probe/∂(x0, θ) at fixed x0; v_avg, v_min, v_max
+ * (B, P). Each step's Newton iteration starts from the previous step's solution (the first from
+ * zero), as the reference does. Returns 0, or -1 when memory ran out; a variant whose matrix
+ * lost definiteness gets NaN. */
 int ft_response(const ft_board *bd, int T, const double *h, const double *inj,
                 const double *inj_drive, const double *inj_supply, const double *x0,
                 int c, int P, const int *probe, double *phi, double *avg, double *v_avg,
                 double *v_min, double *v_max) {
-    int n = bd->n, k = bd->k, m = bd->m;
-    int q = c + k + 2 + P, cols = m + q;
+    int n = bd->n, k = bd->k, m = bd->m, e = sizes_env(bd);
+    int q = c + k + 2 + P, cols = m + q, R = P + m;
+    int per_step = (e + 1) + (n + 1) + 3 * m + k; /* factor, pivots, gc, a, across, di */
     variant w;
     if (variant_alloc(&w, bd) != 0) return -1;
-    size_t need = (size_t)m * cols * 2 + (size_t)cols * n + 3 * (size_t)m;
+    size_t need = (size_t)T * per_step + (size_t)m * R + (size_t)(n + 1) * R + (size_t)q * R + 2 * (size_t)m;
     double *mem = (double *)malloc(sizeof(double) * need);
     int *pos = (int *)malloc(sizeof(int) * (size_t)(n + 1));
     if (!mem || !pos) {
@@ -460,82 +519,53 @@ int ft_response(const ft_board *bd, int T, const double *h, const double *inj,
         variant_free(&w);
         return -1;
     }
-    double *Ph = mem;                   /* (m, cols) */
-    double *Pn = Ph + (size_t)m * cols; /* next */
-    double *R = Pn + (size_t)m * cols;  /* (n, cols) */
-    double *x = R + (size_t)cols * n, *xn = x + m, *across = xn + m;
+    double *steps = mem;                          /* (T, per_step) */
+    double *Xi = steps + (size_t)T * per_step;    /* (m, R): adjoint of x_t */
+    double *Vb = Xi + (size_t)m * R;              /* (n + 1, R): adjoint of v_t, then μ_t */
+    double *Th = Vb + (size_t)(n + 1) * R;        /* (q, R): adjoint of θ */
+    double *x = Th + (size_t)q * R, *xn = x + m;
     for (int i = 0; i < n; i++) pos[bd->perm[i]] = i;
     double period = 0.0;
     for (int t = 0; t < T; t++) period += h[t];
     for (int b = 0; b < bd->B; b++) {
         variant_select(&w, b);
+        double *va = v_avg + (size_t)b * P, *vmin = v_min + (size_t)b * P;
+        double *vmax = v_max + (size_t)b * P;
+        double *A = avg + (size_t)b * P * cols, *out = phi + (size_t)b * m * cols;
+        /* forward: the period, keeping each step's factor and element derivatives */
         double hprev = -1.0;
         memset(w.v, 0, sizeof(double) * (size_t)n);
         memset(w.vj, 0, sizeof(double) * (size_t)k);
         memcpy(x, x0 + (size_t)b * m, sizeof(double) * (size_t)m);
-        memset(Ph, 0, sizeof(double) * (size_t)m * cols);
-        for (int j = 0; j < m; j++) Ph[(size_t)j * cols + j] = 1.0;
-        double *A = avg + (size_t)b * P * cols;
-        double *va = v_avg + (size_t)b * P, *vmin = v_min + (size_t)b * P;
-        double *vmax = v_max + (size_t)b * P;
-        memset(A, 0, sizeof(double) * (size_t)P * cols);
         for (int j = 0; j < P; j++) {
             va[j] = 0.0;
             vmin[j] = INFINITY;
             vmax[j] = -INFINITY;
         }
         int bad = 0;
-        for (int t = 0; t < T; t++) {
+        for (int t = 0; t < T && !bad; t++) {
             if (h[t] != hprev) {
                 prepare_step(&w, h[t]);
                 hprev = h[t];
             }
-            size_t bt = (size_t)b * T + t;
-            if (newton(&w, inj + bt * n, x) < 0) {
+            if (newton(&w, inj + ((size_t)b * T + t) * n, x) < 0) {
                 bad = 1;
                 break;
             }
-            for (int j = 0; j < m; j++) {
-                int p = bd->c_p[j], qn = bd->c_q[j];
-                across[j] = (p >= 0 ? w.v[p] : 0.0) - (qn >= 0 ? w.v[qn] : 0.0) - x[j];
+            double *st = steps + (size_t)t * per_step;
+            double *s_env = st, *s_D = st + e + 1, *s_gc = s_D + n + 1, *s_a = s_gc + m;
+            double *s_across = s_a + m, *s_di = s_across + m;
+            memcpy(s_env, w.env, sizeof(double) * (size_t)(e + 1));
+            memcpy(s_D, w.D, sizeof(double) * (size_t)(n + 1));
+            memcpy(s_gc, w.gc, sizeof(double) * (size_t)m);
+            memcpy(s_a, w.a, sizeof(double) * (size_t)m);
+            for (int j = 0; j < m; j++) s_across[j] = w.v[w.cp[j]] - w.v[w.cq[j]] - x[j];
+            for (int i = 0; i < k; i++) { /* ∂(branch current)/∂(forward-drop shift) */
+                double ex = junction_exp(w.vj[i] * w.inv_nvt[i]);
+                double f = w.is[i] * (ex - 1.0), gj = w.is_nvt[i] * ex;
+                s_di[i] = -f * w.inv_nvt[i] / (1.0 + gj * w.rs[i]);
             }
-            /* J·∂v = Acᵀ·gc·∂x_prev + ∂(right-hand side)/∂θ, every column at once */
-            spread_rows(&w, Ph, R, cols);
-            for (int j = 0; j < c; j++) { /* capacitor value: ∂gc/∂lnC · across */
-                double dgc = w.gc[j] * w.gc[j] * h[t] / w.cf[j] * across[j];
-                int col = m + j;
-                if (bd->c_p[j] >= 0) R[(size_t)bd->c_p[j] * cols + col] -= dgc;
-                if (bd->c_q[j] >= 0) R[(size_t)bd->c_q[j] * cols + col] += dgc;
-            }
-            for (int i = 0; i < k; i++) { /* diode forward-drop shift */
-                double vj = w.vj[i], nvt = w.nvt[i], xx = vj / nvt;
-                double ex = exp(xx < 80.0 ? xx : 80.0);
-                double f = w.is[i] * (ex - 1.0), gj = w.is[i] * ex / nvt;
-                double di = -f / (nvt * (1.0 + gj * w.rs[i]));
-                int col = m + c + i;
-                if (bd->d_a[i] >= 0) R[(size_t)bd->d_a[i] * cols + col] -= di;
-                if (bd->d_c[i] >= 0) R[(size_t)bd->d_c[i] * cols + col] += di;
-            }
-            for (int i = 0; i < n; i++) {
-                R[(size_t)i * cols + m + c + k] += inj_drive[bt * n + bd->perm[i]];
-                R[(size_t)i * cols + m + c + k + 1] += inj_supply[bt * n + bd->perm[i]];
-            }
-            for (int j = 0; j < P; j++) R[(size_t)pos[probe[j]] * cols + m + c + k + 2 + j] += 1.0;
-            solve_many(bd, w.env, w.D, R, cols);
             double wt = h[t] / period;
-            for (int j = 0; j < P; j++) {
-                const double *z = R + (size_t)pos[probe[j]] * cols;
-                double *aj = A + (size_t)j * cols;
-                for (int col = 0; col < cols; col++) aj[col] += wt * z[col];
-            }
-            gather_rows(&w, Ph, R, Pn, cols);
-            for (int j = 0; j < c; j++) { /* ∂a/∂lnC · across */
-                double a = w.a[j];
-                Pn[(size_t)j * cols + m + j] += a * (a - 1.0) * across[j];
-            }
-            double *swap = Ph;
-            Ph = Pn;
-            Pn = swap;
             for (int j = 0; j < P; j++) {
                 double vp = w.v[pos[probe[j]]];
                 va[j] += wt * vp;
@@ -545,13 +575,75 @@ int ft_response(const ft_board *bd, int T, const double *h, const double *inj,
             advance(&w, x, xn);
             memcpy(x, xn, sizeof(double) * (size_t)m);
         }
-        double *out = phi + (size_t)b * m * cols;
         if (bad) {
             fill_nan(out, (size_t)m * cols);
             fill_nan(A, (size_t)P * cols);
             fill_nan(va, (size_t)P);
-        } else {
-            memcpy(out, Ph, sizeof(double) * (size_t)m * cols);
+            continue;
+        }
+        /* backward: rows 0..P-1 the probe averages, rows P..P+m-1 the end-of-period x */
+        memset(Xi, 0, sizeof(double) * (size_t)m * R);
+        for (int j = 0; j < m; j++) Xi[(size_t)j * R + P + j] = 1.0;
+        memset(Th, 0, sizeof(double) * (size_t)q * R);
+        for (int t = T - 1; t >= 0; t--) {
+            const double *st = steps + (size_t)t * per_step;
+            const double *s_env = st, *s_D = st + e + 1, *s_gc = s_D + n + 1, *s_a = s_gc + m;
+            const double *s_across = s_a + m, *s_di = s_across + m;
+            size_t bt = (size_t)b * T + t;
+            /* v̄_t = ȳ_t + (ξ_t ⊙ a)·Ac */
+            memset(Vb, 0, sizeof(double) * (size_t)(n + 1) * R);
+            double wt = h[t] / period;
+            for (int j = 0; j < P; j++) Vb[(size_t)pos[probe[j]] * R + j] += wt;
+            for (int j = 0; j < m; j++) {
+                const double *xi = Xi + (size_t)j * R;
+                double *vp = Vb + (size_t)w.cp[j] * R, *vq = Vb + (size_t)w.cq[j] * R;
+                double aj = s_a[j];
+                for (int r = 0; r < R; r++) {
+                    vp[r] += aj * xi[r];
+                    vq[r] -= aj * xi[r];
+                }
+            }
+            solve_many(bd, s_env, s_D, Vb, R); /* μ_t = v̄_t·J_t⁻¹ */
+            memset(Vb + (size_t)n * R, 0, sizeof(double) * (size_t)R); /* μ at ground is 0 */
+            /* θ̄ += μ_t·∂r_t/∂θ + ξ_t·∂x_t/∂θ, then ξ_(t-1) = ξ_t⊙(1 - a) + μ_t·Acᵀ·diag(gc) */
+            for (int j = 0; j < m; j++) {
+                const double *mp = Vb + (size_t)w.cp[j] * R, *mq = Vb + (size_t)w.cq[j] * R;
+                double *xi = Xi + (size_t)j * R;
+                double aj = s_a[j], gcj = s_gc[j], keep = 1.0 - aj;
+                if (j < c) {
+                    double *th = Th + (size_t)j * R;
+                    double dgc = gcj * gcj * h[t] / w.cf[j] * s_across[j];
+                    double da = aj * (aj - 1.0) * s_across[j];
+                    for (int r = 0; r < R; r++) th[r] += (mq[r] - mp[r]) * dgc + xi[r] * da;
+                }
+                for (int r = 0; r < R; r++) xi[r] = xi[r] * keep + gcj * (mp[r] - mq[r]);
+            }
+            for (int i = 0; i < k; i++) {
+                const double *ma = Vb + (size_t)w.da[i] * R, *mc = Vb + (size_t)w.dc[i] * R;
+                double *th = Th + (size_t)(c + i) * R;
+                double di = s_di[i];
+                for (int r = 0; r < R; r++) th[r] += (mc[r] - ma[r]) * di;
+            }
+            double *th_drive = Th + (size_t)(c + k) * R, *th_supply = th_drive + R;
+            for (int i = 0; i < n; i++) {
+                double gd = inj_drive[bt * n + bd->perm[i]], gs = inj_supply[bt * n + bd->perm[i]];
+                if (gd == 0.0 && gs == 0.0) continue;
+                const double *mi = Vb + (size_t)i * R;
+                for (int r = 0; r < R; r++) {
+                    th_drive[r] += mi[r] * gd;
+                    th_supply[r] += mi[r] * gs;
+                }
+            }
+            for (int j = 0; j < P; j++) {
+                const double *mi = Vb + (size_t)pos[probe[j]] * R;
+                double *th = Th + (size_t)(c + k + 2 + j) * R;
+                for (int r = 0; r < R; r++) th[r] += mi[r];
+            }
+        }
+        for (int row = 0; row < R; row++) {
+            double *dst = row < P ? A + (size_t)row * cols : out + (size_t)(row - P) * cols;
+            for (int col = 0; col < m; col++) dst[col] = Xi[(size_t)col * R + row];
+            for (int th = 0; th < q; th++) dst[m + th] = Th[(size_t)th * R + row];
         }
     }
     free(mem);

@@ -14,7 +14,9 @@ from __future__ import annotations
 import ctypes
 import hashlib
 import importlib.util
-from collections.abc import Iterator
+import os
+import threading
+from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass
 from functools import lru_cache
@@ -268,13 +270,14 @@ class Board:
         VJ = np.empty((B, T, k))
         M = np.empty((B, m, m)) if sens else None
         its = np.zeros(B, dtype=np.int64)
-        code = lib.ft_period(  # type: ignore[union-attr]
-            ctypes.byref(self.struct),
-            T,
-            *(_ptr(a) for a in (steps, inj, x0, v, vj, gv, gvj, V, X, VJ, M, its)),
-        )
-        if code != 0:
-            raise MemoryError("the solver kernel could not allocate its work space")
+        rows = (inj, x0, v, vj, gv, gvj, V, X, VJ, M, its)
+
+        def call(board: _Board, r0: int) -> int:
+            return lib.ft_period(  # type: ignore[union-attr]
+                ctypes.byref(board), T, _ptr(steps), *(_row(a, r0) for a in rows)
+            )
+
+        self._run(call)
         return V, X, VJ, M, its
 
     def response(
@@ -293,18 +296,77 @@ class Board:
         P = len(probe)
         cols = m + c + k + 2 + P
         probe = np.ascontiguousarray(probe, dtype=np.intc)
-        arrays = [_f64(a) for a in (steps, inj, inj_drive, inj_supply, x0)]
+        steps = _f64(steps)
+        inputs = [_f64(a) for a in (inj, inj_drive, inj_supply, x0)]
         phi = np.empty((B, m, cols))
         avg = np.empty((B, P, cols))
         v_avg, v_min, v_max = (np.empty((B, P)) for _ in range(3))
-        code = lib.ft_response(  # type: ignore[union-attr]
-            ctypes.byref(self.struct),
-            len(steps),
-            *(_ptr(a) for a in arrays),
-            c,
-            P,
-            *(_ptr(a) for a in (probe, phi, avg, v_avg, v_min, v_max)),
-        )
-        if code != 0:
-            raise MemoryError("the solver kernel could not allocate its work space")
+        outputs = (phi, avg, v_avg, v_min, v_max)
+
+        def call(board: _Board, r0: int) -> int:
+            return lib.ft_response(  # type: ignore[union-attr]
+                ctypes.byref(board),
+                len(steps),
+                _ptr(steps),
+                *(_row(a, r0) for a in inputs),
+                c,
+                P,
+                _ptr(probe),
+                *(_row(a, r0) for a in outputs),
+            )
+
+        self._run(call)
         return phi, avg, v_avg, v_min, v_max
+
+    def _run(self, call: Callable[[_Board, int], int]) -> None:
+        """Run ``call`` on the whole batch, or on slices of its rows in parallel threads.
+
+        The kernel works on each variant alone, so slices of rows are independent; ctypes
+        releases the interpreter lock during the call, so the threads use separate cores.
+        """
+        B = self.shape[3]
+        parts = _workers(B)
+        if parts == 1:
+            codes = [call(self.struct, 0)]
+        else:
+            bounds = [B * i // parts for i in range(parts + 1)]
+            codes = [0] * parts
+
+            def work(i: int) -> None:
+                codes[i] = call(self._rows(bounds[i], bounds[i + 1]), bounds[i])
+
+            threads = [threading.Thread(target=work, args=(i,)) for i in range(1, parts)]
+            for t in threads:
+                t.start()
+            work(0)
+            for t in threads:
+                t.join()
+        if any(codes):
+            raise MemoryError("the solver kernel could not allocate its work space")
+
+    def _rows(self, r0: int, r1: int) -> _Board:
+        """The board's struct for variants r0 … r1 − 1."""
+        part = _Board.from_buffer_copy(self.struct)
+        part.B = r1 - r0
+        for name, _ in _Board._fields_[14:]:
+            setattr(part, name, _row(self.values[name], r0))
+        return part
+
+
+MIN_ROWS_PER_THREAD = 8  # below this a thread costs more than it saves
+
+
+def _workers(batch: int) -> int:
+    """How many threads a batch of variants is split over (at most one per usable CPU)."""
+    if _state.get("threads") is None:
+        try:
+            cpus = len(os.sched_getaffinity(0))
+        except AttributeError:  # not on every platform
+            cpus = os.cpu_count() or 1
+        _state["threads"] = max(1, min(cpus, 8))
+    return max(1, min(int(_state["threads"]), batch // MIN_ROWS_PER_THREAD))  # type: ignore[call-overload]
+
+
+def _row(a: np.ndarray | None, r0: int) -> int | None:
+    """Address of row r0 of a row-major array (None stays None)."""
+    return None if a is None else a.ctypes.data + r0 * a.strides[0]
