@@ -23,6 +23,19 @@ COMMAND_MODULES = (
     "fieldtool.commands.tui",
 )
 
+# The module that registers each subcommand, so that a command loads only its own module and
+# what that needs (start-up time: `fieldtool expect` never loads the terminal UI, the serial
+# library or the history store). `fieldtool --help` and unknown words load them all.
+# tests/cli/test_startup.py checks this table against what the modules register.
+COMMAND_MODULE = {
+    "expect": "fieldtool.commands.expect",
+    "profiles": "fieldtool.commands.profiles",
+    **dict.fromkeys(("ports", "read", "sim-meter"), "fieldtool.commands.meters"),
+    **dict.fromkeys(("fleet", "history", "logs", "record", "report"), "fieldtool.commands.history"),
+    **dict.fromkeys(("calibrate", "diagnose", "inject"), "fieldtool.commands.diagnosis"),
+    **dict.fromkeys(("demo", "probe", "tui"), "fieldtool.commands.tui"),
+}
+
 
 class _Parser(argparse.ArgumentParser):
     """argparse that reports usage errors as one line and exit code 2."""
@@ -35,12 +48,13 @@ class _Parser(argparse.ArgumentParser):
         return " ".join(parts[1:]) if len(parts) > 1 else ""
 
 
-def build_parser() -> argparse.ArgumentParser:
-    """The parser with every available subcommand registered."""
+def build_parser(command: str | None = None) -> argparse.ArgumentParser:
+    """The parser with every available subcommand registered, or only ``command``'s module's."""
     parser = _Parser(prog="fieldtool", description=__doc__.splitlines()[0])
     parser.add_argument("--version", action="version", version=f"fieldtool {__version__}")
     subparsers = parser.add_subparsers(dest="command", parser_class=_Parser)
-    for name in COMMAND_MODULES:
+    modules = (COMMAND_MODULE[command],) if command in COMMAND_MODULE else COMMAND_MODULES
+    for name in modules:
         try:
             module = importlib.import_module(name)
         except ModuleNotFoundError as exc:
@@ -53,7 +67,8 @@ def build_parser() -> argparse.ArgumentParser:
 
 def main(argv: list[str] | None = None) -> int:
     """Run one subcommand; return its exit code."""
-    parser = build_parser()
+    words = sys.argv[1:] if argv is None else argv
+    parser = build_parser(next((w for w in words if not w.startswith("-")), None))
     args = parser.parse_args(argv)
     handler = getattr(args, "handler", None)
     if handler is None:
