@@ -4,8 +4,8 @@ Measures: the dictionary built cold (process CPU time and wall, BLAS held to one
 the process pinned to one CPU), where that time goes (cProfile, cumulative), the dictionary
 loaded from the disk cache (median of repeated loads), and one new reading to an updated
 ranking and next probe (``diagnose()`` wall time, median over realistic guided probing
-sequences on a few faults). Targets from the issue: cold ≤ 1 s (issue 14), cache ≤ 50 ms, per reading
-≤ 20 ms. Run: ``python benchmarks/diagnosis_speed.py``.
+sequences on a few faults). Targets: cold ≤ 1 s (issue 14), cache ≤ 50 ms, per reading ≤ 20 ms.
+Run: ``python benchmarks/diagnosis_speed.py``.
 """
 
 from __future__ import annotations

@@ -21,8 +21,10 @@ def test_expect_and_diagnose_load_neither_the_terminal_ui_nor_the_serial_library
     # Run in a fresh interpreter: the test session itself has imported everything.
     probe = (
         "import sys, atexit; from fieldtool import cli\n"
-        "atexit.register(lambda: print('LOADED', "
-        "sorted({m.split('.')[0] for m in sys.modules} & {'textual', 'serial'}), file=sys.stderr))\n"
+        "def report():\n"
+        "    loaded = {m.split('.')[0] for m in sys.modules} & {'textual', 'serial'}\n"
+        "    print('LOADED', sorted(loaded), file=sys.stderr)\n"
+        "atexit.register(report)\n"
         "cli.main(sys.argv[1:])"
     )
     for argv in (["expect", "tidegauge-apd-bias"], ["diagnose", "--help"]):
