@@ -1,7 +1,8 @@
 """Command-line entry point: non-interactive subcommands, each a thin shell over core.
 
 Each subcommand lives in a module of ``fieldtool.commands`` exposing ``register(subparsers)``;
-the handler it sets returns an exit code. Every ``FieldtoolError`` becomes one line on
+the handler it sets returns an exit code (``fieldtool`` alone runs the start screen's, which
+``commands.tui`` sets as the default). Every ``FieldtoolError`` becomes one line on
 stderr and exit code 2, so no traceback reaches a user.
 """
 
@@ -55,30 +56,19 @@ def build_parser(command: str | None = None) -> argparse.ArgumentParser:
     subparsers = parser.add_subparsers(dest="command", parser_class=_Parser)
     modules = (COMMAND_MODULE[command],) if command in COMMAND_MODULE else COMMAND_MODULES
     for name in modules:
-        try:
-            module = importlib.import_module(name)
-        except ModuleNotFoundError as exc:
-            if exc.name == name:
-                continue  # that feature is not built yet
-            raise
-        module.register(subparsers)
+        importlib.import_module(name).register(subparsers)  # each one always exists
     return parser
 
 
 def main(argv: list[str] | None = None) -> int:
     """Run one subcommand; return its exit code."""
     words = sys.argv[1:] if argv is None else argv
-    parser = build_parser(next((w for w in words if not w.startswith("-")), None))
-    args = parser.parse_args(argv)
-    handler = getattr(args, "handler", None)
-    if handler is None:
-        default = getattr(parser, "_default_handler", None)
-        if default is None:
-            parser.print_help()
-            return 0
-        handler = default
+    command = next((w for w in words if not w.startswith("-")), None)
+    args = build_parser(command).parse_args(argv)
+    if not hasattr(args, "handler"):  # only the full parser carries the start screen's default
+        args = build_parser().parse_args(argv)
     try:
-        return int(handler(args) or 0)
+        return int(args.handler(args) or 0)
     except FieldtoolError as exc:
         print(f"fieldtool: {exc.title.lower()}: {exc.message}", file=sys.stderr)
         return 2
