@@ -11,9 +11,8 @@ from datetime import UTC, datetime
 from pathlib import Path
 
 from fieldtool.commands.boards import PROFILE_HELP, profile_arg
-from fieldtool.commands.expect import to_json as expectation_json
-from fieldtool.commands.expect import to_text as expectation_text
-from fieldtool.core.circuit.expect import expect
+from fieldtool.commands.expect import full_json as expectation_json
+from fieldtool.commands.expect import full_text as expectation_text
 from fieldtool.core.circuit.profile import Profile, profile_from_dict
 from fieldtool.core.circuit.profile_write import to_toml
 from fieldtool.core.diagnosis.calibrate import calibrate
@@ -79,15 +78,14 @@ def run_inject(args: argparse.Namespace) -> int:
     """Handle ``fieldtool inject``."""
     profile = profile_arg(args.profile)
     fault = parse_fault(args.fault, profile)
-    result = expect(profile, fault=fault)
     if args.json:
-        out = expectation_json(result)
+        out = expectation_json(profile, fault)
         out["fault"] = fault.spec(profile)
         out["fault_words"] = describe(fault, profile)
         print(json.dumps(out, indent=2))
     else:
         print(f"INJECTED FAULT: {describe(fault, profile)} ({fault.spec(profile)})")
-        print(expectation_text(result))
+        print(expectation_text(profile, fault))
     return 0
 
 
