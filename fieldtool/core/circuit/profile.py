@@ -24,6 +24,7 @@ from fieldtool.core.circuit.spec import (
     WAVEFORMS,
     CapacitorSpec,
     DiodeSpec,
+    Efforts,
     InstrumentSpec,
     LoadResistor,
     Profile,
@@ -228,6 +229,19 @@ def _instruments(meter: _Table, scope: _Table) -> InstrumentSpec:
     return spec
 
 
+def _efforts(path: str, data: Any) -> Efforts:
+    """``[efforts]``: each measurement step's effort, relative to a DC reading (defaults: spec)."""
+    d = Efforts()
+    t = _Table(path, "efforts", data if data is not None else {})
+    hint = " (relative to one DC reading on a powered node, which is 1)"
+    values = {
+        name: t.number(name, getattr(d, name), positive=True, below=1000.0, hint=hint)
+        for name in Efforts.__dataclass_fields__
+    }
+    t.finish()
+    return Efforts(**values)
+
+
 MAX_TEST_LOADS = 8
 
 
@@ -312,6 +326,7 @@ _SECTIONS = (
     "meter",
     "scope",
     "test_loads",
+    "efforts",
     "bleeder",
     "designators",
     "labels",
@@ -413,6 +428,7 @@ def profile_from_dict(data: dict[str, Any], path: str = "<profile>", digest: str
     )
     instruments = _instruments(meter, _Table(path, "scope", data.get("scope", {})))
     test_loads = _test_loads(path, data.get("test_loads"))
+    efforts = _efforts(path, data.get("efforts"))
 
     designators = _string_map(path, "designators", data.get("designators", {}))
     labels = _string_map(path, "labels", data.get("labels", {}))
@@ -465,6 +481,7 @@ def profile_from_dict(data: dict[str, Any], path: str = "<profile>", digest: str
         meter_range_volts=meter_range,
         instruments=instruments,
         test_loads=test_loads,
+        efforts=efforts,
     )
     _check_names(profile)
     return profile
