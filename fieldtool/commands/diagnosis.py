@@ -1,4 +1,5 @@
-"""``fieldtool inject``, ``diagnose`` and ``calibrate``: faults, ranking and fitting a profile."""
+"""``fieldtool inject``, ``diagnose``, ``coverage`` and ``calibrate``: faults, ranking, what
+each measurement kind can find, and fitting a profile."""
 
 from __future__ import annotations
 
@@ -57,6 +58,19 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     dia.add_argument("--cache", help="dictionary cache folder (default: $FIELDTOOL_CACHE)")
     dia.add_argument("--json", action="store_true", help="one JSON object on stdout")
     dia.set_defaults(handler=run_diagnose)
+
+    cov = subparsers.add_parser(
+        "coverage",
+        help="which measurement kinds can find each catalogued fault on this board",
+        description=(
+            "For each catalogued fault and severity, the measurement kinds that tell it from a "
+            "healthy board beyond 3x the spread, and the faults none can find."
+        ),
+    )
+    cov.add_argument("profile", help=PROFILE_HELP)
+    cov.add_argument("--cache", help="dictionary cache folder (default: $FIELDTOOL_CACHE)")
+    cov.add_argument("--json", action="store_true", help="one JSON object on stdout")
+    cov.set_defaults(handler=run_coverage)
 
     cal = subparsers.add_parser(
         "calibrate",
@@ -168,6 +182,53 @@ def diagnosis_text(d: FaultDictionary, readings, result: Diagnosis) -> str:
         "CAUTION: power off and discharge before touching parts; verify with the meter. "
         "Local codes and licensed practice take precedence."
     )
+    return "\n".join(lines)
+
+
+# --- coverage ----------------------------------------------------------------------------
+
+
+def run_coverage(args: argparse.Namespace) -> int:
+    """Handle ``fieldtool coverage``."""
+    from fieldtool.core.diagnosis.coverage import coverage
+
+    profile = profile_arg(args.profile)
+    c = coverage(dictionary_for(profile, args.cache))
+    if args.json:
+        print(json.dumps(c.to_json(), indent=2))
+    else:
+        print(coverage_text(c))
+    return 0
+
+
+def coverage_text(c) -> str:
+    """One line a fault and severity: the kinds that find it and where; then the ones none
+    finds, said plainly."""
+    from fieldtool.core.diagnosis.coverage import SIGMAS
+
+    lines = [
+        f"{c.board}: which measurements tell each fault from a healthy board "
+        f"(beyond {SIGMAS:g}x the spread)",
+        f"measurements this board allows: {', '.join(c.kinds)}",
+        "",
+    ]
+    width = max((len(f.words) for f in c.faults), default=10) + 2
+    for f in c.faults:
+        found = [f"{k} ({f.where[k]})" for k in f.kinds()]
+        lines.append(f"{f.words:<{width}}{', '.join(found) if found else '-- none'}")
+    missing = c.unfindable()
+    lines.append("")
+    if missing:
+        words = {f.key: f.words.split(" (")[0] for f in c.faults}
+        lines.append(
+            "No available measurement finds these at any severity: "
+            + "; ".join(words[k] for k in missing)
+            + ". Check those parts out of circuit."
+        )
+    else:
+        lines.append("Every catalogued fault is found by some measurement at some severity.")
+    for part, why in c.lift_one_leg.items():
+        lines.append(f"{part}: in-circuit diode test tells nothing ({why}); lift one leg")
     return "\n".join(lines)
 
 

@@ -218,3 +218,29 @@ def test_calibrate_missing_readings_file(tmp_path):
         ["calibrate", str(DICKSON), "--readings", str(missing), "--out", str(tmp_path / "o.toml")]
     )
     assert code == 2 and "readings file not found" in err and err.count("\n") == 1
+
+
+# --- coverage -----------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("profile", [DICKSON, DC_LADDER], ids=lambda p: p.stem)
+def test_coverage_lists_every_fault_and_what_finds_it(profile, dictionary_cache):
+    out = _json(["coverage", str(profile), "--json", "--cache", str(dictionary_cache)])
+    hyps = catalog(load_profile(profile), build_circuit(load_profile(profile))[0])
+    assert {f["fault"].split(":")[1] for f in out["faults"]} == {
+        h.mode for h in hyps if h.target is not None
+    }
+    assert "dc" in out["kinds"]
+    for f in out["faults"]:
+        assert set(f["found_by"]) <= set(out["kinds"])
+        assert (f["fault"] in out["not_findable"]) <= (not f["found_by"])
+    code, text, err = _run(["coverage", str(profile), "--cache", str(dictionary_cache)])
+    assert code == 0 and err == ""
+    assert "beyond 3x the spread" in text
+    first = out["faults"][0]
+    assert any(line.startswith(first["words"]) for line in text.splitlines())
+
+
+def test_coverage_of_a_missing_profile_is_one_line_exit_2(tmp_path):
+    code, out, err = _run(["coverage", str(tmp_path / "nope.toml")])
+    assert code == 2 and out == "" and err.count("\n") == 1

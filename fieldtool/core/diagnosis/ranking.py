@@ -468,8 +468,9 @@ def _suspect(d: FaultDictionary, priors: Priors, h: int, p: float, row: int) -> 
 # --- what each measurement would tell -----------------------------------------------------
 
 
-def _predicted(d: FaultDictionary, key, rows: np.ndarray, dc_read: set[str]):
-    """(mu, sd, over) of a channel over ``rows``, as its reading would enter the likelihood."""
+def predicted_reading(d: FaultDictionary, key, rows: np.ndarray, dc_read: set[str]):
+    """(mu, sd, over) of a channel over ``rows``, as its reading would enter the likelihood
+    (the drop where the node's DC is in ``dc_read``; the instrument's accuracy included)."""
     at, quantity, conditions = key
     ch = d.channel(at, quantity, conditions)
     if quantity == DC_LOADED.name and at in dc_read:
@@ -506,7 +507,7 @@ def _gains(d: FaultDictionary, row_w: np.ndarray, candidates, dc_read) -> dict:
     h_now = float(_entropy(np.add.reduceat(w, starts)))
     gains = {}
     for key in candidates:
-        mu, sd, over = _predicted(d, key, rows, dc_read)
+        mu, sd, over = predicted_reading(d, key, rows, dc_read)
         if over.any():
             limit = d.profile.instruments.diode_test_volts
             e = _expected_entropy_ol(mu, sd, over, w, starts, limit)
@@ -695,7 +696,7 @@ def _splitter(d, group, post, candidates, dc_read, efforts, powered):
     h_now = float(_entropy(np.add.reduceat(w, starts)))
     best, best_score = None, 0.0
     for key in candidates:
-        mu, sd, over = _predicted(d, key, rows, dc_read)
+        mu, sd, over = predicted_reading(d, key, rows, dc_read)
         if over.any():
             limit = d.profile.instruments.diode_test_volts
             e = _expected_entropy_ol(mu, sd, over, w, starts, limit)
