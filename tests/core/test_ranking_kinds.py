@@ -158,3 +158,12 @@ def test_diode_test_ol_is_an_outcome(d):
     over_hyps = {d.hypotheses[i].key for i in np.unique(d.row_hypothesis[ch.over])}
     assert not result.ignored
     assert result.top.key in over_hyps, (result.top.key, over_hyps)
+
+
+def test_readings_that_fit_nothing_at_all_still_get_a_next_measurement(d):
+    # No single reading left out explains the rest: the spreads are widened by the Birge
+    # ratio for the suggestion (R. T. Birge, Phys. Rev. 40, 1932, from memory).
+    result = diagnose(d, [dc("S1", 40.0), dc("S2", -7.0), dc("S3", 3.0)])
+    assert result.fit.no_fit and result.fit.all_but_one is None
+    assert result.next_measurement is not None
+    assert result.next_measurement.gain_bits > 0

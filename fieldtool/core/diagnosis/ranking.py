@@ -394,9 +394,11 @@ def diagnose(
     order = np.argsort(-post, kind="stable")
     best_row = _best_rows(d, loglik)
     suspects = tuple(_suspect(d, priors, h, post[h], best_row[h]) for h in order)
-    fit, leave_out = _fit(d, terms, loglik, suspects)
+    fit, leave_out, birge = _fit(d, terms, loglik, suspects)
     if leave_out is not None:  # suggest as if the one reading that fits nothing were wrong
         _, row_w = _posterior(d, log_prior_row + loglik - terms[leave_out].logp)
+    elif fit.no_fit:  # spreads widened until the best row fits (χ²/k = 1): keep suggesting
+        _, row_w = _posterior(d, log_prior_row + loglik / birge)
     taken = set(read)
     candidates = [key for key in d.channel_keys() if key not in taken]
     dc_read = {key[0] for key in read if key[1] == DC.name}
@@ -724,12 +726,14 @@ def _words(d: FaultDictionary, h: int) -> str:
 # --- goodness of fit ----------------------------------------------------------------------
 
 
-def _fit(d, terms: list[_Term], loglik, suspects) -> tuple[Fit, int | None]:
-    """χ² goodness of fit of the best-fitting row, the reading furthest from it, and (when
-    nothing fits) the one reading without which a hypothesis explains the rest."""
+def _fit(d, terms: list[_Term], loglik, suspects) -> tuple[Fit, int | None, float]:
+    """χ² goodness of fit of the best-fitting row, the reading furthest from it, (when nothing
+    fits) the one reading without which a hypothesis explains the rest, and the Birge ratio
+    χ²/k of the best row (the factor by which the variances would have to grow for it to fit;
+    R. T. Birge, Phys. Rev. 40, 1932, from memory), 1 where the readings fit."""
     k = len(terms)
     if k == 0:
-        return Fit(1.0, False, None, "no readings yet"), None
+        return Fit(1.0, False, None, "no readings yet"), None, 1.0
     z2 = np.stack([t.z2 for t in terms], axis=1)  # (R, k)
     chi2 = z2.sum(axis=1)
     best = int(np.argmin(chi2))
@@ -742,7 +746,7 @@ def _fit(d, terms: list[_Term], loglik, suspects) -> tuple[Fit, int | None]:
             terms[worst].at,
             f"readings fit {suspects[0].words} (p = {p:.2f})",
             terms[worst].quantity,
-        ), None
+        ), None, 1.0
     # Which single reading, left out, lets one hypothesis explain all the others?
     leave_out, explained, best_p = None, None, NO_FIT_P
     if k >= 2:
@@ -768,7 +772,7 @@ def _fit(d, terms: list[_Term], loglik, suspects) -> tuple[Fit, int | None]:
         "catalogued fault; check the profile, or suspect two faults at once "
         f"(best fit p = {p:.1e})."
     )
-    return Fit(p, True, t.at, text, t.quantity, all_but_one), leave_out
+    return Fit(p, True, t.at, text, t.quantity, all_but_one), leave_out, max(chi2[best] / k, 1.0)
 
 
 def chi2_sf(x: float, k: int) -> float:
