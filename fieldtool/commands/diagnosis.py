@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import math
 import os
 import sys
 import tomllib
@@ -26,6 +27,7 @@ from fieldtool.core.errors import InputError, ProfileError
 from fieldtool.core.measurement import DC
 from fieldtool.core.readings import load_readings
 from fieldtool.core.session import choose_priors, history_failures
+from fieldtool.core.units import format_si
 
 FAULT_HELP = (
     "TARGET:MODE[=SEVERITY], e.g. D5:open, C4:short, C3:lowcap=0.3 (fraction left), "
@@ -33,6 +35,14 @@ FAULT_HELP = (
     "drive:stuck-low, drive:stuck-high, drive:missing (ac-ladder), drive:low=0.7, "
     "supply:low=0.8, load:heavy=3"
 )
+
+READINGS_HELP = (
+    "Readings CSV, either header node,volts (optional ripple_vpp), or one reading a row with "
+    "header measure,at,value (optional test_load_ohms), e.g. dc,S3,45.2 / ripple-pp,S3,31mV / "
+    "ac-rms,S3,9mV / current,supply,0.35mA / dc-loaded,S6,72.9,10k / diode-test,D5,0.61. "
+    "OL for overload."
+)
+READINGS_ARG = "CSV file: node,volts[,ripple_vpp] or measure,at,value[,test_load_ohms]"
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:
@@ -49,11 +59,11 @@ def register(subparsers: argparse._SubParsersAction) -> None:
 
     dia = subparsers.add_parser(
         "diagnose",
-        help="rank the likely failed part from node readings, and the next node to probe",
-        description="Readings CSV: header node,volts (optional ripple_vpp); OL for overload.",
+        help="rank the likely failed part from readings, and the next measurement to take",
+        description=READINGS_HELP,
     )
     dia.add_argument("profile", help=PROFILE_HELP)
-    dia.add_argument("--readings", required=True, help="CSV file: node,volts[,ripple_vpp]")
+    dia.add_argument("--readings", required=True, help=READINGS_ARG)
     dia.add_argument("--logs", help="history folder whose confirmed repairs set the priors")
     dia.add_argument("--cache", help="dictionary cache folder (default: $FIELDTOOL_CACHE)")
     dia.add_argument("--json", action="store_true", help="one JSON object on stdout")
@@ -78,7 +88,9 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         description="Least-squares fit to a golden board; writes a new profile.",
     )
     cal.add_argument("profile", help=PROFILE_HELP)
-    cal.add_argument("--readings", required=True, help="CSV of a known-good board's readings")
+    cal.add_argument(
+        "--readings", required=True, help="CSV of a known-good board's readings (DC is used)"
+    )
     cal.add_argument("--out", required=True, help="where to write the fitted profile (.toml)")
     cal.add_argument("--force", action="store_true", help="overwrite --out if it exists")
     cal.add_argument("--json", action="store_true", help="one JSON object on stdout")
@@ -139,7 +151,7 @@ def run_diagnose(args: argparse.Namespace) -> int:
     """Handle ``fieldtool diagnose``."""
     profile = profile_arg(args.profile)
     d = dictionary_for(profile, args.cache)
-    readings = load_readings(args.readings, d.nodes, d.labels)
+    readings = load_readings(args.readings, d.nodes, d.labels, part_names(d), d.rails)
     result = diagnose(d, readings, priors_for(profile, d, args.logs))
     if args.json:
         print(json.dumps(result.to_json(), indent=2))
@@ -148,35 +160,79 @@ def run_diagnose(args: argparse.Namespace) -> int:
     return 0
 
 
-def diagnosis_text(d: FaultDictionary, readings, result: Diagnosis) -> str:
-    """Readings against the healthy bands, the ranked suspects and the advice."""
-    dc = [r for r in readings if r.quantity == DC]
-    lines = [f"{d.profile.name}: {len(dc)} reading(s)", ""]
-    lines.append(f"{'node':<6}{'test pt':<9}{'read':>10}{'healthy band':>24}  verdict")
-    for r in dc:
-        band = d.band(r.at)
+def part_names(d: FaultDictionary) -> list[str]:
+    """The diodes' designators as the board shows them, and their default ones."""
+    return list(dict.fromkeys([*(d.part_name(r) for r in d.diodes), *d.diodes]))
+
+
+def shown(value: float, unit: str) -> str:
+    """A reading with a prefix a meter would show: 45.200 V, 31.0 mV, 350 µA."""
+    for scale, prefix in ((1.0, ""), (1e-3, "m"), (1e-6, "µ")):
+        if abs(value) >= scale or scale == 1e-6:
+            return f"{value / scale:.4g} {prefix}{unit}"
+    return f"{value:g} {unit}"
+
+
+def reading_rows(d: FaultDictionary, readings) -> list[str]:
+    """Each reading against its healthy band (every kind the dictionary predicts)."""
+    lines = [f"{'reading':<28}{'value':>12}{'healthy band':>26}  verdict"]
+    for r in readings:
+        kind = r.quantity.name
+        what = f"{r.at} {kind}" + (
+            f" {format_si(r.condition('test_load_ohms'))}Ω" if r.quantity.conditions else ""
+        )
         label = d.labels.get(r.at, "")
+        what += f" ({label})" if label else ""
         if r.value is None:
-            lines.append(f"{r.at:<6}{label:<9}{'OL':>10}{'':>24}  over range")
+            lines.append(f"{what:<28}{'OL':>12}{'':>26}  over range")
+            continue
+        value = shown(r.value, r.quantity.unit)
+        try:
+            band = d.channel_band(d.channel(r.at, kind, r.conditions))
+        except InputError:
+            lines.append(f"{what:<28}{value:>12}{'not predicted':>26}  see notes")
+            continue
+        if math.isnan(band.low):
+            lines.append(f"{what:<28}{value:>12}{'not predicted':>26}")
             continue
         verdict = "in band" if band.contains(r.value) else ("LOW" if r.value < band.low else "HIGH")
-        span = f"{band.low:.2f} … {band.high:.2f} V"
-        lines.append(f"{r.at:<6}{label:<9}{r.value:>8.3f} V{span:>24}  {verdict}")
-    lines += ["", "most likely:"]
+        unit = r.quantity.unit
+        span = f"{shown(band.low, unit)} … {shown(band.high, unit)}"
+        lines.append(f"{what:<28}{value:>12}{span:>26}  {verdict}")
+    return lines
+
+
+def next_lines(result: Diagnosis) -> list[str]:
+    """What to measure next, with its caution; or why nothing is left."""
+    s = result.next_measurement
+    if s is not None:
+        lines = [f"next: {s.words} ({s.gain_bits:.2f} bits expected, effort {s.effort:g})"]
+        if s.caution:
+            lines.append(f"CAUTION: {s.caution}")
+        return lines
+    if result.top.probability >= 0.9 and not result.fit.no_fit:
+        return [f"next: none needed; {result.top.words} at {result.top.probability:.0%}"]
+    return ["next: no measurement left that would tell more; check suspects out of circuit"]
+
+
+def diagnosis_text(d: FaultDictionary, readings, result: Diagnosis) -> str:
+    """Readings against the healthy bands, the ranked suspects and the advice."""
+    lines = [f"{d.profile.name}: {len(readings)} reading(s)", ""]
+    lines += reading_rows(d, readings)
+    lines.append("")
+    if result.fit.no_fit:  # the reading that fits nothing leads
+        lines.append("WARNING: " + result.fit.text)
+        lines.append("most likely, if a single fault is to blame:")
+    else:
+        lines.append("most likely:")
     for s in result.suspects[:8]:
         bar = "#" * round(s.probability * 20)
         lines.append(f"  {s.probability:6.1%}  {bar:<20}  {s.words}")
     for a in result.ambiguity:
         lines.append(f"ambiguous: {a.text}")
-    if result.next_probe:
-        label = d.labels.get(result.next_probe)
-        where = f"{result.next_probe} ({label})" if label else result.next_probe
-        lines.append(f"next: probe {where} ({result.next_probe_gain_bits:.2f} bits expected)")
-    elif result.top.probability >= 0.9:
-        lines.append(f"next: none needed; {result.top.words} at {result.top.probability:.0%}")
-    else:
-        lines.append("next: no node left that would tell more; check suspects out of circuit")
-    lines.append(("WARNING: " if result.fit.no_fit else "fit: ") + result.fit.text)
+    lines += next_lines(result)
+    if not result.fit.no_fit:
+        lines.append("fit: " + result.fit.text)
     lines += [f"note: {text}" for text in result.ignored]
     lines.append(
         "CAUTION: power off and discharge before touching parts; verify with the meter. "
@@ -246,6 +302,7 @@ def run_calibrate(args: argparse.Namespace) -> int:
     circuit, _ = build_circuit(profile)
     nodes = [circuit.name(i) for i in circuit.probe_nodes]
     readings = load_readings(args.readings, nodes, profile.labels)
+    others = [r for r in readings if r.quantity != DC]
     result = calibrate(profile, readings)
     text = fitted_toml(args.profile, profile, result, args.readings)
     try:
@@ -262,7 +319,7 @@ def run_calibrate(args: argparse.Namespace) -> int:
         "chi2": result.chi2,
         "residuals": result.residuals,
         "iterations": result.iterations,
-        "notes": list(result.notes),
+        "notes": list(result.notes) + _left_out(others),
     }
     if args.json:
         print(json.dumps(summary, indent=2))
@@ -278,11 +335,18 @@ def run_calibrate(args: argparse.Namespace) -> int:
     print(f"\nresidual {result.rms_volts * 1000:.1f} mV rms over {len(result.residuals)} nodes")
     for node, e in result.residuals.items():
         print(f"  {node:<6}{e * 1000:+9.1f} mV")
-    for note in result.notes:
+    for note in [*result.notes, *_left_out(others)]:
         print(f"note: {note}")
     if result.chi2 > 4 * max(len(result.residuals), 1):
         print("WARNING: the fit is poor for a known-good board; is it really healthy?")
     return 0
+
+
+def _left_out(others) -> list[str]:
+    if not others:
+        return []
+    kinds = ", ".join(dict.fromkeys(r.quantity.name for r in others))
+    return [f"calibration fits DC readings only; {len(others)} reading(s) of {kinds} left out"]
 
 
 def fitted_toml(source: str, original: Profile, result, readings_path: str) -> str:

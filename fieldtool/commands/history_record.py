@@ -20,6 +20,7 @@ import json
 import os
 
 from fieldtool.commands.boards import PROFILE_HELP, profile_arg
+from fieldtool.commands.diagnosis import READINGS_ARG, next_lines, part_names
 from fieldtool.commands.history_text import safe
 from fieldtool.core.circuit.netlist import default_designators
 from fieldtool.core.circuit.profile import Profile
@@ -52,7 +53,7 @@ def register(subparsers: argparse._SubParsersAction, logs_help: str, outcomes) -
     )
     p.add_argument("profile", help=PROFILE_HELP)
     p.add_argument("--board", required=True, help="board serial")
-    p.add_argument("--readings", required=True, help="readings CSV (node,volts[,ripple_vpp])")
+    p.add_argument("--readings", required=True, help=f"readings {READINGS_ARG}")
     p.add_argument(
         "--action",
         action="append",
@@ -61,7 +62,9 @@ def register(subparsers: argparse._SubParsersAction, logs_help: str, outcomes) -
     )
     p.add_argument("--part", help="part used (with a single --action), e.g. '1N4007 from stock'")
     p.add_argument("--note", help="a note on the action (with a single --action)")
-    p.add_argument("--verify", metavar="FILE", help="readings CSV taken after the repair")
+    p.add_argument(
+        "--verify", metavar="FILE", help="readings CSV taken after the repair (either form)"
+    )
     p.add_argument("--outcome", choices=outcomes, help="close the session with this outcome")
     p.add_argument("--technician", help="who did the work (default: your login name)")
     p.add_argument("--logs", help=logs_help)
@@ -123,8 +126,15 @@ def run_record(args: argparse.Namespace) -> int:
         a = actions[0]
         actions = [Action(a.designator, a.done, a.mode, args.part, args.note or "")]
     dictionary = load_or_build(profile)
-    readings = load_readings(args.readings, dictionary.nodes, profile.labels)
-    after = load_readings(args.verify, dictionary.nodes, profile.labels) if args.verify else ()
+    names = part_names(dictionary)
+    readings = load_readings(
+        args.readings, dictionary.nodes, profile.labels, names, dictionary.rails
+    )
+    after = (
+        load_readings(args.verify, dictionary.nodes, profile.labels, names, dictionary.rails)
+        if args.verify
+        else ()
+    )
     priors = choose_priors(profile, dictionary.hypotheses, history_failures(logs))
     events: list[Event] = []
     session = BoardSession(
@@ -181,8 +191,9 @@ def run_record(args: argparse.Namespace) -> int:
             f"  {s.probability:6.1%}  {safe(s.words)}  "
             f"(prior {s.prior:.2%}, {safe(s.prior_source)})"
         )
-    if diagnosis.next_probe:
-        lines.append(f"next node worth probing: {diagnosis.next_probe}")
+    if diagnosis.fit.no_fit:
+        lines.insert(1, "WARNING: " + safe(diagnosis.fit.text))
+    lines += next_lines(diagnosis)
     print("\n".join(lines))
     return 0
 

@@ -34,3 +34,26 @@ def format_si(value: float) -> str:
         if abs(value) >= scale:
             return f"{value / scale:.4g}{prefix}"
     return f"{value:.3g}"
+
+
+_READING = re.compile(
+    r"^\s*(?P<num>[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?)\s*"
+    r"(?P<prefix>[pnuµμmkK]?)(?P<unit>[A-Za-z]*)\s*$"
+)
+
+
+def parse_reading(text: str, unit: str) -> float:
+    """A reading in base unit ``unit`` (``V`` or ``A``) as technicians write it: ``45.2``,
+    ``45.2V``, ``890mV``, ``0.35mA``, ``350uA``, ``1.2kV``. ValueError when the number or the
+    unit is not understood (another unit, or ``M``, which could be milli or mega)."""
+    match = _READING.match(text)
+    if match is None:
+        raise ValueError(text)
+    prefix, written = match["prefix"], match["unit"]
+    if written and written.lower() != unit.lower():
+        # "m" alone after a number is a prefix without its unit, e.g. "890m"
+        raise ValueError(text)
+    value = float(match["num"]) * _SI[prefix]
+    if not math.isfinite(value):
+        raise ValueError(text)
+    return value
