@@ -35,8 +35,14 @@ def test_a_reservoir_at_a_tenth_is_found_by_ripple_at_its_own_node_not_by_dc():
     assert "ripple-pp" in c4.kinds() and c4.where["ripple-pp"] == "S2"
     assert "dc" not in c4.kinds()
     assert c4.separation["ripple-pp"] > SIGMAS
-    # and its mildest grid point (70 % left) moves ripple by 1/0.7: not beyond 3× the spread
-    assert not _at("C4:lowcap", 0.7).findable
+    # ripple ∝ 1/C: the less is left, the further from healthy, grid point by grid point
+    seps = [
+        r.separation["ripple-pp"]
+        for r in sorted(_coverage().of("C4:lowcap"), key=lambda r: -r.severity)
+    ]
+    assert seps == sorted(seps)
+    # a leak of ten times the load draws a tenth of the load current: inside every band
+    assert not _at("D2:leaky", 1e6).findable
 
 
 def test_hard_faults_are_found_by_dc_and_a_shorted_diode_by_its_diode_test():
@@ -57,7 +63,7 @@ def test_the_listing_names_every_kind_and_what_nothing_finds():
     assert out["not_findable"] == list(c.unfindable())
     assert {f["fault"] for f in out["faults"]} == keys
     assert c.findable("C4:lowcap") and c.findable("C4:lowcap", 0.1)
-    assert not c.findable("C4:lowcap", 0.7)
+    assert not c.findable("D2:leaky", 1e6) and c.findable("D2:leaky")
     assert not c.findable("no-such:fault")
 
 

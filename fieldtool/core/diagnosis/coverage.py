@@ -2,9 +2,10 @@
 
 For every fault and every severity of its grid (each a row of the fault dictionary) and every
 measurement the board allows, the separation from the healthy board is |μ_fault − μ_healthy|
-divided by the larger of the two readings' spreads (tolerances, model and the instrument's own
-accuracy, as the ranking uses them); a kind *finds* the fault at that severity where one of its
-measurements separates it by more than ``SIGMAS`` (3, the issue's "beyond 3× the spread").
+divided by the healthy reading's spread (tolerances, model and the instrument's own accuracy,
+as the ranking uses them: the band a healthy board reads within); a kind *finds* the fault at
+that severity where one of its measurements separates it by more than ``SIGMAS`` (3, "beyond
+3× the spread").
 A diode test that shows OL where the healthy part shows a number (or the reverse) finds it
 outright. A reading under a test load counts as the drop it causes beside the node's DC
 reading (the way the ranking reads it when both are taken), or as itself, whichever separates
@@ -143,9 +144,9 @@ def coverage(d: FaultDictionary) -> Coverage:
 
 
 def _separation(mu: np.ndarray, sd: np.ndarray, over: np.ndarray, h: int) -> np.ndarray:
-    """(R,) each row's distance from the healthy row in the larger spread; inf where one
-    predicts OL and the other a number; 0 where the row has no prediction."""
+    """(R,) each row's distance from the healthy row in the healthy reading's spread; inf where
+    one predicts OL and the other a number; 0 where the row has no prediction."""
     with np.errstate(invalid="ignore"):
-        sep = np.abs(mu - mu[h]) / np.fmax(sd, sd[h])
+        sep = np.abs(mu - mu[h]) / sd[h]
     sep = np.where(np.isfinite(sep), sep, 0.0)
     return np.where(over != over[h], np.inf, np.where(over & over[h], 0.0, sep))
