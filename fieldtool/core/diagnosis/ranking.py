@@ -64,6 +64,7 @@ SPLIT_SIGMAS = 2.0  # hypotheses closer than this at every reading are not split
 MIN_GAIN_BITS = 0.02
 OL_SLIP = 1e-3  # chance a row predicting OL shows a number, or the reverse (common practice)
 LOG_2PI = math.log(2 * math.pi)
+SPLITTER_CANDIDATES = 12  # the measurements tried as splitters of an ambiguity group
 KEEP_ROWS = 1e-6  # rows below this share of the heaviest are left out of the expected gains
 _GH_T, _GH_W = np.polynomial.hermite.hermgauss(6)
 _GH_W = _GH_W / _GH_W.sum()
@@ -415,7 +416,10 @@ def diagnose(
         node = max(dc_gains, key=lambda k: dc_gains[k])
         if dc_gains[node] >= MIN_GAIN_BITS:
             next_probe, gain = node, dc_gains[node]
-    ambiguity = _ambiguity(d, post, order, best_row, terms, candidates, efforts, powered)
+    # splitters are sought among the measurements that tell most overall (speed: each one
+    # costs an expected-entropy pass over the group's rows)
+    splitters = sorted(gains, key=lambda k: -gains[k])[:SPLITTER_CANDIDATES]
+    ambiguity = _ambiguity(d, post, order, best_row, terms, splitters, efforts, powered)
     return Diagnosis(
         suspects,
         next_probe,
