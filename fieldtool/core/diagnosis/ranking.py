@@ -744,13 +744,17 @@ def _fit(d, terms: list[_Term], loglik, suspects) -> tuple[Fit, int | None, floa
     p = chi2_sf(float(chi2[best]), k)
     worst = int(np.argmax(z2[best]))
     if p >= NO_FIT_P:
-        return Fit(
-            p,
-            False,
-            terms[worst].at,
-            f"readings fit {suspects[0].words} (p = {p:.2f})",
-            terms[worst].quantity,
-        ), None, 1.0
+        return (
+            Fit(
+                p,
+                False,
+                terms[worst].at,
+                f"readings fit {suspects[0].words} (p = {p:.2f})",
+                terms[worst].quantity,
+            ),
+            None,
+            1.0,
+        )
     # Which single reading, left out, lets one hypothesis explain all the others?
     leave_out, explained, best_p = None, None, NO_FIT_P
     if k >= 2:
