@@ -39,7 +39,7 @@ def _known_serials(logs: Path) -> list[str]:
 
 def load_board(logs: Path, serial: str) -> BoardHistory:
     """A board's history; an unknown serial names the closest ones that exist."""
-    check_name(serial)
+    serial = check_name(serial, existing=True)
     try:
         return read_board(logs, serial)
     except NotFoundError:

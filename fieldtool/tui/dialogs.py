@@ -15,6 +15,7 @@ from fieldtool.core.circuit.profile import Profile
 from fieldtool.core.circuit.safety import CAUTION, SafetyFigures, format_duration
 from fieldtool.core.diagnosis.faults import BOARD_TARGETS, modes_for, target_kind
 from fieldtool.core.errors import FieldtoolError
+from fieldtool.core.words import count
 from fieldtool.tui.view import volts_text
 
 DONE_WORDS = ("replaced", "resoldered", "cleaned", "reworked", "adjusted", "inspected only")
@@ -50,7 +51,8 @@ class ResumeDialog(ModalScreen[bool]):
         super().__init__()
         self.text = (
             f"Board {serial} has a session opened {opened} that was never closed "
-            f"({readings} readings, {actions} repairs recorded). Resume it, or start a new "
+            f"({count(readings, 'reading')}, {count(actions, 'repair')} recorded). Resume it, "
+            "or start a new "
             "session? The old records stay in the history either way."
         )
 

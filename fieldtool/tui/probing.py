@@ -16,6 +16,7 @@ from fieldtool.core.circuit.safety import node_hazard, safety_figures
 from fieldtool.core.circuit.spec import display_name
 from fieldtool.core.diagnosis.faults import describe
 from fieldtool.core.errors import FieldtoolError
+from fieldtool.core.words import count
 from fieldtool.meters.parse import parse_typed
 from fieldtool.tui.dialogs import (
     ActionDialog,
@@ -346,8 +347,8 @@ class ProbingScreen(Screen):
         s = self.session
         top = s.diagnosis.suspects[0] if s.diagnosis.suspects else None
         lines = [
-            f"{_count(len(s.taken), 'reading')} in this phase, "
-            f"{_count(len(s.actions), 'repair')} recorded."
+            f"{count(len(s.taken), 'reading')} in this phase, "
+            f"{count(len(s.actions), 'repair')} recorded."
         ]
         if top is not None:
             lines.append(f"Top suspect now: {top.words} ({top.probability:.0%}).")
@@ -381,8 +382,3 @@ class ProbingScreen(Screen):
             f"The hidden fault was {hidden}. {verdict}{ranked} "
             f"Readings after the last repair: {read or 'none'}."
         )
-
-
-def _count(n: int, word: str) -> str:
-    """``1 reading``, ``2 readings``."""
-    return f"{n} {word}{'' if n == 1 else 's'}"

@@ -26,10 +26,16 @@ def test_shipped_profiles_load():
         ({"board": {"name": None}}, '[board.name] is missing: add `name = "..."`'),
         (
             {"capacitor": {"farads": -1e-6}},
-            "[capacitor.farads] is -1e-06, expected a number greater than 0",
+            "[capacitor.farads] is -1e-06, expected 10 pF to 1 F (below 10 pF",
         ),
-        ({"capacitor": {"tolerance": 1.0}}, "[capacitor.tolerance] is 1, expected less than 1"),
-        ({"drive": {"frequency_hz": 0}}, "[drive.frequency_hz] is 0, expected a number greater"),
+        (
+            {"capacitor": {"tolerance": 1.0}},
+            "[capacitor.tolerance] is 1, expected 0 or more and below 1",
+        ),
+        (
+            {"drive": {"frequency_hz": 0}},
+            "[drive.frequency_hz] is 0, expected 1 Hz or more and below 1 GHz",
+        ),
         ({"drive": {"volts": "12"}}, "[drive.volts] is '12' (str), expected a number"),
         ({"drive": {"colour": "red"}}, "[drive.colour] is not a known key"),
         ({"load": {"amps": 0.001}}, "[load.amps] given together with ohms"),
@@ -39,7 +45,7 @@ def test_shipped_profiles_load():
         ({"labels": {"S9": "TP9"}}, "node 'S9' is not on this board"),
         ({"overrides": {"D99": {"series_ohms": 1.0}}}, "designator 'D99' is not on this board"),
         ({"diode": {"forward_volts": 0.6}}, "given together with forward_volts"),
-        ({"meter": {"range_volts": 0}}, "[meter.range_volts] is 0, expected a number greater"),
+        ({"meter": {"range_volts": 0}}, "[meter.range_volts] is 0, expected 10 mV to 1 MV"),
     ],
 )
 def test_profile_mistakes_have_clear_messages(sections, expected):

@@ -18,6 +18,8 @@ import numpy as np
 from fieldtool.core.circuit.netlist import Circuit, Params
 from fieldtool.core.circuit.spec import Profile
 from fieldtool.core.circuit.topologies import topology_of
+from fieldtool.core.plausible import Range
+from fieldtool.core.units import format_si
 
 PART_KINDS = ("diode", "capacitor")
 BOARD_TARGETS = ("drive", "supply", "load")
@@ -25,6 +27,31 @@ NO_SEVERITY = (math.nan,)  # the grid of a mode without a severity
 IDEAL_DIODE_DROP = 0.6  # V, for scaling grids only (common practice, no source)
 
 _EXAMPLES = {"ohms": "47k", "fraction": "0.3", "factor": "3"}
+
+# The plausible severity of each kind (see ``fieldtool.core.plausible``). A leak below the ohm
+# a short is modelled as is a short (write the mode short); a series resistance above the
+# terohm an open diode is modelled as is an open part; 0.1 % of a capacitance, the drive or the
+# supply left is gone; a load a thousand times its rating is a short across the output.
+SEVERITY_RANGES = {
+    "ohms": Range(1e-3, 1e12, "Ω", "above 1 TΩ in series a part is open: write the mode open"),
+    "fraction": Range(
+        1e-3,
+        1.0,
+        "",
+        "the fraction left; below 0.001 it is gone: write open, stuck-low or missing",
+        high_open=True,
+    ),
+    "factor": Range(
+        1.0,
+        1e3,
+        "×",
+        "a thousand times the rated load is a short across the output",
+        low_open=True,
+    ),
+}
+LEAKY_OHMS = Range(
+    1.0, 1e18, "Ω", "below the 1 Ω of a shorted part write the mode short; above 1e18 Ω no leak"
+)
 
 
 class FaultMode(ABC):
@@ -35,9 +62,17 @@ class FaultMode(ABC):
     unit: ClassVar[str | None]  # severity unit: "ohms" | "fraction" | "factor"; None: none
     words: ClassVar[str]  # plain words: "lost capacitance"
 
+    def unavailable(self, profile: Profile) -> str | None:
+        """Why the mode cannot happen on this board, or None when it can (default: always can).
+
+        A mode whose fault would leave every node as healthy (a low supply on a board whose
+        supply is 0 V) is unavailable too, so it is never ranked as a hypothesis.
+        """
+        return None
+
     def available(self, profile: Profile) -> bool:
-        """True when the mode can happen on this board (default: always)."""
-        return True
+        """True when the mode can happen on this board."""
+        return self.unavailable(profile) is None
 
     def grid(self, profile: Profile) -> tuple[float, ...]:
         """Severities the fault dictionary tries on this board, mild to gross."""
@@ -59,15 +94,22 @@ class FaultMode(ABC):
         """A severity to show in messages."""
         return _EXAMPLES.get(self.unit or "", "")
 
+    @property
+    def severity_range(self) -> Range | None:
+        """The severities this mode accepts (None: it takes none); see ``SEVERITY_RANGES``."""
+        return SEVERITY_RANGES.get(self.unit or "")
+
     def severity_problem(self, value: float) -> str | None:
         """Why a severity cannot be used for this mode, or None when it can."""
-        if self.unit == "ohms" and value <= 0:
-            return f"{self.name} needs a resistance above 0 ohms"
-        if self.unit == "fraction" and not 0 < value < 1:
-            return f"{self.name} needs the fraction left, between 0 and 1 (e.g. 0.3)"
-        if self.unit == "factor" and value <= 1:
-            return f"{self.name} needs a factor above 1 (e.g. 3)"
-        return None
+        limit = self.severity_range
+        if limit is None:
+            return None
+        problem = limit.problem(value)
+        return f"{self.name} severity {problem}" if problem else None
+
+    def format_severity(self, value: float) -> str:
+        """A severity as a fault spec writes it: ``47k`` ohms, ``0.3`` of it left, ``×3``."""
+        return format_si(value) if self.unit == "ohms" else f"{value:g}"
 
     def severity_words(self, severity: float, si: str) -> str:
         """The severity in words: ``(47kΩ)``, ``(30% left)``, ``(×3)``; ``si`` is it in SI."""
