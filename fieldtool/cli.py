@@ -12,6 +12,7 @@ import importlib
 import sys
 
 from fieldtool import __version__
+from fieldtool.core.circuit.safety import HAZARD_WARNING, SIGNAL_WORD
 from fieldtool.core.errors import FieldtoolError
 
 COMMAND_MODULES = (
@@ -35,11 +36,37 @@ class _Parser(argparse.ArgumentParser):
         return " ".join(parts[1:]) if len(parts) > 1 else ""
 
 
+DESCRIPTION = (
+    "Find the failed diode or capacitor on a voltage-multiplier board (DC-fed ladder, Dickson "
+    "charge pump, Cockcroft-Walton ladder), node by node, from what every node should read on "
+    "that board; keep safe around stored charge; keep each board's repair history."
+)
+EPILOG = f"""\
+where to start:
+  fieldtool demo                 practise on an invented board with a hidden fault
+  fieldtool                      the start screen: board type, serial and meter, then probe
+  fieldtool probe PROFILE --board SERIAL
+                                 straight to probing one board
+  fieldtool expect PROFILE       what every node of a board should read
+  fieldtool profiles             the board types (profiles) you can name
+
+Each command explains itself: fieldtool COMMAND --help.
+
+{SIGNAL_WORD}: {HAZARD_WARNING}"""
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The parser with every available subcommand registered."""
-    parser = _Parser(prog="fieldtool", description=__doc__.splitlines()[0])
+    parser = _Parser(
+        prog="fieldtool",
+        description=DESCRIPTION,
+        epilog=EPILOG,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
     parser.add_argument("--version", action="version", version=f"fieldtool {__version__}")
-    subparsers = parser.add_subparsers(dest="command", parser_class=_Parser)
+    subparsers = parser.add_subparsers(
+        dest="command", parser_class=_Parser, title="commands", metavar="COMMAND"
+    )
     for name in COMMAND_MODULES:
         try:
             module = importlib.import_module(name)

@@ -14,13 +14,12 @@ the colon is a catalogued failure mode, as in fault specs; a severity such as
 from __future__ import annotations
 
 import argparse
-import getpass
 import json
 import os
 from pathlib import Path
 
 from fieldtool import __version__
-from fieldtool.commands.boards import PROFILE_HELP, profile_arg
+from fieldtool.commands.boards import PROFILE_HELP, login_name, profile_arg
 from fieldtool.commands.history_text import safe
 from fieldtool.core.circuit.netlist import default_designators
 from fieldtool.core.circuit.profile import Profile
@@ -149,7 +148,7 @@ def run_record(args: argparse.Namespace) -> int:
     diagnosis = diagnose(dictionary, readings, priors=priors)
     top = diagnosis.suspects[:TOP_SUSPECTS]
     snapshot = Diagnosis(tuple(Suspect(s.component or "", s.mode, s.probability) for s in top))
-    technician = args.technician or _login()
+    technician = args.technician or login_name()
     opened = SessionOpened(
         technician=technician, profile_hash=profile.digest, tool_version=__version__
     )
@@ -199,10 +198,3 @@ def run_record(args: argparse.Namespace) -> int:
         lines.append(f"next node worth probing: {diagnosis.next_probe}")
     print("\n".join(lines))
     return 0
-
-
-def _login() -> str:
-    try:
-        return getpass.getuser()
-    except (KeyError, OSError):
-        return "unknown"

@@ -32,6 +32,8 @@ def file_name_problem(name: str) -> str | None:
         return "is empty"
     if name != name.strip():
         return "has a space at the start or end"
+    if "/" in name or "\\" in name:
+        return "contains a path separator"
     for char in name:
         if unicodedata.category(char)[0] == "C" or unicodedata.category(char) in ("Zl", "Zp"):
             return "contains a control character"

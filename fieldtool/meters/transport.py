@@ -6,9 +6,11 @@ import errno
 import termios
 import time
 from typing import Protocol
+from urllib.parse import urlsplit
 
 import serial
 
+from fieldtool.core.errors import shown
 from fieldtool.meters.errors import (
     MeterDisconnected,
     MeterTimeout,
@@ -107,6 +109,7 @@ def translate_open_error(name: str, exc: BaseException) -> Exception:
     """The MeterError that explains why ``name`` could not be opened."""
     code = getattr(exc, "errno", None)
     text = str(exc).lower()
+    name = name if len(name) <= 80 else shown(name)
     if code == errno.ENOENT or "no such file" in text or "filenotfound" in text:
         return PortMissing(
             f"{name} does not exist; plug the meter in or list ports with 'fieldtool ports'"
@@ -120,16 +123,53 @@ def translate_open_error(name: str, exc: BaseException) -> Exception:
     return MeterDisconnected(f"cannot use {name} ({exc})")
 
 
+# pyserial's URL handlers (serial.urlhandler.protocol_*) that make sense for a meter.
+URL_SCHEMES = ("socket", "rfc2217", "loop", "spy", "alt", "hwgrep", "cp2110")
+_NETWORK_SCHEMES = ("socket", "rfc2217")
+PORT_HELP = (
+    "give a device path such as /dev/ttyUSB0 (see 'fieldtool ports') or a URL such as "
+    "socket://HOST:PORT, rfc2217://HOST:PORT or loop://"
+)
+
+
+def port_problem(name: str) -> str | None:
+    """Why ``name`` cannot be a port to open, or None when it may be one (a device path that
+    does not exist is found out by opening it)."""
+    if not name.strip():
+        return "nothing given"
+    if len(name) > 4096 or any(ord(c) < 32 for c in name):
+        return "too long, or with control characters, for a device path or URL"
+    scheme, sep, rest = name.partition("://")
+    if not sep:
+        return None
+    if scheme.lower() not in URL_SCHEMES:
+        return f"{scheme}:// is not a kind of port address pyserial knows"
+    if scheme.lower() in _NETWORK_SCHEMES:
+        try:
+            parts = urlsplit(name)
+            port = parts.port
+        except ValueError:
+            port = None
+        if not parts.hostname or port is None or port == 0:
+            return f"it needs a host and a port number from 1 to 65535: {scheme}://HOST:PORT"
+    return None
+
+
 def open_port(name: str, baud: int = 9600, timeout: float = 2.0, terminator: bytes = b"\n"):
     """Open a device path or pyserial URL (``loop://``, ``socket://``, ``rfc2217://``)."""
+    problem = port_problem(name)
+    if problem:
+        raise PortMissing(f"port {shown(name)}: {problem}; {PORT_HELP}")
     try:
-        port = serial.serial_for_url(name, baudrate=baud, timeout=timeout, exclusive=True)
-    except ValueError:
-        # URL handlers such as loop:// do not know 'exclusive'
         try:
+            port = serial.serial_for_url(name, baudrate=baud, timeout=timeout, exclusive=True)
+        except ValueError:
+            # URL handlers such as loop:// do not know 'exclusive'
             port = serial.serial_for_url(name, baudrate=baud, timeout=timeout)
-        except (serial.SerialException, OSError) as exc:
-            raise translate_open_error(name, exc) from None
     except (serial.SerialException, OSError) as exc:
         raise translate_open_error(name, exc) from None
+    except (ValueError, KeyError):  # pyserial's URL option parsing (e.g. loop://?x=1)
+        raise PortMissing(
+            f"port {shown(name)}: URL options pyserial does not take; {PORT_HELP}"
+        ) from None
     return SerialTransport(port, terminator=terminator, name=name)

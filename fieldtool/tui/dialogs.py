@@ -12,7 +12,7 @@ from textual.screen import ModalScreen
 from textual.widgets import Button, DataTable, Input, Label, Select, Static
 
 from fieldtool.core.circuit.profile import Profile
-from fieldtool.core.circuit.safety import CAUTION, SafetyFigures, format_duration
+from fieldtool.core.circuit.safety import SafetyFigures, format_duration
 from fieldtool.core.diagnosis.faults import BOARD_TARGETS, modes_for, target_kind
 from fieldtool.core.errors import FieldtoolError
 from fieldtool.core.words import count
@@ -241,7 +241,7 @@ class SafetyDetails(ModalScreen[None]):
                 f"Safe level {f.safe_volts:g} V: {f.threshold_source}. Below it "
                 f"{format_duration(f.discharge_s)} after power-off through the load and "
                 "bleeder as the profile gives them: a lower bound, since a failed bleeder or an "
-                "open diode strands charge longer. " + CAUTION,
+                "open diode strands charge longer. " + f.warning,
                 classes="dialog-body",
             )
             with VerticalScroll():

@@ -7,7 +7,7 @@ from textual.binding import Binding
 from textual.screen import ModalScreen
 from textual.widgets import Footer, Label, Markdown
 
-from fieldtool.core.circuit.safety import CAUTION
+from fieldtool.core.circuit.safety import SAFETY_WARNING
 
 TYPED = """\
 **Typed readings.** Type a digit (or press **t**) to start; Enter takes the value into the
@@ -66,7 +66,7 @@ def help_text() -> str:
         key_table("Close the session", OutcomeDialog.BINDINGS),
         key_table("Unfinished session", ResumeDialog.BINDINGS),
         key_table("History and fleet", HistoryScreen.BINDINGS + FleetScreen.BINDINGS),
-        f"**Safety.** {CAUTION}",
+        f"**Safety.** {SAFETY_WARNING}",
     ]
     return "\n".join(parts)
 

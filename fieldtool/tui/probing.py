@@ -377,8 +377,9 @@ class ProbingScreen(Screen):
         tool = "; ".join(f"{w} ({p:.0%})" for w, p in self.session.at_repairs)
         ranked = f" The tool's top suspect when you repaired: {tool}." if tool else ""
         v = self.session.volts_by_node()
-        read = ", ".join(f"{n} {volts_text(x)} V" for n, x in v.items())
-        return (
-            f"The hidden fault was {hidden}. {verdict}{ranked} "
-            f"Readings after the last repair: {read or 'none'}."
-        )
+        read = ", ".join(f"{n} {volts_text(x)} V" for n, x in v.items()) or "none"
+        if self.session.actions:
+            after = f"Readings after the last repair: {read}."
+        else:
+            after = f"No repair was recorded. Readings: {read}."
+        return f"The hidden fault was {hidden}. {verdict}{ranked} {after}"

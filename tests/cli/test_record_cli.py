@@ -145,7 +145,7 @@ def test_action_phrases(profile, text, expected):
     [
         ("replaced it", "names no part on this board"),
         ("D3:open C2:short", "names more than one part"),
-        ("D3:exploded replaced", "has no mode 'exploded'"),
+        ("D3:exploded replaced", "has no fault mode 'exploded'"),
         ("D9:open replaced", "names no part"),
         ("D3: replaced", "nothing after ':'"),
         ("C2:lowcap replaced", "needs a severity"),

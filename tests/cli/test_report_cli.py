@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import json
 import re
 import sys
 
@@ -10,6 +11,7 @@ import pytest
 from fieldtool.cli import main
 from fieldtool.core import history as h
 from fieldtool.core.circuit.profile import load_profile
+from fieldtool.core.names import file_name_problem
 from fieldtool.core.report.content import expectations_for
 from tests.conftest import ROOT
 from tests.history.helpers import day
@@ -43,7 +45,15 @@ def _write_session(logs, serial, expected, when, outcome="fixed", note=HOSTILE_N
         h.Verification(node="OUT", volts=out.volts),
         h.SessionClosed(outcome=outcome),
     ]
-    h.append_many(logs, PROFILE, serial, events, time=when)
+    if file_name_problem(serial) is None:
+        h.append_many(logs, PROFILE, serial, events, time=when)
+        return opened.session_id
+    # A serial refused today (such as '<b>DL&1') as an older version would have stored it.
+    h.append_many(logs, PROFILE, "STAND-IN", events, time=when)
+    stand_in = logs / PROFILE / "STAND-IN.jsonl"
+    text = stand_in.read_text().replace('"board":"STAND-IN"', f'"board":{json.dumps(serial)}')
+    (logs / PROFILE / f"{serial}.jsonl").write_text(text)
+    stand_in.unlink()
     return opened.session_id
 
 
@@ -161,3 +171,16 @@ def test_report_bands_come_from_the_fault_dictionary(expected):
     assert [e.node for e in expected.nodes] == list(d.nodes)
     band = d.band("OUT")
     assert (expected.get("OUT").low, expected.get("OUT").high) == (band.low, band.high)
+
+
+def test_report_into_a_read_only_folder_is_one_line_and_leaves_nothing(
+    tmp_path, capsys, expected, read_only_dir
+):
+    logs = tmp_path / "logs"
+    _write_session(logs, "DL-2", expected, day(0))
+    shelf = read_only_dir(tmp_path / "shelf")
+    for name in ("r.html", "r.md"):
+        code, out, err = _report(capsys, "DL-2", "--logs", str(logs), "--out", str(shelf / name))
+        assert code == 2 and out == "" and err.count("\n") == 1
+        assert "read-only" in err and "Traceback" not in err
+    assert list(shelf.iterdir()) == []

@@ -36,7 +36,7 @@ from fieldtool.core.history.events import (
     SessionOpened,
     event_fields,
 )
-from fieldtool.core.history.files import append_lines, fsync_dir, locked_file
+from fieldtool.core.history.files import append_lines, fsync_dir, locked_file, remove_if_empty
 from fieldtool.core.history.records import (
     SCHEMA,
     BoardHistory,
@@ -151,7 +151,12 @@ def _store(path: Path, records: list[Record]) -> None:
     try:
         with locked_file(path) as fd:
             new_file = os.fstat(fd).st_size == 0
-            append_lines(fd, lines)
+            try:
+                append_lines(fd, lines)
+            except OSError:
+                if new_file:
+                    remove_if_empty(path, fd)  # no empty board file left behind a failure
+                raise
             if new_file:
                 fsync_dir(path.parent)
     except OSError as exc:
@@ -237,8 +242,8 @@ def board_files(logs_dir: Path | str, serial: str) -> list[Path]:
         for entry in entries:
             if entry.is_dir() and not entry.name.startswith("."):
                 candidate = Path(entry.path) / name
-                if candidate.is_file():
-                    found.append(candidate)
+                if candidate.is_file() and candidate.stat().st_size > 0:
+                    found.append(candidate)  # an empty file (an old failed write) is no history
     return sorted(found)
 
 

@@ -9,11 +9,13 @@ used with the meter's accuracy alone as the band, and the report says so.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
 
 from fieldtool.core.circuit.profile import Profile
+from fieldtool.core.circuit.safety import SIGNAL_WORD, signal_word
 from fieldtool.core.diagnosis.dictionary_cache import load_or_build
 from fieldtool.core.history import BoardHistory, HistoryError, Record, now_utc
 from fieldtool.core.history.sessions import ConfirmedFailure, Session, confirmed_in
@@ -95,6 +97,7 @@ class Report:
     sessions: tuple[SessionPart, ...]
     damaged: int
     cautions: tuple[str, ...] = CAUTIONS
+    signal_word: str = SIGNAL_WORD  # heads the cautions: WARNING, or CAUTION on a low board
 
 
 def expectations_for(profile: Profile) -> Expectations:
@@ -192,14 +195,29 @@ def build_report(
     expectations: Expectations | None,
     expectations_note: str = "",
     digest: str = "",
+    safe_volts: float | None = None,
 ) -> Report:
-    """The report for the chosen sessions of one board."""
+    """The report for the chosen sessions of one board.
+
+    ``safe_volts`` (the profile's safe level) lets the cautions say CAUTION instead of
+    WARNING for a board whose every node, expected and read, is below it.
+    """
+    parts = tuple(_part(s, expectations, digest) for s in sessions)
+    word = SIGNAL_WORD
+    if safe_volts is not None and expectations is not None:
+        volts = [abs(v) for e in expectations.nodes for v in (e.volts, e.low, e.high)]
+        rows = [r for p in parts for r in (*p.readings, *p.verifications)]
+        if any(r.volts is None for r in rows):
+            volts.append(math.inf)  # over the meter's range: at least as high as it shows
+        volts += [abs(r.volts) for r in rows if r.volts is not None]
+        word = signal_word(max(volts, default=None), safe_volts)
     return Report(
         board=history.board,
         profile=profile_name,
         generated=now_utc(),
         expectations=expectations,
         expectations_note=expectations_note or (expectations.source if expectations else ""),
-        sessions=tuple(_part(s, expectations, digest) for s in sessions),
+        sessions=parts,
         damaged=len(history.damaged),
+        signal_word=word,
     )
