@@ -55,8 +55,10 @@ def volts_text(volts: float | None, digits: int = 4) -> str:
         return "—"
     if volts == 0:
         return "0"
+    if abs(volts) >= 1e6:  # far beyond any node: short, never a 300-digit field
+        return f"{volts:.{digits - 1}e}"
     magnitude = int(math.floor(math.log10(abs(volts))))
-    decimals = max(0, digits - 1 - magnitude)
+    decimals = min(max(0, digits - 1 - magnitude), 4)  # 0.1 mV: below any meter's resolution
     return f"{volts:.{decimals}f}"
 
 

@@ -35,7 +35,16 @@ def test_deviation_words():
 
 @pytest.mark.parametrize(
     ("volts", "text"),
-    [(125.81, "125.8"), (0.33012, "0.3301"), (-56.93, "-56.93"), (0.0, "0"), (None, "OL")],
+    [
+        (125.81, "125.8"),
+        (0.33012, "0.3301"),
+        (-56.93, "-56.93"),
+        (0.0, "0"),
+        (None, "OL"),
+        (2.904e-5, "0.0000"),  # no more decimals than a meter shows
+        (1e300, "1.000e+300"),  # an absurd value stays short
+        (-2.5e7, "-2.500e+07"),
+    ],
 )
 def test_volts_text(volts, text):
     assert volts_text(volts) == text

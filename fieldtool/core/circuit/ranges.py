@@ -110,7 +110,7 @@ LOAD_OHMS = Range(
     1.0,
     1e15,
     "Ω",
-    "below 1 Ω the output is shorted; above 1 PΩ there is no load: omit it with amps = 0",
+    "below 1 Ω the output is shorted; above 1 PΩ there is no load: write amps = 0 instead",
 )
 LOAD_AMPS = Range(
     0.0, 10.0, "A", "a diode–capacitor multiplier is a low-current supply (common practice)"

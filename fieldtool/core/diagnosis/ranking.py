@@ -132,7 +132,13 @@ def _columns(d: FaultDictionary, readings: Sequence[NodeReading]):
         seen.add(r.node)
         j = d.node_index(r.node)
         if r.volts is None:
-            ignored.append(f"{r.node}: OL (over range) carries no value; set a higher range")
+            if d.profile.meter_range_volts is None:
+                ignored.append(
+                    f"{r.node}: OL (over range) tells nothing without the meter's range: add "
+                    "[meter] range_volts to the profile, or read it on a higher range"
+                )
+            else:
+                cols.append(j)  # read, as beyond the range: see _overload_loglik
             continue
         cols.append(j)
         names.append(r.node)
@@ -149,6 +155,33 @@ def _columns(d: FaultDictionary, readings: Sequence[NodeReading]):
         R = len(d.mean)
         return cols, np.zeros(0), np.zeros((R, 0)), np.ones((R, 0)), names, ignored
     return cols, np.array(ys), np.stack(mus, 1), np.stack(sds, 1), names, ignored
+
+
+def _overload_loglik(
+    d: FaultDictionary, readings: Sequence[NodeReading]
+) -> tuple[np.ndarray, list[str]]:
+    """Per row: log P(|V| > range) summed over the OL readings, and the OL nodes no row can
+    explain. An over-range reading is a censored one: it says the node is beyond the meter's
+    range, which rules out every hypothesis that keeps the node inside it."""
+    total = np.zeros(len(d.mean))
+    unexplained: list[str] = []
+    limit = d.profile.meter_range_volts
+    if limit is None:
+        return total, unexplained
+    for r in readings:
+        if r.volts is not None or r.node not in d.nodes:
+            continue
+        j = d.node_index(r.node)
+        mu = d.mean[:, j]
+        sd = np.sqrt(d.sigma[:, j] ** 2 + d.meter_sigma(limit) ** 2) * math.sqrt(2.0)
+        p = 0.5 * (_erfc((limit - mu) / sd) + _erfc((limit + mu) / sd))
+        if p.max() < NO_FIT_P:
+            unexplained.append(r.node)
+        total += np.log(np.maximum(p, 1e-300))
+    return total, unexplained
+
+
+_erfc = np.vectorize(math.erfc, otypes=[float])
 
 
 def _row_loglik(y: np.ndarray, mu: np.ndarray, sd: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -191,6 +224,8 @@ def diagnose(
     priors = priors or published_priors(profile, d.hypotheses)
     cols, y, mu, sd, names, ignored = _columns(d, readings)
     loglik, z = _row_loglik(y, mu, sd)
+    over, unexplained = _overload_loglik(d, readings)
+    loglik = loglik + over
     _, counts = _hyp_slices(d)
     log_prior_row = np.log(priors.probability[d.row_hypothesis]) - np.log(counts[d.row_hypothesis])
     log_row = log_prior_row + loglik
@@ -212,6 +247,15 @@ def diagnose(
             next_probe, gain = node, gains[node]
     ambiguity = _ambiguity(d, post, order, best_row, row_w, mu, sd, set(cols))
     fit = _fit(d, loglik, z, names, suspects)
+    if unexplained and not fit.no_fit:
+        fit = Fit(
+            0.0,
+            True,
+            unexplained[0],
+            f"{unexplained[0]} reads OL but no hypothesis puts it beyond the meter's "
+            f"{d.profile.meter_range_volts:g} V range: check the range the meter was on, the "
+            "probe, and [meter] range_volts in the profile",
+        )
     return Diagnosis(suspects, next_probe, gain, ambiguity, fit, gains, tuple(ignored))
 
 
