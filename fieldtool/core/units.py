@@ -26,11 +26,12 @@ def parse_si(text: str) -> float:
     return value
 
 
-def format_si(value: float) -> str:
-    """A compact SI spelling that ``parse_si`` reads back: 47000 → ``47k``."""
+def format_si(value: float, digits: int = 4) -> str:
+    """A compact SI spelling that ``parse_si`` reads back: 47000 → ``47k``; ``digits``
+    significant figures at most."""
     if value == 0 or not math.isfinite(value):
         return f"{value:g}"
     for scale, prefix in ((1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m")):
         if abs(value) >= scale:
-            return f"{value / scale:.4g}{prefix}"
-    return f"{value:.3g}"
+            return f"{value / scale:.{digits}g}{prefix}"
+    return f"{value:.{max(digits - 1, 1)}g}"

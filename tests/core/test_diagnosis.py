@@ -15,6 +15,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from fieldtool.core.circuit.expect import expect
+from fieldtool.core.circuit.reading_range import node_volts_range
 from fieldtool.core.diagnosis import ranking as dg
 from fieldtool.core.diagnosis.dictionary import build
 from fieldtool.core.diagnosis.faults import parse_fault
@@ -178,3 +179,28 @@ def test_json_shape(d):
 )
 def test_chi2_tail_against_tables(x, k, expected):
     assert chi2_sf(x, k) == pytest.approx(expected, rel=2e-3)
+
+
+@settings(max_examples=60, deadline=None)
+@given(
+    st.lists(
+        st.tuples(
+            st.integers(0, 6),
+            st.floats(allow_nan=True, allow_infinity=True) | st.sampled_from([1e300, -1e300]),
+        ),
+        min_size=1,
+        max_size=4,
+        unique_by=lambda t: t[0],
+    )
+)
+def test_any_reading_ranks_or_is_flagged_never_crashes(picks):
+    """A reading an older version stored, or a readings file holds (1e300, nan), is either used
+    or left out and flagged as a wrong range, unit or node; the posterior stays a distribution."""
+    d = _dictionary()
+    readings = [NodeReading(d.nodes[i], v) for i, v in picks]
+    result = diagnose(d, readings)
+    probabilities = np.array([s.probability for s in result.suspects])
+    assert np.isfinite(probabilities).all() and abs(probabilities.sum() - 1) < 1e-9
+    plausible = node_volts_range(PROFILE)
+    if any(not plausible.contains(v) for _, v in picks):
+        assert result.fit.no_fit and "wrong range, unit or node?" in result.fit.text

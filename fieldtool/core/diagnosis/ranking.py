@@ -22,11 +22,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from fieldtool.core.circuit.reading_range import node_volts_range
 from fieldtool.core.circuit.spec import display_name
 from fieldtool.core.diagnosis.dictionary import RIPPLE_SHARE, FaultDictionary
 from fieldtool.core.diagnosis.faults import Fault, describe
 from fieldtool.core.diagnosis.priors import Priors, published_priors
 from fieldtool.core.errors import InputError
+from fieldtool.core.plausible import Range
 from fieldtool.core.readings import NodeReading
 
 CONFIDENT = 0.9  # stop suggesting probes once the top hypothesis passes this
@@ -123,7 +125,9 @@ class Diagnosis:
 def _columns(d: FaultDictionary, readings: Sequence[NodeReading]):
     """Measured columns, values, predicted means and spreads (rows × readings)."""
     cols, ys, mus, sds, names, ignored = [], [], [], [], [], []
+    wrong: list[tuple[str, str]] = []  # (node, note) of readings no node could show
     seen = set()
+    plausible = node_volts_range(d.profile)
     for r in readings:
         if r.node not in d.nodes:
             raise InputError(f"node {r.node!r} is not on {d.profile.name} ({', '.join(d.nodes)})")
@@ -140,21 +144,35 @@ def _columns(d: FaultDictionary, readings: Sequence[NodeReading]):
             else:
                 cols.append(j)  # read, as beyond the range: see _overload_loglik
             continue
+        if not plausible.contains(r.volts):
+            wrong.append((r.node, _implausible(r.node, r.volts, plausible)))
+            continue
         cols.append(j)
         names.append(r.node)
         ys.append(r.volts)
         mus.append(d.mean[:, j])
         sds.append(np.sqrt(d.sigma[:, j] ** 2 + d.meter_sigma(r.volts) ** 2))
-        if r.ripple_vpp is not None:
+        if r.ripple_vpp is not None and not plausible.contains(r.ripple_vpp / 2):
+            wrong.append((r.node, _implausible(f"{r.node} ripple", r.ripple_vpp, plausible)))
+        elif r.ripple_vpp is not None:
             names.append(f"{r.node} ripple")
             ys.append(r.ripple_vpp)
             rip = d.ripple[:, j]
             mus.append(rip)
             sds.append(RIPPLE_SHARE * rip + RIPPLE_FLOOR_V + 0.02 * abs(r.ripple_vpp))
+    ignored += [note for _, note in wrong]
     if not ys:
         R = len(d.mean)
-        return cols, np.zeros(0), np.zeros((R, 0)), np.ones((R, 0)), names, ignored
-    return cols, np.array(ys), np.stack(mus, 1), np.stack(sds, 1), names, ignored
+        return cols, np.zeros(0), np.zeros((R, 0)), np.ones((R, 0)), names, ignored, wrong
+    return cols, np.array(ys), np.stack(mus, 1), np.stack(sds, 1), names, ignored, wrong
+
+
+def _implausible(what: str, volts: float, plausible: Range) -> str:
+    """The note on a reading left out because no node of the board could show it."""
+    return (
+        f"{what}: {volts:g} V is left out: it is {plausible.why} (this board's nodes stay "
+        f"within {plausible.text()})"
+    )
 
 
 def _overload_loglik(
@@ -222,7 +240,7 @@ def diagnose(
     """Rank every hypothesis from the readings taken; suggest the next node to probe."""
     profile = d.profile
     priors = priors or published_priors(profile, d.hypotheses)
-    cols, y, mu, sd, names, ignored = _columns(d, readings)
+    cols, y, mu, sd, names, ignored, wrong = _columns(d, readings)
     loglik, z = _row_loglik(y, mu, sd)
     over, unexplained = _overload_loglik(d, readings)
     loglik = loglik + over
@@ -247,7 +265,9 @@ def diagnose(
             next_probe, gain = node, gains[node]
     ambiguity = _ambiguity(d, post, order, best_row, row_w, mu, sd, set(cols))
     fit = _fit(d, loglik, z, names, suspects)
-    if unexplained and not fit.no_fit:
+    if wrong:
+        fit = Fit(0.0, True, wrong[0][0], f"wrong range, unit or node? {wrong[0][1]}")
+    elif unexplained and not fit.no_fit:
         fit = Fit(
             0.0,
             True,

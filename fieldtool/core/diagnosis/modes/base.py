@@ -28,10 +28,11 @@ IDEAL_DIODE_DROP = 0.6  # V, for scaling grids only (common practice, no source)
 
 _EXAMPLES = {"ohms": "47k", "fraction": "0.3", "factor": "3"}
 
-# The plausible severity of each kind (see ``fieldtool.core.plausible``). A leak below the ohm
-# a short is modelled as is a short (write the mode short); a series resistance above the
-# terohm an open diode is modelled as is an open part; 0.1 % of a capacitance, the drive or the
-# supply left is gone; a load a thousand times its rating is a short across the output.
+# The plausible severity of each kind (see ``fieldtool.core.plausible``). A leak below 1 Ω
+# (what a shorted part is modelled as) is a short: write the mode short. A series resistance
+# above 1 TΩ (what an open diode is modelled as) is an open part. With less than 0.1 % of a
+# capacitance, the drive or the supply left, it is gone. A load a thousand times its rating is
+# a short across the output.
 SEVERITY_RANGES = {
     "ohms": Range(1e-3, 1e12, "Ω", "above 1 TΩ in series a part is open: write the mode open"),
     "fraction": Range(
@@ -108,8 +109,9 @@ class FaultMode(ABC):
         return f"{self.name} severity {problem}" if problem else None
 
     def format_severity(self, value: float) -> str:
-        """A severity as a fault spec writes it: ``47k`` ohms, ``0.3`` of it left, ``×3``."""
-        return format_si(value) if self.unit == "ohms" else f"{value:g}"
+        """A severity as a fault spec writes it, to six figures: ``47k`` ohms, ``0.3`` of it
+        left, a factor ``3``."""
+        return format_si(value, digits=6) if self.unit == "ohms" else f"{value:g}"
 
     def severity_words(self, severity: float, si: str) -> str:
         """The severity in words: ``(47kΩ)``, ``(30% left)``, ``(×3)``; ``si`` is it in SI."""

@@ -1,0 +1,34 @@
+"""How far any node of a board could read: the plausible range of a reading on that board.
+
+A value beyond it (``1e300``, or 12 900 typed for 12.9) is not a reading of this board but a
+wrong range, unit or node, and it is refused or flagged as such rather than handed to the
+diagnosis, where it would only overflow.
+"""
+
+from __future__ import annotations
+
+from fieldtool.core.circuit.spec import Profile
+from fieldtool.core.circuit.topologies import topology_of
+from fieldtool.core.plausible import Range
+
+MARGIN = 2.0  # twice the ideal bound: room for every fault and meter error (no source)
+
+
+def node_volts_range(profile: Profile) -> Range:
+    """The readings any node of this board could show, healthy or with any single fault.
+
+    No node of a multiplier exceeds what the ideal one with lossless diodes makes at its
+    output, plus the drive's swing on a pump node and the supply; twice that leaves room for
+    every fault and meter error.
+    """
+    ideal = abs(topology_of(profile).ideal_output_volts(profile, 0.0))
+    bound = ideal + abs(profile.drive_volts) + abs(profile.drive_low_volts)
+    bound += abs(profile.supply_volts)
+    limit = max(MARGIN * bound, 1.0)
+    return Range(
+        -limit,
+        limit,
+        "V",
+        "beyond what any node of this board can show: check the meter's range and unit, and "
+        "that the probe is on this board",
+    )
