@@ -23,6 +23,7 @@ from fieldtool.commands.boards import PROFILE_HELP, login_name, profile_arg
 from fieldtool.commands.history_text import safe
 from fieldtool.core.circuit.netlist import default_designators
 from fieldtool.core.circuit.profile import Profile
+from fieldtool.core.circuit.reading_range import node_volts_range
 from fieldtool.core.circuit.spec import display_name
 from fieldtool.core.diagnosis.dictionary_cache import load_or_build
 from fieldtool.core.diagnosis.faults import BOARD_TARGETS, parse_fault
@@ -127,6 +128,18 @@ def _measurements(cls, readings: tuple[NodeReading, ...], source: str) -> list[R
     ]
 
 
+def _refuse_implausible(profile: Profile, path: str, readings) -> None:
+    """Nothing a history will hold for good may be a value no node of the board could show."""
+    plausible = node_volts_range(profile)
+    for r in readings:
+        for what, volts in ((r.node, r.volts), (f"{r.node} ripple_vpp", r.ripple_vpp)):
+            if volts is not None and not plausible.contains(volts):
+                raise InputError(
+                    f"{path}: {what} {volts:g} V is {plausible.why} (this board's nodes stay "
+                    f"within {plausible.text()}); nothing was saved"
+                )
+
+
 def run_record(args: argparse.Namespace) -> int:
     """Handle ``fieldtool record``."""
     profile = profile_arg(args.profile)
@@ -143,6 +156,8 @@ def run_record(args: argparse.Namespace) -> int:
     dictionary = load_or_build(profile)
     readings = load_readings(args.readings, dictionary.nodes, profile.labels)
     after = load_readings(args.verify, dictionary.nodes, profile.labels) if args.verify else ()
+    _refuse_implausible(profile, args.readings, readings)
+    _refuse_implausible(profile, args.verify, after)
     confirmed = confirmed_failures(logs, profile.name) if logs.is_dir() else {}
     priors = fleet_priors(profile, dictionary.hypotheses, confirmed) if confirmed else None
     diagnosis = diagnose(dictionary, readings, priors=priors)

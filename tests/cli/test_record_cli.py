@@ -178,6 +178,9 @@ def test_renamed_designators_are_stored_as_the_board_shows_them(tmp_path, capsys
         (["--board", "DL-1", "--readings", "{missing}"], "readings file not found"),
         (["--board", "DL-1", "--readings", "{bad}"], "is not on this board"),
         (["--board", "DL-1", "--logs", "{file}"], "is not a folder"),
+        (["--board", "DL-1", "--readings", "{huge}"], "S0 1e+300 V is beyond what any node"),
+        (["--board", "DL:1"], "contains ':'"),
+        (["--board", "NUL"], "a name Windows reserves for a device"),
     ],
 )
 def test_record_errors_write_nothing(tmp_path, capsys, d3_open_csv, extra, words):
@@ -186,7 +189,9 @@ def test_record_errors_write_nothing(tmp_path, capsys, d3_open_csv, extra, words
     bad.write_text("node,volts\nS0,3.3\nZ9,1.0\n")
     file = tmp_path / "plain-file"
     file.write_text("x")
-    names = {"missing": tmp_path / "none.csv", "bad": bad, "file": file}
+    huge = tmp_path / "huge.csv"
+    huge.write_text("node,volts\nS0,1e300\nOUT,14.2\n")
+    names = {"missing": tmp_path / "none.csv", "bad": bad, "file": file, "huge": huge}
     argv = [e.format(**names) for e in extra]
     if "--readings" not in argv:
         argv += ["--readings", str(d3_open_csv)]
