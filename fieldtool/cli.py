@@ -36,11 +36,11 @@ class _Parser(argparse.ArgumentParser):
         return " ".join(parts[1:]) if len(parts) > 1 else ""
 
 
-DESCRIPTION = (
-    "Find the failed diode or capacitor on a voltage-multiplier board (DC-fed ladder, Dickson "
-    "charge pump, Cockcroft-Walton ladder), node by node, from what every node should read on "
-    "that board; keep safe around stored charge; keep each board's repair history."
-)
+DESCRIPTION = """\
+Find the failed diode or capacitor on a voltage-multiplier board (DC-fed ladder,
+Dickson charge pump, Cockcroft-Walton ladder), node by node, from what every node
+should read on that board; keep safe around stored charge; keep each board's
+repair history."""
 EPILOG = f"""\
 where to start:
   fieldtool demo                 practise on an invented board with a hidden fault
