@@ -37,7 +37,7 @@ from fieldtool.core.diagnosis import dictionary  # noqa: E402
 from fieldtool.core.diagnosis.dictionary_cache import cache_path, load_or_build, save  # noqa: E402
 from fieldtool.core.diagnosis.faults import parse_fault  # noqa: E402
 from fieldtool.core.diagnosis.ranking import diagnose  # noqa: E402
-from fieldtool.core.readings import NodeReading  # noqa: E402
+from fieldtool.core.measurement import DC, TYPED, Measurement  # noqa: E402
 
 FAULTS = ("D7:open", "D12:short", "C9:open", "C14:short", "C6:lowcap=0.2", "drive:low=0.75")
 CACHE_LOADS = 20
@@ -93,10 +93,10 @@ def per_reading_times(d, profile) -> list[float]:
     for spec in FAULTS:
         e = expect(profile, fault=parse_fault(spec, profile))
         truth = {n.node: n.volts for n in e.nodes}
-        readings: list[NodeReading] = []
+        readings: list[Measurement] = []
         result = diagnose(d, readings)
         while result.next_probe is not None:
-            readings.append(NodeReading(result.next_probe, truth[result.next_probe]))
+            readings.append(Measurement(result.next_probe, DC, truth[result.next_probe], TYPED))
             t0 = time.perf_counter()
             result = diagnose(d, readings)
             times.append(time.perf_counter() - t0)

@@ -1,7 +1,8 @@
 """Command-line entry point: non-interactive subcommands, each a thin shell over core.
 
 Each subcommand lives in a module of ``fieldtool.commands`` exposing ``register(subparsers)``;
-the handler it sets returns an exit code. Every ``FieldtoolError`` becomes one line on
+the handler it sets returns an exit code (``fieldtool`` alone runs the start screen's, which
+``commands.tui`` sets as the default). Every ``FieldtoolError`` becomes one line on
 stderr and exit code 2, so no traceback reaches a user.
 """
 
@@ -68,29 +69,15 @@ def build_parser() -> argparse.ArgumentParser:
         dest="command", parser_class=_Parser, title="commands", metavar="COMMAND"
     )
     for name in COMMAND_MODULES:
-        try:
-            module = importlib.import_module(name)
-        except ModuleNotFoundError as exc:
-            if exc.name == name:
-                continue  # that feature is not built yet
-            raise
-        module.register(subparsers)
+        importlib.import_module(name).register(subparsers)  # each one always exists
     return parser
 
 
 def main(argv: list[str] | None = None) -> int:
     """Run one subcommand; return its exit code."""
-    parser = build_parser()
-    args = parser.parse_args(argv)
-    handler = getattr(args, "handler", None)
-    if handler is None:
-        default = getattr(parser, "_default_handler", None)
-        if default is None:
-            parser.print_help()
-            return 0
-        handler = default
+    args = build_parser().parse_args(argv)
     try:
-        return int(handler(args) or 0)
+        return int(args.handler(args) or 0)
     except FieldtoolError as exc:
         print(f"fieldtool: {exc.title.lower()}: {exc.message}", file=sys.stderr)
         return 2

@@ -23,11 +23,12 @@ from fieldtool.core.diagnosis.calibrate import calibrate
 from fieldtool.core.diagnosis.dictionary import FaultDictionary
 from fieldtool.core.diagnosis.dictionary_cache import default_cache_dir, load_or_build
 from fieldtool.core.diagnosis.faults import describe, parse_fault
-from fieldtool.core.diagnosis.priors import Priors, fleet_priors, published_priors
+from fieldtool.core.diagnosis.priors import Priors
 from fieldtool.core.diagnosis.ranking import Diagnosis, diagnose
 from fieldtool.core.errors import InputError, ProfileError
-from fieldtool.core.history.fleet import confirmed_failures
+from fieldtool.core.measurement import DC
 from fieldtool.core.readings import load_readings
+from fieldtool.core.session import choose_priors, history_failures
 
 FAULT_HELP = (
     "TARGET:MODE[=SEVERITY], e.g. D5:open, C4:short, C3:lowcap=0.3 (fraction left), "
@@ -125,12 +126,10 @@ def dictionary_for(profile: Profile, cache: str | None) -> FaultDictionary:
 
 
 def priors_for(profile: Profile, d: FaultDictionary, logs: str | None) -> Priors:
-    """Fleet priors from a history folder, or the published ones."""
-    if not logs:
-        return published_priors(profile, d.hypotheses)
-    if not Path(logs).is_dir():
+    """Fleet priors from the ``--logs`` history folder, or the published ones without it."""
+    if logs and not Path(logs).is_dir():
         raise InputError(f"--logs {logs}: no such folder")
-    return fleet_priors(profile, d.hypotheses, confirmed_failures(logs, profile.name))
+    return choose_priors(profile, d.hypotheses, history_failures(logs) if logs else None)
 
 
 def run_diagnose(args: argparse.Namespace) -> int:
@@ -148,17 +147,18 @@ def run_diagnose(args: argparse.Namespace) -> int:
 
 def diagnosis_text(d: FaultDictionary, readings, result: Diagnosis) -> str:
     """Readings against the healthy bands, the ranked suspects and the advice."""
-    lines = [f"{d.profile.name}: {len(readings)} reading(s)", ""]
+    dc = [r for r in readings if r.quantity == DC]
+    lines = [f"{d.profile.name}: {len(dc)} reading(s)", ""]
     lines.append(f"{'node':<6}{'test pt':<9}{'read':>10}{'healthy band':>24}  verdict")
-    for r in readings:
-        band = d.band(r.node)
-        label = d.labels.get(r.node, "")
-        if r.volts is None:
-            lines.append(f"{r.node:<6}{label:<9}{'OL':>10}{'':>24}  over range")
+    for r in dc:
+        band = d.band(r.at)
+        label = d.labels.get(r.at, "")
+        if r.value is None:
+            lines.append(f"{r.at:<6}{label:<9}{'OL':>10}{'':>24}  over range")
             continue
-        verdict = "in band" if band.contains(r.volts) else ("LOW" if r.volts < band.low else "HIGH")
+        verdict = "in band" if band.contains(r.value) else ("LOW" if r.value < band.low else "HIGH")
         span = f"{band.low:.2f} … {band.high:.2f} V"
-        lines.append(f"{r.node:<6}{label:<9}{r.volts:>8.3f} V{span:>24}  {verdict}")
+        lines.append(f"{r.at:<6}{label:<9}{r.value:>8.3f} V{span:>24}  {verdict}")
     lines += ["", "most likely:"]
     for s in result.suspects[:8]:
         bar = "#" * round(s.probability * 20)

@@ -32,9 +32,10 @@ import pytest
 from fieldtool.core.circuit.netlist import build_circuit
 from fieldtool.core.diagnosis.dictionary_cache import load_or_build
 from fieldtool.core.diagnosis.ranking import diagnose
-from fieldtool.core.readings import NodeReading
+from fieldtool.core.measurement import Measurement
 from tests.conftest import make_profile, needs_ngspice
 from tests.ngspice_probe import SpiceFault, metered_reading
+from tests.readings import dc
 
 MAX_PROBES = 8
 SMALL = dict(
@@ -92,18 +93,18 @@ def test_guided_probing_finds_the_ngspice_fault(board, ref, mode, left, dictiona
     d = dictionaries[board]
     circuit, params = build_circuit(profile)
     fault = SpiceFault(ref, mode, left)
-    readings: list[NodeReading] = []
+    readings: list[Measurement] = []
     result = diagnose(d, readings)
     while result.next_probe is not None and len(readings) < MAX_PROBES:
         node = result.next_probe
-        assert node not in {r.node for r in readings}, f"{node} suggested twice"
+        assert node not in {r.at for r in readings}, f"{node} suggested twice"
         got = metered_reading(circuit, params, node, profile.meter_ohms, tmp_path, fault)
-        readings.append(NodeReading(node, got.volts))
+        readings.append(dc(node, got.volts))
         result = diagnose(d, readings)
 
     injected = f"{ref}:{mode}"
     top = result.top.key
-    trail = ", ".join(f"{r.node}={r.volts:.3f} V" for r in readings)
+    trail = ", ".join(f"{r.at}={r.value:.3f} V" for r in readings)
     ranked = ", ".join(f"{s.key} {s.probability:.2f}" for s in result.suspects[:4])
     where = f"readings {trail}; ranked {ranked}; groups {[a.members for a in result.ambiguity]}"
     assert readings, "the diagnosis asked for no reading at all"

@@ -32,7 +32,7 @@ from fieldtool.core.errors import SolverError
 
 
 @dataclass(frozen=True)
-class NodeReading:
+class NodeExpectation:
     """Expected reading at one node."""
 
     node: str
@@ -54,7 +54,7 @@ class Expectation:
     """The board's expected readings and figures at one operating point."""
 
     profile: Profile
-    nodes: tuple[NodeReading, ...]
+    nodes: tuple[NodeExpectation, ...]
     output_node: str
     output_volts: float
     output_ripple_vpp: float
@@ -73,14 +73,14 @@ class Expectation:
     residual_volts: float
     shooting_iterations: int
 
-    def node(self, name: str) -> NodeReading:
+    def node(self, name: str) -> NodeExpectation:
         """Expected reading at a node by name."""
         for n in self.nodes:
             if n.node == name:
                 return n
         raise KeyError(name)
 
-    def loading_matters(self, node: NodeReading) -> bool:
+    def loading_matters(self, node: NodeExpectation) -> bool:
         """True where the meter moves the reading by more than its own accuracy."""
         p = self.profile
         accuracy = abs(node.volts) * p.meter_percent / 100 + p.meter_volts
@@ -157,7 +157,7 @@ def expect(profile: Profile, steps: int = 80, fault: Change | None = None) -> Ex
     for j, i in enumerate(idx):
         wave = per.v[0, :, i]
         nodes.append(
-            NodeReading(
+            NodeExpectation(
                 node=circuit.node_names[i],
                 label=circuit.labels.get(circuit.node_names[i], ""),
                 volts=float(avg[2 + j, i]),

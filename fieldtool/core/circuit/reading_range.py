@@ -9,6 +9,7 @@ from __future__ import annotations
 
 from fieldtool.core.circuit.spec import Profile
 from fieldtool.core.circuit.topologies import topology_of
+from fieldtool.core.measurement import Measurement
 from fieldtool.core.plausible import Range
 
 MARGIN = 2.0  # twice the ideal bound: room for every fault and meter error (no source)
@@ -31,4 +32,21 @@ def node_volts_range(profile: Profile) -> Range:
         "V",
         "beyond what any node of this board can show: check the meter's range and unit, and "
         "that the probe is on this board",
+    )
+
+
+def reading_problem(profile: Profile, m: Measurement) -> str | None:
+    """Why a reading cannot have come from this board, or None when it can (an overload can).
+
+    A peak-to-peak ripple spans both ways, so half of it must lie within the range.
+    """
+    if m.value is None:
+        return None
+    plausible = node_volts_range(profile)
+    value = m.value / 2 if m.quantity.name == "ripple-pp" else m.value
+    if plausible.contains(value):
+        return None
+    return (
+        f"{m.at} {m.quantity.words} {m.value:g} {m.unit} is {plausible.why} (this board's "
+        f"nodes stay within {plausible.text()})"
     )

@@ -47,7 +47,6 @@ LOW_VOLTAGE_HAZARD = (
     "before touching. Estimates only: local codes and licensed practice come first."
 )
 SAFETY_WARNING = f"{SIGNAL_WORD}: {HAZARD_WARNING}"
-CAUTION = SAFETY_WARNING  # the name the start and loading screens still import
 
 
 def signal_word(highest_volts: float | None, safe_volts: float) -> str:

@@ -23,8 +23,8 @@ from fieldtool.core.circuit.response import linear_response
 from fieldtool.core.circuit.solver import steady_state
 from fieldtool.core.circuit.topologies import topology_of
 from fieldtool.core.errors import InputError, SolverError
+from fieldtool.core.measurement import DC, Measurement
 from fieldtool.core.plausible import Range, quantity
-from fieldtool.core.readings import NodeReading
 
 MAX_ITERATIONS = 12
 BACKTRACK_STEPS = 6
@@ -104,7 +104,7 @@ def _predict(profile: Profile, nodes: list[int]) -> tuple[np.ndarray, np.ndarray
     return v, jac[nodes]
 
 
-def calibrate(profile: Profile, readings: Sequence[NodeReading]) -> Calibration:
+def calibrate(profile: Profile, readings: Sequence[Measurement]) -> Calibration:
     """Least-squares fit of drive swing, diode drop (and supply) to a known-good board.
 
     Gauss–Newton with a rank-revealing step: directions of the parameter space that the
@@ -118,13 +118,13 @@ def calibrate(profile: Profile, readings: Sequence[NodeReading]) -> Calibration:
     """
     circuit, _ = build_circuit(profile)
     names = [circuit.name(i) for i in circuit.probe_nodes]
-    used = [r for r in readings if r.volts is not None]
+    used = [r for r in readings if r.quantity == DC and r.value is not None]
     if len(used) < 2:
         raise InputError("calibration needs readings at two or more nodes (OL rows do not count)")
-    cols = [names.index(r.node) for r in used]
-    y = np.array([r.volts for r in used], dtype=float)
+    cols = [names.index(r.at) for r in used]
+    y = np.array([r.value for r in used], dtype=float)
     sigma = (np.abs(y) * profile.meter_percent / 100 + profile.meter_volts) * RECT
-    with_supply = topology_of(profile).dc_input and "S0" in [r.node for r in used]
+    with_supply = topology_of(profile).dc_input and "S0" in [r.at for r in used]
     theta = np.zeros(3 if with_supply else 2)
 
     def misfit(v: np.ndarray) -> float:
@@ -172,7 +172,7 @@ def calibrate(profile: Profile, readings: Sequence[NodeReading]) -> Calibration:
         drive_scale=float(np.exp(theta[0])),
         diode_shift_v=float(theta[1]),
         supply_scale=float(np.exp(theta[2])) if with_supply else None,
-        residuals={r.node: float(e) for r, e in zip(used, res, strict=True)},
+        residuals={r.at: float(e) for r, e in zip(used, res, strict=True)},
         rms_volts=float(np.sqrt(np.mean(res**2))),
         chi2=float(((res / sigma) ** 2).sum()),
         iterations=iterations,
@@ -186,7 +186,7 @@ def _problems(
     fitted: Profile,
     theta: np.ndarray,
     with_supply: bool,
-    used: Sequence[NodeReading],
+    used: Sequence[Measurement],
     res: np.ndarray,
 ) -> tuple[str, ...]:
     """Why a fit does not look like a known-good board (see the bounds above)."""
@@ -219,13 +219,13 @@ def _problems(
             found.append(
                 f"the fitted {what} {quantity(value, limit.unit)} is outside {limit.text()}"
             )
-    accuracy = np.array([abs(r.volts) * profile.meter_percent / 100 for r in used])
+    accuracy = np.array([abs(r.value) * profile.meter_percent / 100 for r in used])
     accuracy += profile.meter_volts
     ratio = np.abs(res) / accuracy
     worst = int(np.argmax(ratio))
     if ratio[worst] > RESIDUAL_ACCURACIES:
         found.append(
-            f"{used[worst].node} is {res[worst]:+.3g} V off the fitted board, "
+            f"{used[worst].at} is {res[worst]:+.3g} V off the fitted board, "
             f"{ratio[worst]:.0f} times the meter's accuracy there (±{accuracy[worst]:.2g} V)"
         )
     return tuple(found)

@@ -22,14 +22,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from fieldtool.core.circuit.reading_range import node_volts_range
+from fieldtool.core.circuit.reading_range import reading_problem
 from fieldtool.core.circuit.spec import display_name
 from fieldtool.core.diagnosis.dictionary import RIPPLE_SHARE, FaultDictionary
 from fieldtool.core.diagnosis.faults import Fault, describe
 from fieldtool.core.diagnosis.priors import Priors, published_priors
 from fieldtool.core.errors import InputError
-from fieldtool.core.plausible import Range
-from fieldtool.core.readings import NodeReading
+from fieldtool.core.measurement import DC, RIPPLE_PP, Measurement
 
 CONFIDENT = 0.9  # stop suggesting probes once the top hypothesis passes this
 NO_FIT_P = 1e-3  # below this the best hypothesis does not explain the readings
@@ -122,44 +121,52 @@ class Diagnosis:
 # --- likelihood ---------------------------------------------------------------------------
 
 
-def _columns(d: FaultDictionary, readings: Sequence[NodeReading]):
-    """Measured columns, values, predicted means and spreads (rows × readings)."""
+def _columns(d: FaultDictionary, readings: Sequence[Measurement]):
+    """Measured columns, values, predicted means and spreads (rows × readings).
+
+    A ``dc`` reading is a node's column of the dictionary; a ``ripple-pp`` reading is
+    compared with the dictionary's ripple at that node. Other kinds are noted and left out
+    until the dictionary predicts them.
+    """
     cols, ys, mus, sds, names, ignored = [], [], [], [], [], []
     wrong: list[tuple[str, str]] = []  # (node, note) of readings no node could show
     seen = set()
-    plausible = node_volts_range(d.profile)
     for r in readings:
-        if r.node not in d.nodes:
-            raise InputError(f"node {r.node!r} is not on {d.profile.name} ({', '.join(d.nodes)})")
-        if r.node in seen:
-            raise InputError(f"node {r.node} is read twice; keep one reading a node")
-        seen.add(r.node)
-        j = d.node_index(r.node)
-        if r.volts is None:
-            if d.profile.meter_range_volts is None:
+        if r.at not in d.nodes:
+            raise InputError(f"node {r.at!r} is not on {d.profile.name} ({', '.join(d.nodes)})")
+        if (r.at, r.quantity) in seen:
+            raise InputError(f"node {r.at} is read twice; keep one reading a node")
+        seen.add((r.at, r.quantity))
+        j = d.node_index(r.at)
+        if r.quantity not in (DC, RIPPLE_PP):
+            ignored.append(f"{r.at}: {r.quantity.words} readings are not used by the diagnosis")
+            continue
+        if r.value is None:
+            if r.quantity != DC:
+                ignored.append(f"{r.at}: ripple OL (over range) carries no value")
+            elif d.profile.meter_range_volts is None:
                 ignored.append(
-                    f"{r.node}: OL (over range) tells nothing without the meter's range: add "
+                    f"{r.at}: OL (over range) tells nothing without the meter's range: add "
                     "[meter] range_volts to the profile, or read it on a higher range"
                 )
             else:
                 cols.append(j)  # read, as beyond the range: see _overload_loglik
             continue
-        if not plausible.contains(r.volts):
-            wrong.append((r.node, _implausible(r.node, r.volts, plausible)))
+        problem = reading_problem(d.profile, r)
+        if problem:
+            wrong.append((r.at, f"{problem}; left out"))
             continue
-        cols.append(j)
-        names.append(r.node)
-        ys.append(r.volts)
-        mus.append(d.mean[:, j])
-        sds.append(np.sqrt(d.sigma[:, j] ** 2 + d.meter_sigma(r.volts) ** 2))
-        if r.ripple_vpp is not None and not plausible.contains(r.ripple_vpp / 2):
-            wrong.append((r.node, _implausible(f"{r.node} ripple", r.ripple_vpp, plausible)))
-        elif r.ripple_vpp is not None:
-            names.append(f"{r.node} ripple")
-            ys.append(r.ripple_vpp)
+        ys.append(r.value)
+        if r.quantity == DC:
+            cols.append(j)
+            names.append(r.at)
+            mus.append(d.mean[:, j])
+            sds.append(np.sqrt(d.sigma[:, j] ** 2 + d.meter_sigma(r.value) ** 2))
+        else:
+            names.append(f"{r.at} ripple")
             rip = d.ripple[:, j]
             mus.append(rip)
-            sds.append(RIPPLE_SHARE * rip + RIPPLE_FLOOR_V + 0.02 * abs(r.ripple_vpp))
+            sds.append(RIPPLE_SHARE * rip + RIPPLE_FLOOR_V + 0.02 * abs(r.value))
     ignored += [note for _, note in wrong]
     if not ys:
         R = len(d.mean)
@@ -167,16 +174,8 @@ def _columns(d: FaultDictionary, readings: Sequence[NodeReading]):
     return cols, np.array(ys), np.stack(mus, 1), np.stack(sds, 1), names, ignored, wrong
 
 
-def _implausible(what: str, volts: float, plausible: Range) -> str:
-    """The note on a reading left out because no node of the board could show it."""
-    return (
-        f"{what}: {volts:g} V is left out: it is {plausible.why} (this board's nodes stay "
-        f"within {plausible.text()})"
-    )
-
-
 def _overload_loglik(
-    d: FaultDictionary, readings: Sequence[NodeReading]
+    d: FaultDictionary, readings: Sequence[Measurement]
 ) -> tuple[np.ndarray, list[str]]:
     """Per row: log P(|V| > range) summed over the OL readings, and the OL nodes no row can
     explain. An over-range reading is a censored one: it says the node is beyond the meter's
@@ -187,14 +186,14 @@ def _overload_loglik(
     if limit is None:
         return total, unexplained
     for r in readings:
-        if r.volts is not None or r.node not in d.nodes:
+        if r.quantity != DC or r.value is not None or r.at not in d.nodes:
             continue
-        j = d.node_index(r.node)
+        j = d.node_index(r.at)
         mu = d.mean[:, j]
         sd = np.sqrt(d.sigma[:, j] ** 2 + d.meter_sigma(limit) ** 2) * math.sqrt(2.0)
         p = 0.5 * (_erfc((limit - mu) / sd) + _erfc((limit + mu) / sd))
         if p.max() < NO_FIT_P:
-            unexplained.append(r.node)
+            unexplained.append(r.at)
         total += np.log(np.maximum(p, 1e-300))
     return total, unexplained
 
@@ -235,9 +234,9 @@ def _entropy(p: np.ndarray) -> np.ndarray:
 
 
 def diagnose(
-    d: FaultDictionary, readings: Sequence[NodeReading], priors: Priors | None = None
+    d: FaultDictionary, readings: Sequence[Measurement], priors: Priors | None = None
 ) -> Diagnosis:
-    """Rank every hypothesis from the readings taken; suggest the next node to probe."""
+    """Rank every hypothesis from the measurements taken; suggest the next node to probe."""
     profile = d.profile
     priors = priors or published_priors(profile, d.hypotheses)
     cols, y, mu, sd, names, ignored, wrong = _columns(d, readings)
