@@ -18,6 +18,7 @@ from fieldtool.core.circuit.expect import expect
 from fieldtool.core.circuit.library import ProfileEntry, locate, user_profiles_dir
 from fieldtool.core.circuit.profile import Profile, profile_from_dict
 from fieldtool.core.circuit.profile_write import to_toml
+from fieldtool.core.circuit.reading_range import reading_problem
 from fieldtool.core.circuit.safety import safety_line
 from fieldtool.core.diagnosis.calibrate import calibrate
 from fieldtool.core.diagnosis.dictionary import FaultDictionary
@@ -29,6 +30,7 @@ from fieldtool.core.errors import InputError, ProfileError
 from fieldtool.core.measurement import DC
 from fieldtool.core.readings import load_readings
 from fieldtool.core.session import choose_priors, history_failures
+from fieldtool.core.words import count
 
 FAULT_HELP = (
     "TARGET:MODE[=SEVERITY], e.g. D5:open, C4:short, C3:lowcap=0.3 (fraction left), "
@@ -148,7 +150,7 @@ def run_diagnose(args: argparse.Namespace) -> int:
 def diagnosis_text(d: FaultDictionary, readings, result: Diagnosis) -> str:
     """Readings against the healthy bands, the ranked suspects and the advice."""
     dc = [r for r in readings if r.quantity == DC]
-    lines = [f"{d.profile.name}: {len(dc)} reading(s)", ""]
+    lines = [f"{d.profile.name}: {count(len(dc), 'reading')}", ""]
     lines.append(f"{'node':<6}{'test pt':<9}{'read':>10}{'healthy band':>24}  verdict")
     for r in dc:
         band = d.band(r.at)
@@ -157,8 +159,11 @@ def diagnosis_text(d: FaultDictionary, readings, result: Diagnosis) -> str:
             lines.append(f"{r.at:<6}{label:<9}{'OL':>10}{'':>24}  over range")
             continue
         verdict = "in band" if band.contains(r.value) else ("LOW" if r.value < band.low else "HIGH")
+        if reading_problem(d.profile, r):
+            verdict = "not a reading of this board (wrong range or unit?)"
+        value = f"{r.value:>8.3f}" if abs(r.value) < 1e5 else f"{r.value:>8.2e}"
         span = f"{band.low:.2f} … {band.high:.2f} V"
-        lines.append(f"{r.at:<6}{label:<9}{r.value:>8.3f} V{span:>24}  {verdict}")
+        lines.append(f"{r.at:<6}{label:<9}{value} V{span:>24}  {verdict}")
     lines += ["", "most likely:"]
     for s in result.suspects[:8]:
         bar = "#" * round(s.probability * 20)
@@ -173,11 +178,13 @@ def diagnosis_text(d: FaultDictionary, readings, result: Diagnosis) -> str:
         lines.append(f"next: none needed; {result.top.words} at {result.top.probability:.0%}")
     else:
         lines.append("next: no node left that would tell more; check suspects out of circuit")
-    lines.append(("WARNING: " if result.fit.no_fit else "fit: ") + result.fit.text)
+    # "NO FIT", not WARNING: that signal word is kept for the hazard (see core.circuit.safety).
+    lines.append(("NO FIT: " if result.fit.no_fit else "fit: ") + result.fit.text)
     lines += [f"note: {text}" for text in result.ignored]
     highest = max(max(abs(d.band(n).low), abs(d.band(n).high)) for n in d.nodes)
-    overload = any(r.volts is None for r in readings)
-    read = [abs(r.volts) for r in readings if r.volts is not None]
+    dc = [r for r in readings if r.quantity == DC and reading_problem(d.profile, r) is None]
+    overload = any(r.value is None for r in dc)
+    read = [abs(r.value) for r in dc if r.value is not None]
     lines.append(safety_line(None if overload else max([highest, *read]), d.profile.safe_volts))
     return "\n".join(lines)
 

@@ -20,9 +20,9 @@ import os
 
 from fieldtool.commands.boards import PROFILE_HELP, login_name, profile_arg
 from fieldtool.commands.history_text import safe
+from fieldtool.commands.options import technician
 from fieldtool.core.circuit.netlist import default_designators
 from fieldtool.core.circuit.profile import Profile
-from fieldtool.core.circuit.reading_range import reading_problem
 from fieldtool.core.circuit.spec import display_name
 from fieldtool.core.diagnosis.dictionary_cache import load_or_build
 from fieldtool.core.diagnosis.faults import BOARD_TARGETS, parse_fault
@@ -63,7 +63,9 @@ def register(subparsers: argparse._SubParsersAction, logs_help: str, outcomes) -
     p.add_argument("--note", help="a note on the action (with a single --action)")
     p.add_argument("--verify", metavar="FILE", help="readings CSV taken after the repair")
     p.add_argument("--outcome", choices=outcomes, help="close the session with this outcome")
-    p.add_argument("--technician", help="who did the work (default: your login name)")
+    p.add_argument(
+        "--technician", type=technician, help="who did the work (default: your login name)"
+    )
     p.add_argument("--logs", help=logs_help)
     p.add_argument("--json", action="store_true", help="one JSON object on stdout")
     p.set_defaults(handler=run_record)
@@ -107,14 +109,6 @@ def parse_action(text: str, profile: Profile) -> Action:
     return Action(designator=display_name(profile, target), done=done, mode=mode)
 
 
-def _refuse_implausible(profile: Profile, path: str, readings) -> None:
-    """Nothing a history will hold for good may be a value no node of the board could show."""
-    for m in readings:
-        problem = reading_problem(profile, m)
-        if problem:
-            raise InputError(f"{path}: {problem}; nothing was saved")
-
-
 def run_record(args: argparse.Namespace) -> int:
     """Handle ``fieldtool record``: the same session the terminal UI writes, from files."""
     profile = profile_arg(args.profile)
@@ -133,8 +127,6 @@ def run_record(args: argparse.Namespace) -> int:
     dictionary = load_or_build(profile)
     readings = load_readings(args.readings, dictionary.nodes, profile.labels)
     after = load_readings(args.verify, dictionary.nodes, profile.labels) if args.verify else ()
-    _refuse_implausible(profile, args.readings, readings)
-    _refuse_implausible(profile, args.verify, after)
     priors = choose_priors(profile, dictionary.hypotheses, history_failures(logs))
     events: list[Event] = []
     session = BoardSession(

@@ -12,6 +12,7 @@ import argparse
 from collections.abc import Callable
 
 from fieldtool.core.errors import shown
+from fieldtool.core.names import technician_problem
 from fieldtool.core.plausible import Range
 from fieldtool.core.units import parse_si
 
@@ -61,3 +62,11 @@ SEED = whole(
     "seed",
     "the simulated meter's noise generator takes a non-negative 32-bit number",
 )
+
+
+def technician(text: str) -> str:
+    """An argparse type for who signs a session: a name or initials, one short line."""
+    problem = technician_problem(text.strip())
+    if problem:
+        raise argparse.ArgumentTypeError(f"technician {shown(text)} {problem}")
+    return text.strip()

@@ -11,7 +11,7 @@ from pathlib import Path
 
 from fieldtool.commands.boards import PROFILE_HELP, login_name, profile_arg
 from fieldtool.commands.meters import BAUD
-from fieldtool.commands.options import SEED
+from fieldtool.commands.options import SEED, technician
 from fieldtool.core import history as hist
 from fieldtool.core.circuit.library import user_profiles_dir
 from fieldtool.core.circuit.netlist import build_circuit
@@ -75,7 +75,10 @@ def _common(logs_help: str) -> argparse.ArgumentParser:
     common = argparse.ArgumentParser(add_help=False)
     common.add_argument("--logs", metavar="DIR", help=logs_help)
     common.add_argument(
-        "--technician", help="your name or initials for the history (default: your login name)"
+        "--technician",
+        type=technician,
+        help="your name or initials for the history (default: your login name; the start "
+        "screen can change it)",
     )
     common.add_argument("--cache", metavar="DIR", help="fault dictionary cache folder")
     return common

@@ -62,3 +62,17 @@ def tag_problem(text: str) -> str | None:
         if not (char.isalnum() or char in TAG_PUNCTUATION) or not char.isprintable():
             return f"contains {char!r}"
     return None
+
+
+TECHNICIAN_MAX_CHARACTERS = 60  # a name or initials, as it is signed in the history and report
+
+
+def technician_problem(name: str) -> str | None:
+    """Why ``name`` cannot sign a session (name or initials), or None when it can."""
+    if not name.strip():
+        return "is empty: give your name or initials"
+    if len(name) > TECHNICIAN_MAX_CHARACTERS:
+        return f"is {len(name)} characters long (at most {TECHNICIAN_MAX_CHARACTERS})"
+    if not name.isprintable():
+        return "contains a control character"
+    return None

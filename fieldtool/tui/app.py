@@ -133,7 +133,7 @@ class FieldtoolApp(App):
             board.dictionary,
             self.writer.submit,
             priors=board.priors,
-            technician=self.config.technician,
+            technician=request.technician or self.config.technician,
         )
         if resume_from is not None:
             restored = session.resume(resume_from)
@@ -211,8 +211,15 @@ class FieldtoolApp(App):
         self.close_writer()
 
     def get_system_commands(self, screen: Screen) -> Iterable[SystemCommand]:
-        """The main actions in the command palette: the app's, then the screen's own."""
-        yield from super().get_system_commands(screen)
+        """The main actions in the command palette: the app's, then the screen's own.
+
+        The framework's own key panel ("Keys") is left out: the help screen lists every key of
+        every screen, and two entries about keys would leave the technician guessing.
+        """
+        panel = (self.action_show_help_panel, self.action_hide_help_panel)
+        for command in super().get_system_commands(screen):
+            if command.callback not in panel:
+                yield command
         yield SystemCommand("Help: every key", "List every key and what it does", self.action_help)
         if isinstance(screen, Commands):
             for title, help_words, action in screen.PALETTE:

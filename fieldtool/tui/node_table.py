@@ -15,6 +15,7 @@ from textual.message import Message
 from textual.reactive import reactive
 from textual.widget import Widget
 
+from fieldtool.core.circuit.reading_range import node_volts_range
 from fieldtool.core.diagnosis.dictionary import FaultDictionary
 from fieldtool.tui.view import SHORT, STYLE, Verdict, band_text, deviation_text, verdict, volts_text
 
@@ -49,6 +50,7 @@ class NodeTable(Widget, can_focus=True):
         self.labels = labels
         self.values: dict[str, float | None] = {}
         self.bands = {n: dictionary.band(n) for n in self.nodes}
+        self.plausible = node_volts_range(dictionary.profile)
         self.top = 0  # first row in view
         self.tp_width = max([2] + [len(t) for t in labels.values()])
         # Band columns as wide as the widest band, so a negative one is never cut.
@@ -123,7 +125,8 @@ class NodeTable(Widget, can_focus=True):
     def verdict_for(self, node: str) -> Verdict:
         """The node's verdict from the readings shown."""
         b = self.bands[node]
-        return verdict(b.expected, b.low, b.high, self.values.get(node), node in self.values)
+        value = self.values.get(node)
+        return verdict(b.expected, b.low, b.high, value, node in self.values, self.plausible)
 
     def show(self, values: dict[str, float | None]) -> None:
         """Show the readings (node → volts, None for over range)."""

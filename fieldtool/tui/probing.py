@@ -256,9 +256,9 @@ class ProbingScreen(Commands, Screen):
         except FieldtoolError as exc:
             self.app.push_screen(ErrorDialog(exc))
             return  # the text stays in the entry to be corrected
-        event.input.value = ""
-        self.take(replace(typed, at=node, taken=now_utc()))
-        self.query_one(NodeTable).focus()
+        if self.take(replace(typed, at=node, taken=now_utc())):
+            event.input.value = ""
+            self.query_one(NodeTable).focus()
 
     # --- the meter ---------------------------------------------------------------------
 
@@ -302,10 +302,16 @@ class ProbingScreen(Commands, Screen):
             )
         self.refresh_bindings()
 
-    def take(self, measurement: Measurement) -> None:
-        """Accept a measurement: saved at once, the diagnosis and every panel updated."""
-        self.session.take(measurement)
+    def take(self, measurement: Measurement) -> bool:
+        """Accept a measurement: saved at once, the diagnosis and every panel updated. A value
+        the session refuses (beyond anything this board can show) is a dialog, and False."""
+        try:
+            self.session.take(measurement)
+        except FieldtoolError as exc:
+            self.app.push_screen(ErrorDialog(exc))
+            return False
         self.refresh_all()
+        return True
 
     # --- actions -------------------------------------------------------------------------
 

@@ -128,7 +128,7 @@ def test_diagnose_text_has_the_caution(injected, dictionary_cache, tmp_path):
     "text, message",
     [
         ("node,volts\nX9,1.0\n", "node 'X9' is not on this board"),
-        ("node,volts\nP1,abc\n", "volts 'abc' is not a number"),
+        ("node,volts\nP1,abc\n", "volts: 'abc' is not a number with a unit"),
         ("volts,node\n1.0,P1\n", "expected 'node,volts'"),
     ],
 )
@@ -193,8 +193,8 @@ def test_calibrate_dc_ladder_says_what_it_cannot_split(tmp_path):
     "text, message",
     [
         ("node,volts\nQ7,1.0\n", "node 'Q7' is not on this board"),
-        ("node,volts\nS0,3.3\nP1,1;2\n", "volts '1;2' is not a number"),
-        ("node;volts\nS0;3.3\n", "expected 'node,volts'"),
+        ("node,volts\nS0,3.3\nP1,1;2\n", "volts: '1;2' is not a number with a unit"),
+        ("node|volts\nS0|3.3\n", "expected 'node,volts'"),
         ("node,volts\nS0,3.3\n", "two or more nodes"),
         ("", "no readings"),
     ],

@@ -39,6 +39,7 @@ def test_no_option_takes_a_bare_float_or_int():
     bare = [(cmd, opt) for cmd, opt, kind in TYPED if kind in (float, int)]
     assert bare == [], f"options without a plausible range: {bare}"
     assert {opt for _, opt, _ in TYPED} >= {"--load-ohms", "--baud", "--seed", "--command-gap"}
+    assert "--technician" in {opt for _, opt, _ in TYPED}
 
 
 option_text = st.one_of(
@@ -58,6 +59,9 @@ def test_any_text_is_a_plausible_value_or_one_line_and_exit_2(typed, text):
     except argparse.ArgumentTypeError as exc:
         message = str(exc)
         assert "\n" not in message and len(message) < 400
+        return
+    if isinstance(value, str):  # a name (--technician): one short printable line
+        assert value.strip() == value and value.isprintable() and 0 < len(value) <= 60
         return
     assert isinstance(value, int | float) and math.isfinite(value)
     assert kind(str(value)) == value  # what it accepted reads back the same

@@ -228,10 +228,11 @@ def test_mixed_time_spellings_sort_by_instant():
 _WRITE_WITH_NO_ROOM = """
 import resource, signal, sys
 from fieldtool.core import history as h
+from tests.readings import reading
 signal.signal(signal.SIGXFSZ, signal.SIG_IGN)  # the kernel then fails the write with EFBIG
 resource.setrlimit(resource.RLIMIT_FSIZE, (0, resource.RLIM_INFINITY))
 try:
-    h.append(sys.argv[1], "cw6", "SN9", h.Reading(node="N1", volts=1.0))
+    h.append(sys.argv[1], "cw6", "SN9", reading("N1", 1.0))
 except h.SaveError as exc:
     print(exc.message)
 """
@@ -246,13 +247,14 @@ def test_a_first_write_that_fails_leaves_no_empty_board_file(tmp_path):
 
     run = subprocess.run(
         [sys.executable, "-c", _WRITE_WITH_NO_ROOM, str(tmp_path)],
+        cwd=Path(__file__).resolve().parents[2],  # so the snippet finds the tests package
         capture_output=True,
         text=True,
         timeout=60,
     )
     assert "could not save reading" in run.stdout and "nothing was written" in run.stdout
     assert list((tmp_path / "cw6").glob("*.jsonl")) == []
-    h.append(tmp_path, "cw6", "SN9", h.Reading(node="N1", volts=1.0))  # room again: it works
+    h.append(tmp_path, "cw6", "SN9", reading("N1", 1.0))  # room again: it works
     assert len(h.read_board(tmp_path, "SN9").events) == 1
 
 
@@ -264,7 +266,7 @@ def test_an_empty_board_file_from_an_older_version_is_no_history(tmp_path):
     from fieldtool.core.history.fleet import fleet_view
 
     assert fleet_view(tmp_path, "cw6").boards == 0
-    h.append(tmp_path, "cw6", "SN8", h.Reading(node="N1", volts=1.0))
+    h.append(tmp_path, "cw6", "SN8", reading("N1", 1.0))
     assert fleet_view(tmp_path, "cw6").boards == 1
 
 
@@ -281,15 +283,15 @@ def test_an_empty_board_file_from_an_older_version_is_no_history(tmp_path):
 )
 def test_serials_the_message_refuses_are_refused(tmp_path, serial, problem):
     with pytest.raises(h.BadNameError) as caught:
-        h.append(tmp_path, "cw6", serial, h.Reading(node="N1", volts=1.0))
+        h.append(tmp_path, "cw6", serial, reading("N1", 1.0))
     assert problem in caught.value.message
     assert "use letters, digits, spaces inside, and - _ . + # ( )" in caught.value.message
     assert not (tmp_path / "cw6").exists() or list((tmp_path / "cw6").iterdir()) == []
 
 
 def test_a_serial_with_spaces_around_it_is_the_same_board(tmp_path):
-    h.append(tmp_path, "cw6", "TG-0042", h.Reading(node="N1", volts=1.0))
-    h.append(tmp_path, "cw6", " TG-0042 ", h.Reading(node="N2", volts=2.0))
+    h.append(tmp_path, "cw6", "TG-0042", reading("N1", 1.0))
+    h.append(tmp_path, "cw6", " TG-0042 ", reading("N2", 2.0))
     history = h.read_board(tmp_path, "TG-0042 ")
     assert [r.board for r in history.events] == ["TG-0042", "TG-0042"]
     assert [p.name for p in (tmp_path / "cw6").iterdir()] == ["TG-0042.jsonl"]

@@ -11,6 +11,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from fieldtool.core.measurement import Source
 from fieldtool.meters.errors import MeterError, MeterSettingsError
 from fieldtool.meters.parse import parse_stream_line
 from fieldtool.meters.settings import TERMINATORS, parse_settings
@@ -101,7 +102,7 @@ def test_settings_loader_accepts_only_settings_that_can_drive_a_meter(text):
     try:
         for line in METER_LINES:
             try:
-                parse_stream_line(line, meter.pattern)
+                parse_stream_line(line, meter.pattern, Source("meter", "fuzz"))
             except MeterError:
                 pass  # garbage named as garbage
     finally:

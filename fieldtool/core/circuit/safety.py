@@ -21,6 +21,7 @@ import numpy as np
 from fieldtool.core.circuit.expect import Expectation, discharge_time
 from fieldtool.core.circuit.netlist import build_circuit
 from fieldtool.core.circuit.profile import DEFAULT_SAFE_VOLTS, Profile
+from fieldtool.core.circuit.reading_range import node_volts_range
 from fieldtool.core.circuit.spec import display_name
 from fieldtool.core.circuit.topologies import topology_of
 
@@ -148,14 +149,16 @@ def node_voltages(
     """Every circuit node's DC volts (readings first, expected otherwise) and the nodes read.
 
     An overload reading gives no number, so its node falls back to the expected value and does
-    not count as read.
+    not count as read; so does a value no node of the board could show (a wrong range or unit,
+    which an older version may have stored).
     """
     circuit, _ = build_circuit(profile)
+    plausible = node_volts_range(profile)
     volts: dict[str, float] = {}
     read: set[str] = set()
     for node in (circuit.name(i) for i in circuit.probe_nodes):
         value = readings.get(node)
-        if value is not None and math.isfinite(value):
+        if value is not None and plausible.contains(value):
             volts[node] = float(value)
             read.add(node)
         else:
