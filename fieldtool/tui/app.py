@@ -23,6 +23,7 @@ from fieldtool.core.circuit.safety import SAFETY_WARNING
 from fieldtool.core.errors import FieldtoolError
 from fieldtool.core.history.sessions import Session
 from fieldtool.core.session import BoardSession
+from fieldtool.core.words import count
 from fieldtool.meters.settings import MeterSettings
 from fieldtool.tui.config import AppConfig, SessionRequest
 from fieldtool.tui.dialogs import (
@@ -137,7 +138,7 @@ class FieldtoolApp(App):
         )
         if resume_from is not None:
             restored = session.resume(resume_from)
-            self.notify(f"Resumed: {restored} readings restored.", timeout=4)
+            self.notify(f"Resumed: {count(restored, 'reading')} restored.", timeout=4)
         else:
             session.open()
         screen = ProbingScreen(session, request.meter, self.config.logs_dir, request.demo_fault)

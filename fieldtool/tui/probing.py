@@ -293,7 +293,7 @@ class ProbingScreen(Commands, Screen):
         text = f"{message.error.title}: {message.error.message}"
         if text != self.last_problem:
             self.last_problem = text
-            kept = f" All {len(self.session.taken)} readings are kept." if message.lost else ""
+            kept = " Every reading taken so far is kept." if message.lost else ""
             self.notify(
                 message.error.message + kept,
                 title=message.error.title,

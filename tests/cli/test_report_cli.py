@@ -187,3 +187,20 @@ def test_report_into_a_read_only_folder_is_one_line_and_leaves_nothing(
         assert code == 2 and out == "" and err.count("\n") == 1
         assert "read-only" in err and "Traceback" not in err
     assert list(shelf.iterdir()) == []
+
+
+def test_a_reading_no_node_could_show_is_reported_not_plotted(tmp_path, capsys, expected):
+    """An older version let a reading of 1e300 V into a history: the report shows it as a wrong
+    range or unit, keeps it off the plot and the bands, and still says WARNING or CAUTION by
+    the rest of the board."""
+    logs = tmp_path / "logs"
+    opened = h.SessionOpened(technician="ana", profile_hash="x", tool_version="0.1.0")
+    events = [opened, reading("S0", expected.get("S0").volts), reading("OUT", 1e300)]
+    h.append_many(logs, PROFILE, "DL-3", events, time=day(0))
+    out = tmp_path / "r.html"
+    code, _, err = _report(capsys, "DL-3", "--logs", str(logs), "--out", str(out))
+    assert code == 0, err
+    page = out.read_text()
+    assert "wrong range or unit (not plotted)" in page
+    assert page.count("data:image/png;base64,") == 1
+    assert "<strong>CAUTION</strong>" in page  # a 15 V pump: the absurd value does not count

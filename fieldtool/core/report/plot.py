@@ -9,7 +9,7 @@ from __future__ import annotations
 import io
 from collections.abc import Sequence
 
-from fieldtool.core.report.content import Expectations, Row
+from fieldtool.core.report.content import WRONG_RANGE, Expectations, Row
 
 MISSING = "plot left out: matplotlib is not installed (pip install 'fieldtool[plot]')"
 
@@ -73,7 +73,9 @@ def ladder_plot(
         (verifications, "s", PALETTE["after"], "none", "after repair"),
     ):
         pts = [
-            (nodes.index(r.node), r.volts) for r in rows if r.node in nodes and r.volts is not None
+            (nodes.index(r.node), r.volts)
+            for r in rows
+            if r.node in nodes and r.volts is not None and r.status != WRONG_RANGE
         ]
         if pts:
             ax.plot(
