@@ -13,8 +13,8 @@ import importlib
 import sys
 
 from fieldtool import __version__
-from fieldtool.core.circuit.safety import HAZARD_WARNING, SIGNAL_WORD
 from fieldtool.core.errors import FieldtoolError
+from fieldtool.core.hazard import SAFETY_WARNING
 
 COMMAND_MODULES = (
     "fieldtool.commands.expect",
@@ -24,6 +24,19 @@ COMMAND_MODULES = (
     "fieldtool.commands.diagnosis",
     "fieldtool.commands.tui",
 )
+
+# The module that registers each subcommand, so that a command loads only its own module and
+# what that needs (start-up time: `fieldtool expect` never loads the terminal UI, the serial
+# library or the history store). `fieldtool --help` and unknown words load them all.
+# tests/cli/test_startup.py checks this table against what the modules register.
+COMMAND_MODULE = {
+    "expect": "fieldtool.commands.expect",
+    "profiles": "fieldtool.commands.profiles",
+    **dict.fromkeys(("ports", "read", "sim-meter"), "fieldtool.commands.meters"),
+    **dict.fromkeys(("fleet", "history", "logs", "record", "report"), "fieldtool.commands.history"),
+    **dict.fromkeys(("calibrate", "diagnose", "inject"), "fieldtool.commands.diagnosis"),
+    **dict.fromkeys(("demo", "probe", "tui"), "fieldtool.commands.tui"),
+}
 
 
 class _Parser(argparse.ArgumentParser):
@@ -53,11 +66,11 @@ where to start:
 
 Each command explains itself: fieldtool COMMAND --help.
 
-{SIGNAL_WORD}: {HAZARD_WARNING}"""
+{SAFETY_WARNING}"""
 
 
-def build_parser() -> argparse.ArgumentParser:
-    """The parser with every available subcommand registered."""
+def build_parser(command: str | None = None) -> argparse.ArgumentParser:
+    """The parser with every available subcommand registered, or only ``command``'s module's."""
     parser = _Parser(
         prog="fieldtool",
         description=DESCRIPTION,
@@ -68,14 +81,19 @@ def build_parser() -> argparse.ArgumentParser:
     subparsers = parser.add_subparsers(
         dest="command", parser_class=_Parser, title="commands", metavar="COMMAND"
     )
-    for name in COMMAND_MODULES:
+    modules = (COMMAND_MODULE[command],) if command in COMMAND_MODULE else COMMAND_MODULES
+    for name in modules:
         importlib.import_module(name).register(subparsers)  # each one always exists
     return parser
 
 
 def main(argv: list[str] | None = None) -> int:
     """Run one subcommand; return its exit code."""
-    args = build_parser().parse_args(argv)
+    words = sys.argv[1:] if argv is None else argv
+    command = next((w for w in words if not w.startswith("-")), None)
+    args = build_parser(command).parse_args(argv)
+    if not hasattr(args, "handler"):  # only the full parser carries the start screen's default
+        args = build_parser().parse_args(argv)
     try:
         return int(args.handler(args) or 0)
     except FieldtoolError as exc:

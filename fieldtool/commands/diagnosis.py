@@ -11,15 +11,13 @@ from datetime import UTC, datetime
 from pathlib import Path
 
 from fieldtool.commands.boards import PROFILE_HELP, profile_arg
-from fieldtool.commands.expect import to_json as expectation_json
-from fieldtool.commands.expect import to_text as expectation_text
+from fieldtool.commands.expect import full_json as expectation_json
+from fieldtool.commands.expect import full_text as expectation_text
 from fieldtool.commands.output import check_out, write_whole
-from fieldtool.core.circuit.expect import expect
 from fieldtool.core.circuit.library import ProfileEntry, locate, user_profiles_dir
 from fieldtool.core.circuit.profile import Profile, profile_from_dict
 from fieldtool.core.circuit.profile_write import to_toml
 from fieldtool.core.circuit.reading_range import reading_problem
-from fieldtool.core.circuit.safety import safety_line
 from fieldtool.core.diagnosis.calibrate import calibrate
 from fieldtool.core.diagnosis.dictionary import FaultDictionary
 from fieldtool.core.diagnosis.dictionary_cache import default_cache_dir, load_or_build
@@ -27,6 +25,7 @@ from fieldtool.core.diagnosis.faults import describe, parse_fault
 from fieldtool.core.diagnosis.priors import Priors
 from fieldtool.core.diagnosis.ranking import Diagnosis, diagnose
 from fieldtool.core.errors import InputError, ProfileError
+from fieldtool.core.hazard import safety_line
 from fieldtool.core.measurement import DC
 from fieldtool.core.readings import load_readings
 from fieldtool.core.session import choose_priors, history_failures
@@ -90,15 +89,14 @@ def run_inject(args: argparse.Namespace) -> int:
     """Handle ``fieldtool inject``."""
     profile = profile_arg(args.profile)
     fault = parse_fault(args.fault, profile)
-    result = expect(profile, fault=fault)
     if args.json:
-        out = expectation_json(result)
+        out = expectation_json(profile, fault)
         out["fault"] = fault.spec(profile)
         out["fault_words"] = describe(fault, profile)
         print(json.dumps(out, indent=2))
     else:
         print(f"INJECTED FAULT: {describe(fault, profile)} ({fault.spec(profile)})")
-        print(expectation_text(result))
+        print(expectation_text(profile, fault))
     return 0
 
 

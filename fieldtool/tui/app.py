@@ -19,8 +19,8 @@ from textual.reactive import reactive
 from textual.screen import Screen
 from textual.worker import Worker, WorkerState
 
-from fieldtool.core.circuit.safety import SAFETY_WARNING
 from fieldtool.core.errors import FieldtoolError
+from fieldtool.core.hazard import SAFETY_WARNING
 from fieldtool.core.history.sessions import Session
 from fieldtool.core.session import BoardSession
 from fieldtool.core.words import count

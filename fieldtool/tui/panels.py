@@ -8,12 +8,11 @@ from textual.widgets import Static
 from fieldtool.core.circuit.safety import (
     HAZARD_NOTE,
     HAZARD_STANDARD,
-    SAFETY_WARNING,
-    SIGNAL_WORD,
     SafetyFigures,
     format_duration,
 )
 from fieldtool.core.diagnosis.ranking import Diagnosis
+from fieldtool.core.hazard import SAFETY_WARNING, SIGNAL_WORD
 from fieldtool.tui.view import bar, percent_text, volts_text
 
 

@@ -28,8 +28,8 @@ from textual.widgets.option_list import Option
 
 from fieldtool.core import history as hist
 from fieldtool.core.circuit.library import ProfileEntry, available
-from fieldtool.core.circuit.safety import SAFETY_WARNING
 from fieldtool.core.errors import FieldtoolError, InputError, shown
+from fieldtool.core.hazard import SAFETY_WARNING
 from fieldtool.core.history.sessions import group_sessions, open_session
 from fieldtool.core.names import technician_problem
 from fieldtool.core.words import count

@@ -8,7 +8,7 @@ import json
 from datetime import UTC, datetime, timedelta
 
 from fieldtool.core import history as hist
-from fieldtool.core.circuit.safety import SIGNAL_WORD
+from fieldtool.core.hazard import SIGNAL_WORD
 from fieldtool.tui.app import make_app
 from fieldtool.tui.dialogs import ErrorDialog, ResumeDialog
 from fieldtool.tui.node_table import NodeTable

@@ -108,7 +108,10 @@ async def test_record_and_the_ui_write_the_same_session(
         + ["diagnosis", "session-closed"]
     )
     snapshot = ui[5].event
-    assert (snapshot.suspects[0].designator, snapshot.suspects[0].mode) == ("C6", "short")
+    # Shorts are a range of resistances: these four readings leave C6 and C9 shorted as one
+    # honest ambiguity group (S1 would split them), so C6 is one of the top two.
+    top_two = {(s.designator, s.mode) for s in snapshot.suspects[:2]}
+    assert ("C6", "short") in top_two
     assert ui[6].event == h.Action("C6", "replaced", "short", PART, "")
     measured = [r.event.measurement for r in ui + cli if isinstance(r.event, h.Reading)]
     assert {m.source for m in measured[:6]} == {TYPED}

@@ -131,17 +131,17 @@ def expect(profile: Profile, steps: int = 80, fault: Change | None = None) -> Ex
     heavier = scaled_load(circuit, params, 1.25)
     metered = with_meter(circuit, params, profile.meter_ohms)
     batch = stack([params, heavier, metered])
-    if fault is None:
-        ss = steady_state(circuit, batch, steps_per_period=steps)
-    else:
-        # A faulted board can be far from any formula; start from the healthy one and fall
-        # back to slower, surer starts (fieldtool.core.circuit.staged).
+    # Row 0 (the board itself) is solved first; the heavier load and the meter on each node
+    # are small changes from it and start from its waveforms (fieldtool.core.circuit.staged).
+    start = None
+    if fault is not None:
+        # A faulted board can be far from any formula: start from the healthy board.
         healthy = steady_state(circuit, build_circuit(profile)[1], steps_per_period=steps)
         start = healthy.period if healthy.converged[0] else None
         alone = staged_steady_state(circuit, params, steps, start=start)
         if alone.converged[0]:
-            start = alone.period  # the meter and the heavier load are small changes from it
-        ss = staged_steady_state(circuit, batch, steps, start=start)
+            start = alone.period
+    ss = staged_steady_state(circuit, batch, steps, start=start)
     if not ss.converged.all():
         raise SolverError(
             f"{profile.path}: periodic steady state not reached (residual "

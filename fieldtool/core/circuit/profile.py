@@ -25,6 +25,8 @@ from fieldtool.core.circuit.spec import (
     WAVEFORMS,
     CapacitorSpec,
     DiodeSpec,
+    InstrumentSpec,
+    LoadResistor,
     Profile,
 )
 from fieldtool.core.circuit.topologies import TOPOLOGIES
@@ -197,6 +199,105 @@ def _capacitor(table: _Table, base: CapacitorSpec | None = None) -> CapacitorSpe
     return CapacitorSpec(farads, tol, esr, leak, dielectric)
 
 
+def _instruments(meter: _Table, scope: _Table) -> InstrumentSpec:
+    """The meter's AC, current and diode-test settings and the scope probe (defaults: spec)."""
+    d = InstrumentSpec()
+    m, s = meter, scope
+    r = ranges
+    spec = InstrumentSpec(
+        ac_input_ohms=m.number("ac_input_ohms", d.ac_input_ohms, limit=r.METER_OHMS),
+        ac_input_farads=m.number("ac_input_farads", d.ac_input_farads, limit=r.AC_INPUT_FARADS),
+        ac_bandwidth_hz=m.number("ac_bandwidth_hz", d.ac_bandwidth_hz, limit=r.BANDWIDTH_HZ),
+        ac_accuracy_percent=m.number(
+            "ac_accuracy_percent", d.ac_accuracy_percent, limit=r.METER_PERCENT
+        ),
+        ac_accuracy_volts=m.number("ac_accuracy_volts", d.ac_accuracy_volts, limit=r.METER_VOLTS),
+        burden_ohms=m.number(
+            "burden_ohms", d.burden_ohms, limit=r.BURDEN_OHMS, hint=" (current range shunt)"
+        ),
+        current_accuracy_percent=m.number(
+            "current_accuracy_percent", d.current_accuracy_percent, limit=r.METER_PERCENT
+        ),
+        current_accuracy_amps=m.number(
+            "current_accuracy_amps", d.current_accuracy_amps, limit=r.CURRENT_ACCURACY_AMPS
+        ),
+        diode_test_amps=m.number(
+            "diode_test_amps", d.diode_test_amps, limit=r.DIODE_TEST_AMPS, hint=" (e.g. 1e-3)"
+        ),
+        diode_test_volts=m.number(
+            "diode_test_volts",
+            d.diode_test_volts,
+            limit=r.DIODE_TEST_VOLTS,
+            hint=" (the diode test's open-circuit voltage, e.g. 3.0)",
+        ),
+        diode_accuracy_percent=m.number(
+            "diode_accuracy_percent", d.diode_accuracy_percent, limit=r.METER_PERCENT
+        ),
+        diode_accuracy_volts=m.number(
+            "diode_accuracy_volts", d.diode_accuracy_volts, limit=r.METER_VOLTS
+        ),
+        diode_settle_s=m.number("diode_settle_s", d.diode_settle_s, limit=r.SETTLE_S),
+        probe_ohms=s.number("probe_ohms", d.probe_ohms, limit=r.METER_OHMS),
+        probe_farads=s.number("probe_farads", d.probe_farads, limit=r.PROBE_FARADS),
+        scope_accuracy_percent=s.number(
+            "accuracy_percent", d.scope_accuracy_percent, limit=r.METER_PERCENT
+        ),
+        scope_accuracy_volts=s.number(
+            "accuracy_volts", d.scope_accuracy_volts, limit=r.METER_VOLTS
+        ),
+    )
+    m.finish()
+    s.finish()
+    return spec
+
+
+MAX_TEST_LOADS = 8
+
+
+def _test_loads(path: str, data: Any) -> tuple[LoadResistor, ...]:
+    """``[test_loads] ohms = [...]`` and optionally ``rated_watts = [...]``, one per load."""
+    if data is None:
+        return ()
+    t = _Table(path, "test_loads", data)
+    example = "e.g. `ohms = [10e3, 100e3]`"
+    ohms = _number_list(t, "ohms", example, ranges.TEST_LOAD_OHMS)
+    if ohms is None:
+        t.fail("ohms", f"is missing: list the test load resistances, {example}")
+    if not 1 <= len(ohms) <= MAX_TEST_LOADS:
+        t.fail("ohms", f"has {len(ohms)} values, expected 1 to {MAX_TEST_LOADS}; {example}")
+    if len(set(ohms)) != len(ohms):
+        t.fail("ohms", "lists a resistance twice; list each test load once")
+    watts = _number_list(
+        t, "rated_watts", "e.g. `rated_watts = [0.25, 0.5]`, one per load", ranges.RATED_WATTS
+    )
+    if watts is not None and len(watts) != len(ohms):
+        t.fail("rated_watts", f"has {len(watts)} values for {len(ohms)} loads: give one per load")
+    t.finish()
+    rated = watts if watts is not None else [None] * len(ohms)
+    return tuple(LoadResistor(o, w) for o, w in zip(ohms, rated, strict=True))
+
+
+def _number_list(t: _Table, key: str, example: str, limit: Range) -> list[float] | None:
+    """A list of numbers each within ``limit``, or None when the key is absent."""
+    t.used.add(key)
+    if key not in t.data:
+        return None
+    values = t.data[key]
+    if not isinstance(values, list):
+        t.fail(key, f"is {shown(values)}, expected a list of numbers; {example}")
+    out = []
+    for v in values:
+        if isinstance(v, bool) or not isinstance(v, int | float):
+            t.fail(key, f"holds {shown(v)}, expected numbers only; {example}")
+        if isinstance(v, int) and abs(v) > 10**300:
+            t.fail(key, f"holds {shown(v)}, expected {limit.text()}")
+        problem = limit.problem(float(v))
+        if problem:
+            t.fail(key, f"holds a value that {problem}; {example}")
+        out.append(float(v))
+    return out
+
+
 def _string_map(path: str, name: str, data: Any) -> dict[str, str]:
     """A table of short names (designators, test-point labels), each a valid tag."""
     if not isinstance(data, dict):
@@ -256,6 +357,8 @@ _SECTIONS = (
     "capacitor",
     "load",
     "meter",
+    "scope",
+    "test_loads",
     "bleeder",
     "designators",
     "labels",
@@ -371,7 +474,8 @@ def profile_from_dict(data: dict[str, Any], path: str = "<profile>", digest: str
         limit=ranges.METER_RANGE_VOLTS,
         hint=" (the highest |V| it shows, or omit)",
     )
-    meter.finish()
+    instruments = _instruments(meter, _Table(path, "scope", data.get("scope", {})))
+    test_loads = _test_loads(path, data.get("test_loads"))
 
     designators = _string_map(path, "designators", data.get("designators", {}))
     labels = _string_map(path, "labels", data.get("labels", {}))
@@ -422,6 +526,8 @@ def profile_from_dict(data: dict[str, Any], path: str = "<profile>", digest: str
         labels=labels,
         digest=digest,
         meter_range_volts=meter_range,
+        instruments=instruments,
+        test_loads=test_loads,
     )
     _check_names(profile)
     return profile

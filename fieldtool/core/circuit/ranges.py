@@ -133,3 +133,25 @@ METER_VOLTS = Range(0.0, 100.0, "V", "the fixed part of a meter's accuracy")
 METER_RANGE_VOLTS = Range(
     0.01, 1e6, "V", "from a millivolt range to a high-voltage divider", low_open=False
 )
+
+# Instruments beyond the DC voltmeter ([meter] AC, current and diode-test keys; [scope]).
+AC_INPUT_FARADS = Range(0.0, 1e-6, "F", "an input's own capacitance is picofarads", high_open=True)
+BANDWIDTH_HZ = Range(1.0, 1e10, "Hz", "from a handheld's hundreds of hertz to a fast scope")
+CURRENT_ACCURACY_AMPS = Range(0.0, 1.0, "A", "the fixed part of a current range's accuracy")
+BURDEN_OHMS = Range(
+    0.0,
+    1e6,
+    "Ω",
+    "a current range's shunt and fuse: milliohms to kilohms on microamp ranges",
+    high_open=True,
+)
+DIODE_TEST_AMPS = Range(
+    1e-6, 0.1, "A", "diode-test modes drive about 0.1 to 1 mA (common practice)", high_open=True
+)
+DIODE_TEST_VOLTS = Range(
+    0.1, 20.0, "V", "a diode test's open-circuit voltage is a few volts", high_open=True
+)
+SETTLE_S = Range(0.01, 3600.0, "s", "from a blink to an hour at the bench")
+PROBE_FARADS = Range(0.0, 1e-6, "F", "a probe's own capacitance is picofarads", high_open=True)
+TEST_LOAD_OHMS = LOAD_OHMS
+RATED_WATTS = Range(1e-3, 1e4, "W", "from a small film resistor to a load bank")

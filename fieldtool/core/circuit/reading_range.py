@@ -38,9 +38,11 @@ def node_volts_range(profile: Profile) -> Range:
 def reading_problem(profile: Profile, m: Measurement) -> str | None:
     """Why a reading cannot have come from this board, or None when it can (an overload can).
 
-    A peak-to-peak ripple spans both ways, so half of it must lie within the range.
+    A peak-to-peak ripple spans both ways, so half of it must lie within the range. Only
+    voltages at nodes are judged here; a kind of reading in another unit or taken elsewhere
+    brings its own range with it.
     """
-    if m.value is None:
+    if m.value is None or m.quantity.unit != "V" or m.quantity.taken_at != "node":
         return None
     plausible = node_volts_range(profile)
     value = m.value / 2 if m.quantity.name == "ripple-pp" else m.value

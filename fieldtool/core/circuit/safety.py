@@ -24,6 +24,7 @@ from fieldtool.core.circuit.profile import DEFAULT_SAFE_VOLTS, Profile
 from fieldtool.core.circuit.reading_range import node_volts_range
 from fieldtool.core.circuit.spec import display_name
 from fieldtool.core.circuit.topologies import topology_of
+from fieldtool.core.hazard import safety_line
 
 # The profile's safe_volts default. 50 V is the shock-protection threshold NFPA 70E uses
 # (from memory: check the edition in force before relying on it).
@@ -32,36 +33,18 @@ HAZARD_NOTE = (
     f"{DEFAULT_SAFE_VOLTS:g} V is the {HAZARD_STANDARD} shock threshold "
     "(from memory: check the edition in force)"
 )
-# Signal words (ANSI Z535.4-2007 §4.14, as quoted by sign makers; ISO 3864-2 uses the same
-# three words, from memory): DANGER "will result in death or serious injury", WARNING "could
-# result in death or serious injury", CAUTION "could result in minor or moderate injury".
-# Stored charge on a board above the safe level could kill: WARNING. Below it a discharge can
-# still burn or make a hand jerk back: CAUTION. Where the board is not known, WARNING.
-SIGNAL_WORD = "WARNING"
-LOW_VOLTAGE_SIGNAL_WORD = "CAUTION"
-HAZARD_WARNING = (
-    "Stored charge can kill. Power off, discharge through a rated resistor, verify with the "
-    "meter before touching. Estimates only: local codes and licensed practice come first."
+
+TEST_LOAD_CAUTION = (
+    "Clip a test load on only with the board off and discharged, then power up; use a resistor "
+    "rated for the output voltage and for the power shown, keep clear of it while powered, and "
+    "discharge again before unclipping it. Local codes and licensed practice come first."
 )
-LOW_VOLTAGE_HAZARD = (
-    "Stored charge can still spark and burn. Power off, discharge, verify with the meter "
-    "before touching. Estimates only: local codes and licensed practice come first."
+POWER_OFF_CAUTION = (
+    "Diode tests need the board off: disconnect the supply, discharge every capacitor through a "
+    "rated resistor, verify every node reads below {safe:g} V with the meter on DC volts, then "
+    "switch to diode test. Re-measure before touching: dielectric absorption can bring back "
+    "several percent. Local codes and licensed practice come first."
 )
-SAFETY_WARNING = f"{SIGNAL_WORD}: {HAZARD_WARNING}"
-
-
-def signal_word(highest_volts: float | None, safe_volts: float) -> str:
-    """WARNING when a node is (or may be: None, over range) at or above the safe level,
-    CAUTION below it (see the signal words above)."""
-    if highest_volts is None or abs(highest_volts) >= safe_volts:
-        return SIGNAL_WORD
-    return LOW_VOLTAGE_SIGNAL_WORD
-
-
-def safety_line(highest_volts: float | None, safe_volts: float) -> str:
-    """The standing safety line for a board whose highest node is ``highest_volts``."""
-    word = signal_word(highest_volts, safe_volts)
-    return f"{word}: {HAZARD_WARNING if word == SIGNAL_WORD else LOW_VOLTAGE_HAZARD}"
 
 
 @dataclass(frozen=True)

@@ -16,8 +16,8 @@ from typing import Any
 
 from fieldtool.core.circuit.profile import Profile
 from fieldtool.core.circuit.reading_range import node_volts_range
-from fieldtool.core.circuit.safety import SIGNAL_WORD, signal_word
 from fieldtool.core.diagnosis.dictionary_cache import load_or_build
+from fieldtool.core.hazard import SIGNAL_WORD, signal_word
 from fieldtool.core.history import BoardHistory, HistoryError, Reading, Record, now_utc
 from fieldtool.core.history.sessions import ConfirmedFailure, Session, confirmed_in
 from fieldtool.core.measurement import DC, Measurement

@@ -25,14 +25,20 @@ PART_KINDS = ("diode", "capacitor")
 BOARD_TARGETS = ("drive", "supply", "load")
 NO_SEVERITY = (math.nan,)  # the grid of a mode without a severity
 IDEAL_DIODE_DROP = 0.6  # V, for scaling grids only (common practice, no source)
+SHORT_OHMS = 1.0  # a failed-short part reads about an ohm (common practice, no source)
+# Shorts from a burnt part (ohms) to a welded one (milliohms), mild to gross, five points
+# evenly spaced in log from 10 Ω to 10 mΩ (a factor of about 5.6 apart; common practice, no
+# source): each short costs five variants in the fault dictionary.
+SHORT_GRID_OHMS = (10.0, 1.78, 0.316, 0.0562, 0.01)
+SHORT_MAX_OHMS = 100.0  # above this a part is leaky, not shorted
 
 _EXAMPLES = {"ohms": "47k", "fraction": "0.3", "factor": "3"}
 
-# The plausible severity of each kind (see ``fieldtool.core.plausible``). A leak below 1 Ω
-# (what a shorted part is modelled as) is a short: write the mode short. A series resistance
+# The plausible severity of each kind (see ``fieldtool.core.plausible``). A series resistance
 # above 1 TΩ (what an open diode is modelled as) is an open part. With less than 0.1 % of a
 # capacitance, the drive or the supply left, it is gone. A load a thousand times its rating is
-# a short across the output.
+# a short across the output. A short is at most SHORT_MAX_OHMS and a leak above it; below
+# 0.1 mΩ a short is less than a part's own leads (common practice, no source).
 SEVERITY_RANGES = {
     "ohms": Range(1e-3, 1e12, "Ω", "above 1 TΩ in series a part is open: write the mode open"),
     "fraction": Range(
@@ -50,8 +56,19 @@ SEVERITY_RANGES = {
         low_open=True,
     ),
 }
+SHORT_RANGE = Range(
+    1e-4,
+    SHORT_MAX_OHMS,
+    "Ω",
+    f"above {SHORT_MAX_OHMS:g} Ω a part leaks rather than shorts: use leaky; below 0.1 mΩ is "
+    "less than the part's own leads",
+)
 LEAKY_OHMS = Range(
-    1.0, 1e18, "Ω", "below the 1 Ω of a shorted part write the mode short; above 1e18 Ω no leak"
+    SHORT_MAX_OHMS,
+    1e18,
+    "Ω",
+    f"at {SHORT_MAX_OHMS:g} Ω or less a part is shorted: use short; above 1e18 Ω it does not leak",
+    low_open=True,
 )
 
 
@@ -62,6 +79,7 @@ class FaultMode(ABC):
     applies_to: ClassVar[str]  # "diode" | "capacitor" | "drive" | "supply" | "load"
     unit: ClassVar[str | None]  # severity unit: "ohms" | "fraction" | "factor"; None: none
     words: ClassVar[str]  # plain words: "lost capacitance"
+    default_severity: ClassVar[float | None] = None  # used when a spec gives none (else needed)
 
     def unavailable(self, profile: Profile) -> str | None:
         """Why the mode cannot happen on this board, or None when it can (default: always can).
@@ -122,6 +140,32 @@ class FaultMode(ABC):
         if self.unit == "factor":
             return f"(×{severity:g})"
         return ""
+
+
+class ShortMode(FaultMode):
+    """A part shorted: a low resistance across it, both ways.
+
+    How low varies from part to part and failure to failure (milliohms for a welded junction
+    or a metallised short, ohms for a burnt one), and what the board reads depends on it
+    wherever the short is comparable with the source resistances around it; so the dictionary
+    tries a range (``SHORT_GRID_OHMS``), marginalised like any other severity. A spec without
+    a value (``D5:short``) means a typical short of ``SHORT_OHMS``.
+    """
+
+    name = "short"
+    unit = "ohms"
+    words = "shorted"
+    default_severity = SHORT_OHMS
+    severity_range = SHORT_RANGE
+
+    def grid(self, profile: Profile) -> tuple[float, ...]:
+        """10 Ω down to 10 mΩ, five points (mild to gross; ``SHORT_GRID_OHMS``)."""
+        return SHORT_GRID_OHMS
+
+    @staticmethod
+    def siemens(severity: float | None) -> float:
+        """The short's conductance: 1/``severity``, or 1/``SHORT_OHMS`` when none is given."""
+        return 1.0 / (SHORT_OHMS if severity is None else severity)
 
 
 def switching_ohms(profile: Profile) -> float:
