@@ -31,6 +31,8 @@ def quantity(value: float, unit: str) -> str:
     """A value with an SI prefix and its unit, for messages: ``10 pF``, ``1.5 kV``, ``0 s``."""
     if not unit or unit in ("%", "×"):
         return f"{value:g}{unit}"
+    if unit in ("s", "°C") and abs(value) >= 1:  # an hour is 3600 s, never 3.6 ks
+        return f"{value:g} {unit}"
     magnitude = abs(value)
     if value == 0 or not math.isfinite(value) or not 1e-15 <= magnitude < 1e18:
         return f"{value:g} {unit}"

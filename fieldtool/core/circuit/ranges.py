@@ -153,5 +153,7 @@ DIODE_TEST_VOLTS = Range(
 )
 SETTLE_S = Range(0.01, 3600.0, "s", "from a blink to an hour at the bench")
 PROBE_FARADS = Range(0.0, 1e-6, "F", "a probe's own capacitance is picofarads", high_open=True)
-TEST_LOAD_OHMS = LOAD_OHMS
+TEST_LOAD_OHMS = Range(
+    1.0, 1e15, "Ω", "below 1 Ω a test load shorts the output; above 1 PΩ it loads nothing"
+)
 RATED_WATTS = Range(1e-3, 1e4, "W", "from a small film resistor to a load bank")

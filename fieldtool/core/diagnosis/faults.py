@@ -213,8 +213,12 @@ def _grid(mode: FaultMode, profile: Profile) -> tuple[float, ...]:
     kept: list[float] = []
     for value in mode.grid(profile):
         inside = min(max(value, limit.low), limit.high)
-        if not limit.contains(inside):  # an open end: step just inside it
-            inside = math.nextafter(inside, limit.high if inside <= limit.low else limit.low)
+        if not limit.contains(inside):  # an open end: step 0.1 % inside it, so the value
+            step = 1e-3  # survives being written to six figures and read back
+            if inside <= limit.low:
+                inside = limit.low + max(abs(limit.low), 1e-12) * step
+            else:
+                inside = limit.high - max(abs(limit.high), 1e-12) * step
         if inside not in kept:
             kept.append(inside)
     return tuple(kept)
