@@ -11,7 +11,11 @@ words, what it is taken at, whether the board is powered, and any settings each 
 must carry, such as a test load's resistance), so a new kind of reading is one more entry here
 plus its prediction in the diagnosis, not a new class. ``dc`` is a DC voltage at a node with
 the board powered; ``ripple-pp`` is the peak-to-peak ripple at a node, as the readings file's
-``ripple_vpp`` column has carried it.
+``ripple_vpp`` column has carried it; ``ac-rms`` the AC component at a node as a true-RMS
+meter reads it; ``current`` the DC current in a supply lead (``supply``, or ``drive`` where the
+drive has its own rail); ``dc-loaded`` DC volts at a node with a test load from the output to
+ground (its resistance a condition of each reading); ``diode-test`` the meter's diode-test
+reading across a diode in circuit, board off and discharged (red lead on the anode).
 """
 
 from __future__ import annotations
@@ -44,7 +48,20 @@ class Quantity:
 
 DC = Quantity("dc", "V", "DC volts", "node", powered=True)
 RIPPLE_PP = Quantity("ripple-pp", "V", "ripple peak to peak", "node", powered=True)
-QUANTITIES: dict[str, Quantity] = {q.name: q for q in (DC, RIPPLE_PP)}
+AC_RMS = Quantity("ac-rms", "V", "AC volts (true RMS)", "node", powered=True)
+CURRENT = Quantity("current", "A", "supply current", "rail", powered=True)
+DC_LOADED = Quantity(
+    "dc-loaded",
+    "V",
+    "DC volts under a test load",
+    "node",
+    powered=True,
+    conditions=("test_load_ohms",),
+)
+DIODE_TEST = Quantity("diode-test", "V", "diode test, board off", "part", powered=False)
+QUANTITIES: dict[str, Quantity] = {
+    q.name: q for q in (DC, RIPPLE_PP, AC_RMS, CURRENT, DC_LOADED, DIODE_TEST)
+}
 
 
 def quantity(name: str) -> Quantity:

@@ -25,9 +25,12 @@ NODES = ("S0", "P1", "S1", "P2", "S2")
 
 
 def test_the_registry_holds_data_not_classes():
-    assert QUANTITIES == {"dc": DC, "ripple-pp": RIPPLE_PP}
+    assert set(QUANTITIES) == {"dc", "ripple-pp", "ac-rms", "current", "dc-loaded", "diode-test"}
+    assert QUANTITIES["dc"] is DC and QUANTITIES["ripple-pp"] is RIPPLE_PP
     for q in QUANTITIES.values():
-        assert type(q) is Quantity and q.taken_at in TAKEN_AT and q.unit == "V" and q.powered
+        assert type(q) is Quantity and q.taken_at in TAKEN_AT and q.unit in ("V", "A")
+    assert not QUANTITIES["diode-test"].powered and QUANTITIES["diode-test"].taken_at == "part"
+    assert QUANTITIES["dc-loaded"].conditions == ("test_load_ohms",)
     assert quantity(" DC ") is DC
     with pytest.raises(InputError, match="unknown measurement kind 'ac-volts'; known kinds: dc"):
         quantity("ac-volts")
@@ -88,20 +91,28 @@ def test_overload_and_unit():
 
 
 finite = st.floats(allow_nan=False, allow_infinity=False, width=64)
-measurements = st.builds(
-    Measurement,
-    at=st.none() | st.sampled_from(NODES),
-    quantity=st.sampled_from(list(QUANTITIES.values())),
-    value=st.none() | finite,
-    source=st.builds(Source, st.sampled_from(["typed", "file", "meter", "simulated"]), st.text()),
-    spread=st.none() | st.floats(min_value=0, allow_infinity=False),
-    settled=st.booleans(),
-    samples=st.integers(1, 1000),
-    taken=st.none() | st.just("2026-03-02T08:01:00.000000Z"),
-)
 
 
-@given(measurements)
+@st.composite
+def measurements(draw):
+    q = draw(st.sampled_from(list(QUANTITIES.values())))
+    positive = st.floats(min_value=1e-3, max_value=1e9, allow_nan=False)
+    return Measurement(
+        at=draw(st.none() | st.sampled_from(NODES)),
+        quantity=q,
+        value=draw(st.none() | finite),
+        source=draw(
+            st.builds(Source, st.sampled_from(["typed", "file", "meter", "simulated"]), st.text())
+        ),
+        spread=draw(st.none() | st.floats(min_value=0, allow_infinity=False)),
+        settled=draw(st.booleans()),
+        samples=draw(st.integers(1, 1000)),
+        taken=draw(st.none() | st.just("2026-03-02T08:01:00.000000Z")),
+        conditions=tuple((name, draw(positive)) for name in q.conditions),
+    )
+
+
+@given(measurements())
 def test_the_stored_form_reads_back_the_same(m):
     assert Measurement.from_fields(json.loads(json.dumps(m.to_fields()))) == m
 
