@@ -13,6 +13,7 @@ from fieldtool.core.measurement import Measurement
 from fieldtool.core.plausible import Range
 
 MARGIN = 2.0  # twice the ideal bound: room for every fault and meter error (no source)
+SUPPLY_AMPS = 10.0  # a multiplier's supply current: a few amperes at most (as [load] amps)
 
 
 def node_volts_range(profile: Profile) -> Range:
@@ -35,20 +36,47 @@ def node_volts_range(profile: Profile) -> Range:
     )
 
 
-def reading_problem(profile: Profile, m: Measurement) -> str | None:
-    """Why a reading cannot have come from this board, or None when it can (an overload can).
+def reading_range(profile: Profile, m: Measurement) -> Range | None:
+    """The values a reading of this kind could take on this board (None: not judged here).
 
-    A peak-to-peak ripple spans both ways, so half of it must lie within the range. Only
-    voltages at nodes are judged here; a kind of reading in another unit or taken elsewhere
-    brings its own range with it.
+    Voltages at nodes within ``node_volts_range`` (a peak-to-peak ripple spans both ways, so it
+    may reach twice it); a current in the supply lead within what a multiplier draws; a diode
+    test from 0 V to the meter's open-circuit voltage, above which it shows OL.
     """
-    if m.value is None or m.quantity.unit != "V" or m.quantity.taken_at != "node":
-        return None
-    plausible = node_volts_range(profile)
-    value = m.value / 2 if m.quantity.name == "ripple-pp" else m.value
-    if plausible.contains(value):
+    q = m.quantity
+    if q.unit == "V" and q.taken_at == "node":
+        nodes = node_volts_range(profile)
+        if q.name == "ripple-pp":
+            return Range(0.0, 2 * nodes.high, "V", nodes.why)
+        return nodes
+    if q.unit == "A" and q.taken_at == "rail":
+        return Range(
+            -SUPPLY_AMPS,
+            SUPPLY_AMPS,
+            "A",
+            "beyond what a diode–capacitor multiplier draws (common practice, no source): "
+            "check the meter's current range and unit",
+        )
+    if q.unit == "V" and q.taken_at == "part":
+        open_circuit = profile.instruments.diode_test_volts
+        return Range(
+            -0.1 * open_circuit,
+            1.1 * open_circuit,
+            "V",
+            f"beyond the diode test's {open_circuit:g} V open-circuit voltage, where the meter "
+            "shows OL: check the meter is on diode test",
+        )
+    return None
+
+
+def reading_problem(profile: Profile, m: Measurement) -> str | None:
+    """Why a reading cannot have come from this board, or None when it can (an overload can,
+    and so can a kind of reading this module does not judge)."""
+    plausible = None if m.value is None else reading_range(profile, m)
+    if plausible is None or plausible.contains(m.value):
         return None
     return (
         f"{m.at} {m.quantity.words} {m.value:g} {m.unit} is {plausible.why} (this board's "
-        f"nodes stay within {plausible.text()})"
+        f"{'nodes stay' if m.quantity.taken_at == 'node' else 'readings stay'} within "
+        f"{plausible.text()})"
     )
