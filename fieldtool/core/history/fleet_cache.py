@@ -34,7 +34,8 @@ from fieldtool.core.history.sessions import confirmed_in, group_sessions
 CACHE_NAME = ".fleet-cache.json"
 CACHE_FORMAT = 2  # bump when the summary's meaning changes: old caches are then ignored
 _KIND = b'"kind":"'
-_NOT_NEEDED = frozenset((b"reading", b"diagnosis"))
+SKIPPED_KINDS = ("reading", "diagnosis")  # kinds the fleet view never needs (also the store's)
+_NOT_NEEDED = frozenset(k.encode() for k in SKIPPED_KINDS)
 
 
 Repair = tuple[str, tuple[tuple[str, str, bool], ...]]  # (start, ((designator, mode, verified),))
