@@ -21,6 +21,7 @@ COMMAND_MODULES = (
     "fieldtool.commands.history",
     "fieldtool.commands.diagnosis",
     "fieldtool.commands.tui",
+    "fieldtool.commands.store",
 )
 
 
