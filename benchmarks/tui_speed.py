@@ -129,7 +129,9 @@ def main() -> None:
     """Run both measurements and print them with the machine."""
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--runs", type=int, default=5)
-    parser.add_argument("--profile", default=str(ROOT / "fieldtool" / "profiles" / "tidegauge-apd-bias.toml"))
+    parser.add_argument(
+        "--profile", default=str(ROOT / "fieldtool" / "profiles" / "tidegauge-apd-bias.toml")
+    )
     args = parser.parse_args()
     from fieldtool.core.circuit.profile import load_profile
     from fieldtool.core.diagnosis.dictionary_cache import load_or_build

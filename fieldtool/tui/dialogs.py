@@ -97,7 +97,7 @@ class ActionDialog(ModalScreen[ActionForm | None]):
     def _modes(self, ref: str | None) -> list[tuple[str, str]]:
         if ref is None:
             return []
-        return [(m.words, m.name) for m in modes_for(self.profile, target_kind(ref))]
+        return [(m.words, m.name) for m in modes_for(self.profile, target_kind(ref, self.profile))]
 
     def compose(self) -> ComposeResult:
         """A compact form."""

@@ -16,6 +16,8 @@ from textual.widget import Widget
 
 from fieldtool.core.circuit.profile import Profile
 from fieldtool.core.circuit.spec import display_name
+from fieldtool.core.circuit.topologies import topology_of
+from fieldtool.core.circuit.topologies.base import GROUND
 from fieldtool.tui.view import STYLE, SYMBOL, UNREAD
 
 RANK_MARK = "¹²³"  # the top three suspects carry their rank, not only a colour
@@ -37,30 +39,17 @@ class Cell:
     diode_ref: str | None
 
 
-def _chain(profile: Profile) -> list[tuple[str, str | None, str | None]]:
-    """(node, up capacitor, down capacitor) along the diode chain, default designators."""
-    n = profile.stages
-    if profile.topology == "dickson":
-        out = [("S0", None, None)]
-        out += [(f"P{k}", f"C{k}", None) for k in range(1, n + 1)]
-        return out + [("OUT", None, f"C{n + 1}")]
-    start = "S0" if profile.topology == "dc-ladder" else "GND"
-    out = [(start, None, None)]
-    for k in range(1, n + 1):
-        out += [(f"P{k}", f"C{2 * k - 1}", None), (f"S{k}", None, f"C{2 * k}")]
-    return out
-
-
 def ladder_cells(profile: Profile) -> tuple[Cell, ...]:
     """The profile's ladder as cells in chain order (diode k leaves node k)."""
-    chain = _chain(profile)
+    chain = topology_of(profile).chain(profile.stages)
     cells = []
-    for i, (node, up, down) in enumerate(chain):
+    for i, link in enumerate(chain):
+        node, up, down = link.node, link.up, link.down
         diode = f"D{i + 1}" if i + 1 < len(chain) else None
         cells.append(
             Cell(
                 node=node,
-                probe=node != "GND",
+                probe=node != GROUND,
                 label=profile.labels.get(node, ""),
                 up=display_name(profile, up) if up else None,
                 up_ref=up,
@@ -75,11 +64,7 @@ def ladder_cells(profile: Profile) -> tuple[Cell, ...]:
 
 def legend(profile: Profile) -> str:
     """Where the capacitors drawn above and below the chain go."""
-    if profile.topology == "dickson":
-        return "↑ pump caps to clock φ1 (odd) / φ2 (even) · ↓ to ground"
-    if profile.topology == "ac-ladder":
-        return "↑ to previous pump node (C1 to AC in) · ↓ to previous stage (first to ground)"
-    return "↑ flying caps to drive · ↓ reservoirs to ground"
+    return topology_of(profile).legend
 
 
 class LadderView(Widget):

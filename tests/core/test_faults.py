@@ -7,18 +7,17 @@ import pytest
 
 from fieldtool.core.circuit.netlist import build_circuit
 from fieldtool.core.diagnosis.faults import (
-    OPEN_FARADS,
-    OPEN_OHMS,
-    SHORT_OHMS,
     Fault,
     apply_fault,
     catalog,
     describe,
-    format_si,
     parse_fault,
-    parse_si,
 )
+from fieldtool.core.diagnosis.modes.capacitor_open import OPEN_FARADS
+from fieldtool.core.diagnosis.modes.diode_open import OPEN_OHMS
+from fieldtool.core.diagnosis.modes.diode_short import SHORT_OHMS
 from fieldtool.core.errors import InputError
+from fieldtool.core.units import format_si, parse_si
 from tests.conftest import make_profile
 
 PROFILE = make_profile(designators={"D3": "CR103"})

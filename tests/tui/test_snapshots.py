@@ -17,7 +17,7 @@ from fieldtool.core.diagnosis.faults import parse_fault
 from fieldtool.tui.app import make_app
 from fieldtool.tui.history import HistoryScreen
 from fieldtool.tui.node_table import NodeTable
-from tests.tui.conftest import ROOT, probing, type_reading, typed_app, until
+from tests.tui.conftest import probing, type_reading, typed_app, until
 
 SIZES = [pytest.param((80, 24), id="80x24"), pytest.param((120, 40), id="120x40")]
 

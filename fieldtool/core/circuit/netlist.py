@@ -1,13 +1,11 @@
-"""Netlists for each multiplier topology, built from a profile.
+"""A board's netlist as matrices' inputs, built from its profile and its topology.
 
-A ``Circuit`` is the topology (which element joins which nodes, with names and designators);
-a ``Params`` holds element values for a batch of B variants of that one circuit, so the solver
-can run a healthy board, its faults and its meter placements side by side.
-
-Node index 0 is ground; unknown node voltages are indices 1..n. Default designators:
-dc-ladder and ac-ladder stage k: input diode D(2k-1), output diode D(2k), flying capacitor
-C(2k-1), reservoir capacitor C(2k). Dickson: diodes D1..D(N+1) in a chain, pump capacitors
-C1..CN, output capacitor C(N+1).
+A ``Circuit`` is the network (which element joins which nodes, with names and designators),
+built generically from the topology's named connections (``fieldtool.core.circuit.topologies``,
+where each topology's designators and nodes are described); a ``Params`` holds element values
+for a batch of B variants of that one circuit, so the solver can run a healthy board, its
+faults and its meter placements side by side. Node index 0 is ground; unknown node voltages
+are indices 1..n.
 """
 
 from __future__ import annotations
@@ -18,6 +16,8 @@ from typing import Protocol
 import numpy as np
 
 from fieldtool.core.circuit.spec import CapacitorSpec, DiodeSpec, Profile
+from fieldtool.core.circuit.topologies import topology_of
+from fieldtool.core.circuit.topologies.base import GROUND
 
 
 @dataclass(frozen=True)
@@ -46,6 +46,7 @@ class Circuit:
     period_s: float
     edge_fraction: float
     polarity: int  # +1 or -1
+    topology: str  # its name in fieldtool.core.circuit.topologies
 
     @property
     def n(self) -> int:
@@ -106,101 +107,62 @@ def stack(batches: list[Params]) -> Params:
 
 def default_designators(profile: Profile) -> list[str]:
     """Default reference designators of a board's diodes and capacitors."""
-    n = profile.stages
-    if profile.topology == "dickson":
-        return [f"D{i}" for i in range(1, n + 2)] + [f"C{i}" for i in range(1, n + 2)]
-    return [f"D{i}" for i in range(1, 2 * n + 1)] + [f"C{i}" for i in range(1, 2 * n + 1)]
+    return topology_of(profile).designators(profile.stages)
 
 
 def default_nodes(profile: Profile) -> list[str]:
     """Names of the probeable nodes of a board."""
-    n = profile.stages
-    if profile.topology == "dickson":
-        return ["S0"] + [f"P{k}" for k in range(1, n + 1)] + ["OUT"]
-    ladder = []
-    for k in range(1, n + 1):
-        ladder += [f"P{k}", f"S{k}"]
-    return (["S0"] if profile.topology == "dc-ladder" else []) + ladder
+    return topology_of(profile).nodes(profile.stages)
 
 
 def build_circuit(profile: Profile) -> tuple[Circuit, Params]:
-    """The board's netlist and its nominal element values (a batch of one)."""
-    n = profile.stages
+    """The board's netlist and its nominal element values (a batch of one).
+
+    Node numbers: the probeable nodes first in ladder order, then any other node the parts
+    join, then the source nodes; ground is 0.
+    """
+    topology = topology_of(profile)
+    layout = topology.layout(profile)
+    probe_names = topology.nodes(profile.stages)
     names: list[str] = []
 
     def node(name: str) -> int:
-        if name == "GND":
+        if name == GROUND:
             return 0
         if name not in names:
             names.append(name)
         return names.index(name) + 1
 
-    diodes: list[tuple[str, str, str]] = []  # (ref, anode, cathode) for positive polarity
-    caps: list[tuple[str, str, str]] = []
-    sources: list[tuple[str, str, str]] = []
-    if profile.topology == "dc-ladder":
-        node("S0")
-        sources.append(("supply", "S0", "dc"))
-        sources.append(("drive", "DRV", "square"))
-        for k in range(1, n + 1):
-            node(f"P{k}")
-            node(f"S{k}")
-            diodes += [(f"D{2 * k - 1}", f"S{k - 1}", f"P{k}"), (f"D{2 * k}", f"P{k}", f"S{k}")]
-            caps += [(f"C{2 * k - 1}", f"P{k}", "DRV"), (f"C{2 * k}", f"S{k}", "GND")]
-        out = f"S{n}"
-    elif profile.topology == "ac-ladder":
-        sources.append(("drive", "AC", "sine" if profile.waveform == "sine" else "square"))
-        for k in range(1, n + 1):
-            node(f"P{k}")
-            node(f"S{k}")
-            prev_p = "AC" if k == 1 else f"P{k - 1}"
-            prev_s = "GND" if k == 1 else f"S{k - 1}"
-            diodes += [(f"D{2 * k - 1}", prev_s, f"P{k}"), (f"D{2 * k}", f"P{k}", f"S{k}")]
-            caps += [(f"C{2 * k - 1}", f"P{k}", prev_p), (f"C{2 * k}", f"S{k}", prev_s)]
-        out = f"S{n}"
-    else:  # dickson
-        node("S0")
-        sources.append(("supply", "S0", "dc"))
-        sources.append(("clock", "CLK1", "square"))
-        sources.append(("clock-inverted", "CLK2", "square-inverted"))
-        chain = ["S0"] + [f"P{k}" for k in range(1, n + 1)] + ["OUT"]
-        for name in chain:
-            node(name)
-        for i in range(1, n + 2):
-            diodes.append((f"D{i}", chain[i - 1], chain[i]))
-        for k in range(1, n + 1):
-            caps.append((f"C{k}", f"P{k}", "CLK1" if k % 2 else "CLK2"))
-        caps.append((f"C{n + 1}", "OUT", "GND"))
-        out = "OUT"
-    probe_names = default_nodes(profile)
-    for _, nd, _ in sources:
-        node(nd)
-    stray = []
-    if profile.stray_farads > 0 and profile.topology == "dickson":
-        stray = [(f"Cs_{p}", p, "GND") for p in probe_names[1:-1]]
-
+    for name in probe_names:
+        node(name)
+    for _, a, b in (*layout.diodes, *layout.capacitors):
+        node(a)
+        node(b)
+    for _, name, _ in layout.sources:
+        node(name)
+    stray = [(f"Cs_{p}", p, GROUND) for p in layout.stray_nodes]
     pol = -1 if profile.polarity == "negative" else 1
     d_nodes = np.array(
-        [[node(a), node(c)] if pol > 0 else [node(c), node(a)] for _, a, c in diodes], dtype=np.intp
+        [[node(a), node(c)] if pol > 0 else [node(c), node(a)] for _, a, c in layout.diodes],
+        dtype=np.intp,
     )
-    all_caps = caps + stray
+    all_caps = [*layout.capacitors, *stray]
     c_nodes = np.array([[node(p), node(q)] for _, p, q in all_caps], dtype=np.intp)
-    src = tuple(Source(nm, node(nd), kind) for nm, nd, kind in sources)
-    labels = {p: profile.labels.get(p, "") for p in probe_names}
     circuit = Circuit(
         node_names=tuple(names),
-        diode_refs=tuple(r for r, _, _ in diodes),
+        diode_refs=tuple(r for r, _, _ in layout.diodes),
         diode_nodes=d_nodes,
         cap_refs=tuple(r for r, _, _ in all_caps),
         cap_nodes=c_nodes,
         stray_caps=len(stray),
-        sources=src,
-        output_node=node(out),
+        sources=tuple(Source(nm, node(nd), kind) for nm, nd, kind in layout.sources),
+        output_node=node(layout.output),
         probe_nodes=tuple(node(p) for p in probe_names),
-        labels=labels,
+        labels={p: profile.labels.get(p, "") for p in probe_names},
         period_s=profile.period_s,
         edge_fraction=profile.edge_fraction,
         polarity=pol,
+        topology=topology.name,
     )
     return circuit, nominal_params(profile, circuit)
 
@@ -229,8 +191,7 @@ def nominal_params(profile: Profile, circuit: Circuit) -> Params:
         else:
             s_g.append(1.0 / profile.drive_ohms)
             s_hi.append(profile.drive_volts)
-            ac = profile.topology == "ac-ladder"
-            s_lo.append(-profile.drive_volts if ac else profile.drive_low_volts)
+            s_lo.append(topology_of(profile).drive_low_level(profile))
     g_shunt = np.zeros(circuit.n)
     i_load = np.zeros(circuit.n)
     o = circuit.output_node - 1

@@ -21,12 +21,12 @@ from fieldtool.core.circuit.spec import (
     ELECTROLYTIC_FROM_FARADS,
     POLARITIES,
     THERMAL_VOLTS_PER_KELVIN,
-    TOPOLOGIES,
     WAVEFORMS,
     CapacitorSpec,
     DiodeSpec,
     Profile,
 )
+from fieldtool.core.circuit.topologies import TOPOLOGIES
 from fieldtool.core.errors import ProfileError
 
 # ---------------------------------------------------------------------------------------------
@@ -240,22 +240,25 @@ def profile_from_dict(data: dict[str, Any], path: str = "<profile>", digest: str
     board = _Table(path, "board", data["board"])
     name = board.text("name")
     description = board.text("description", "")
-    topology = board.text("topology", choices=TOPOLOGIES)
+    topology = board.text("topology", choices=tuple(TOPOLOGIES))
+    kind = TOPOLOGIES[topology]
     polarity = board.text("polarity", "positive", choices=POLARITIES)
     stages = board.integer("stages", minimum=1, maximum=40)
     temperature_c = board.number("temperature_c", 25.0, minimum=-60.0, below=200.0)
     safe_volts = board.number("safe_volts", DEFAULT_SAFE_VOLTS, positive=True)
     board.finish()
-    if topology == "dickson" and polarity == "negative":
-        board.fail("polarity", "negative is not supported for dickson; use dc-ladder")
+    if polarity not in kind.polarities:
+        board.fail(
+            "polarity", f"{polarity} is not supported for {topology} ({kind.words}); use dc-ladder"
+        )
     thermal = THERMAL_VOLTS_PER_KELVIN * (temperature_c + 273.15)
 
-    if topology == "ac-ladder":
+    if not kind.dc_input:
         if "supply" in data:
             supply = _Table(path, "supply", data["supply"])
             supply_volts = supply.number("volts", 0.0)
             if supply_volts != 0.0:
-                supply.fail("volts", "must be 0 or absent for an ac-ladder (it has no DC input)")
+                supply.fail("volts", f"must be 0 or absent for {topology} (it has no DC input)")
             supply_ohms = supply.number("source_ohms", 0.05, positive=True)
             supply.finish()
         else:
@@ -275,11 +278,13 @@ def profile_from_dict(data: dict[str, Any], path: str = "<profile>", digest: str
         drive.fail("low_volts", f"is {drive_low:g}, expected below volts ({drive_volts:g})")
     frequency = drive.number("frequency_hz", positive=True, below=1e9)
     drive_ohms = drive.number("source_ohms", positive=True, hint=" (driver output resistance)")
-    waveform = drive.text(
-        "waveform", "sine" if topology == "ac-ladder" else "square", choices=WAVEFORMS
-    )
-    if waveform == "sine" and topology != "ac-ladder":
-        drive.fail("waveform", "sine drive is only for ac-ladder; a charge pump is clocked square")
+    waveform = drive.text("waveform", kind.waveforms[0], choices=WAVEFORMS)
+    if waveform not in kind.waveforms:
+        drive.fail(
+            "waveform",
+            f"{waveform} drive is not for {topology} ({', '.join(kind.waveforms)} only); "
+            "a charge pump is clocked square",
+        )
     edge = drive.number("edge_fraction", 0.01, positive=True, below=0.25)
     drive_tol = drive.number("tolerance", 0.02, minimum=0.0, below=0.5)
     drive.finish()

@@ -22,6 +22,7 @@ from fieldtool.core.circuit.expect import Expectation, discharge_time
 from fieldtool.core.circuit.netlist import build_circuit
 from fieldtool.core.circuit.profile import DEFAULT_SAFE_VOLTS, Profile
 from fieldtool.core.circuit.spec import display_name
+from fieldtool.core.circuit.topologies import topology_of
 
 # The profile's safe_volts default. 50 V is the shock-protection threshold NFPA 70E uses
 # (from memory: check the edition in force before relying on it).
@@ -107,9 +108,7 @@ def _source_average(profile: Profile, kind: str) -> float:
     """DC average of a source terminal while the board runs (50 % duty square, zero-mean sine)."""
     if kind == "dc":
         return profile.supply_volts
-    if kind == "sine" or profile.topology == "ac-ladder":
-        return 0.0
-    return 0.5 * (profile.drive_volts + profile.drive_low_volts)
+    return topology_of(profile).drive_average(profile)
 
 
 def node_voltages(

@@ -19,6 +19,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from fieldtool.core.circuit.netlist import Circuit, Params
+from fieldtool.core.circuit.topologies import topology_named
+from fieldtool.core.circuit.topologies.base import StartCharge
 
 GMIN = 1e-12  # S, from every node to ground (SPICE practice)
 VNTOL = 1e-6  # V, Newton absolute tolerance
@@ -437,40 +439,18 @@ def transient(
 
 
 def initial_state(circuit: Circuit, params: Params) -> np.ndarray:
-    """Capacitor voltages at t = 0 from the ideal charge-pump relations (a Newton start)."""
+    """Capacitor voltages at t = 0 from the topology's ideal relations (a Newton start)."""
     B = params.batch
-    pol = circuit.polarity
-    vd = np.clip(
+    drop = np.clip(
         np.median(params.d_nvt * np.log1p(1e-3 / np.maximum(params.d_is, 1e-30)), axis=1), 0.05, 1.5
+    )  # the forward drop at 1 mA
+    drive = next(i for i, s in enumerate(circuit.sources) if s.kind != "dc")
+    supply = [i for i, s in enumerate(circuit.sources) if s.kind == "dc"]
+    start = StartCharge(
+        vin=params.s_high[:, supply[0]] if supply else np.zeros(B),
+        high=params.s_high[:, drive],
+        low=params.s_low[:, drive],
+        diode_drop=drop,
+        polarity=circuit.polarity,
     )
-    src = {s.name: i for i, s in enumerate(circuit.sources)}
-    hi = params.s_high[:, src.get("drive", src.get("clock", 0))]
-    lo = params.s_low[:, src.get("drive", src.get("clock", 0))]
-    vin = params.s_high[:, src["supply"]] if "supply" in src else np.zeros(B)
-    names = circuit.cap_refs
-    x = np.zeros((B, len(names)))
-    kinds = {s.kind for s in circuit.sources}
-    n_stages = len(circuit.diode_refs) // 2
-    if "dc" in kinds and "square-inverted" in kinds:  # dickson
-        n_stages = len(circuit.diode_refs) - 1
-        swing = hi - lo
-        for k in range(1, n_stages + 1):
-            base = vin - vd + (k - 1) * (swing - vd)
-            x[:, names.index(f"C{k}")] = base - lo
-            if f"Cs_P{k}" in names:
-                x[:, names.index(f"Cs_P{k}")] = base + (swing if k % 2 == 0 else 0.0)
-        x[:, names.index(f"C{n_stages + 1}")] = vin - vd + n_stages * (swing - vd)
-        return x
-    if "dc" in kinds:  # dc-ladder
-        swing = hi - lo
-        for k in range(1, n_stages + 1):
-            s_prev = vin + pol * (k - 1) * (swing - 2 * vd)
-            p_k = s_prev - vd if pol > 0 else s_prev + vd - swing
-            x[:, names.index(f"C{2 * k - 1}")] = p_k - lo
-            x[:, names.index(f"C{2 * k}")] = vin + pol * k * (swing - 2 * vd)
-        return x
-    vm = np.maximum(hi - vd, 0.0)  # ac-ladder
-    for k in range(1, n_stages + 1):
-        x[:, names.index(f"C{2 * k - 1}")] = pol * (vm if k == 1 else 2 * vm)
-        x[:, names.index(f"C{2 * k}")] = pol * 2 * vm
-    return x
+    return topology_named(circuit.topology).start_charge(circuit.cap_refs, start)

@@ -10,7 +10,6 @@ from dataclasses import dataclass, field, replace
 
 from fieldtool.core.errors import ProfileError
 
-TOPOLOGIES = ("dc-ladder", "dickson", "ac-ladder")
 POLARITIES = ("positive", "negative")
 DIODE_FAMILIES = ("general", "rectifier", "small-signal")
 DIELECTRICS = ("aluminium-electrolytic", "ceramic")

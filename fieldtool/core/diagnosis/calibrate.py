@@ -20,6 +20,7 @@ from fieldtool.core.circuit.netlist import build_circuit
 from fieldtool.core.circuit.profile import DiodeSpec, Profile
 from fieldtool.core.circuit.response import linear_response
 from fieldtool.core.circuit.solver import steady_state
+from fieldtool.core.circuit.topologies import topology_of
 from fieldtool.core.errors import InputError, SolverError
 from fieldtool.core.readings import NodeReading
 
@@ -48,7 +49,7 @@ def _apply(base: Profile, theta: np.ndarray, with_supply: bool) -> Profile:
     """The profile with drive scale, diode shift and (optionally) supply scale applied."""
     scale, shift = float(np.exp(theta[0])), float(theta[1])
     p = base
-    if p.topology == "ac-ladder":
+    if topology_of(p).ac_drive:
         p = replace(p, drive_volts=p.drive_volts * scale)
     else:
         p = replace(p, drive_volts=p.drive_low_volts + (p.drive_volts - p.drive_low_volts) * scale)
@@ -103,7 +104,7 @@ def calibrate(profile: Profile, readings: Sequence[NodeReading]) -> Calibration:
     cols = [names.index(r.node) for r in used]
     y = np.array([r.volts for r in used], dtype=float)
     sigma = (np.abs(y) * profile.meter_percent / 100 + profile.meter_volts) * RECT
-    with_supply = profile.topology != "ac-ladder" and "S0" in [r.node for r in used]
+    with_supply = topology_of(profile).dc_input and "S0" in [r.node for r in used]
     theta = np.zeros(3 if with_supply else 2)
 
     def misfit(v: np.ndarray) -> float:

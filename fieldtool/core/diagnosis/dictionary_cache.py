@@ -68,7 +68,7 @@ def save(d: FaultDictionary, path: Path) -> None:
         "key": cache_key(d.profile),
         "nodes": list(d.nodes),
         "labels": d.labels,
-        "hypotheses": [[h.key, h.target, h.mode, list(h.severities)] for h in d.hypotheses],
+        "hypotheses": [[h.key, h.target, h.mode, list(h.severities), h.kind] for h in d.hypotheses],
         "failed": list(d.failed),
     }
     buffer = io.BytesIO()
@@ -99,8 +99,8 @@ def load(path: Path, profile: Profile) -> FaultDictionary | None:
         return None
     try:
         hyps = tuple(
-            Hypothesis(key, target, mode, tuple(float(s) for s in sev))
-            for key, target, mode, sev in meta["hypotheses"]
+            Hypothesis(key, target, mode, tuple(float(s) for s in sev), kind)
+            for key, target, mode, sev, kind in meta["hypotheses"]
         )
         d = FaultDictionary(
             profile=profile,

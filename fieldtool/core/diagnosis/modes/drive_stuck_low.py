@@ -1,0 +1,36 @@
+"""The square drive held low (both clocks of a Dickson pump).
+
+Only a square-driven board can have it; an AC-fed ladder's drive goes missing instead.
+"""
+
+from __future__ import annotations
+
+from fieldtool.core.circuit.netlist import Circuit, Params
+from fieldtool.core.circuit.spec import Profile
+from fieldtool.core.circuit.topologies import topology_of
+from fieldtool.core.diagnosis.modes.base import FaultMode, drive_sources
+
+
+class DriveStuckLow(FaultMode):
+    """The square drive held at its low level."""
+
+    name = "stuck-low"
+    applies_to = "drive"
+    unit = None
+    words = "drive stuck low"
+
+    def available(self, profile: Profile) -> bool:
+        """Square-driven boards only."""
+        return not topology_of(profile).ac_drive
+
+    def apply(
+        self,
+        circuit: Circuit,
+        params: Params,
+        target: str,
+        severity: float | None,
+        profile: Profile,
+    ) -> None:
+        """Each drive source's high level set to its low level."""
+        for i in drive_sources(circuit):
+            params.s_high[:, i] = params.s_low[:, i]
