@@ -13,6 +13,7 @@ from pathlib import Path
 from fieldtool.commands.boards import PROFILE_HELP, profile_arg
 from fieldtool.commands.expect import to_json as expectation_json
 from fieldtool.commands.expect import to_text as expectation_text
+from fieldtool.commands.store import PRIORS_STORE_HELP, add_store_option, notice, store_of
 from fieldtool.core.circuit.expect import expect
 from fieldtool.core.circuit.profile import Profile, profile_from_dict
 from fieldtool.core.circuit.profile_write import to_toml
@@ -23,8 +24,9 @@ from fieldtool.core.diagnosis.faults import describe, parse_fault
 from fieldtool.core.diagnosis.priors import Priors, fleet_priors, published_priors
 from fieldtool.core.diagnosis.ranking import Diagnosis, diagnose
 from fieldtool.core.errors import InputError, ProfileError
-from fieldtool.core.history.fleet import confirmed_failures
 from fieldtool.core.readings import load_readings
+from fieldtool.store import StoreAddress
+from fieldtool.store.priors import fleet_counts
 
 FAULT_HELP = (
     "TARGET:MODE[=SEVERITY], e.g. D5:open, C4:short, C3:lowcap=0.3 (fraction left), "
@@ -54,6 +56,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     dia.add_argument("profile", help=PROFILE_HELP)
     dia.add_argument("--readings", required=True, help="CSV file: node,volts[,ripple_vpp]")
     dia.add_argument("--logs", help="history folder whose confirmed repairs set the priors")
+    add_store_option(dia, PRIORS_STORE_HELP)
     dia.add_argument("--cache", help="dictionary cache folder (default: $FIELDTOOL_CACHE)")
     dia.add_argument("--json", action="store_true", help="one JSON object on stdout")
     dia.set_defaults(handler=run_diagnose)
@@ -115,13 +118,23 @@ def dictionary_for(profile: Profile, cache: str | None) -> FaultDictionary:
         )
 
 
-def priors_for(profile: Profile, d: FaultDictionary, logs: str | None) -> Priors:
-    """Fleet priors from a history folder, or the published ones."""
-    if not logs:
-        return published_priors(profile, d.hypotheses)
-    if not Path(logs).is_dir():
+def priors_for(
+    profile: Profile, d: FaultDictionary, logs: str | None, store: StoreAddress | None = None
+) -> Priors:
+    """Fleet priors from the store or a history folder, or the published ones.
+
+    A store that cannot be reached falls back to the folder, with a notice on stderr.
+    """
+    if logs and not Path(logs).is_dir():
         raise InputError(f"--logs {logs}: no such folder")
-    return fleet_priors(profile, d.hypotheses, confirmed_failures(logs, profile.name))
+    if not logs and store is None:
+        return published_priors(profile, d.hypotheses)
+    counts = fleet_counts(store, logs, profile.name)
+    if counts.notice:
+        notice(counts.notice)
+    if counts.source == "none":
+        return published_priors(profile, d.hypotheses)
+    return fleet_priors(profile, d.hypotheses, counts.counts)
 
 
 def run_diagnose(args: argparse.Namespace) -> int:
@@ -129,7 +142,7 @@ def run_diagnose(args: argparse.Namespace) -> int:
     profile = profile_arg(args.profile)
     d = dictionary_for(profile, args.cache)
     readings = load_readings(args.readings, d.nodes, d.labels)
-    result = diagnose(d, readings, priors_for(profile, d, args.logs))
+    result = diagnose(d, readings, priors_for(profile, d, args.logs, store_of(args)))
     if args.json:
         print(json.dumps(result.to_json(), indent=2))
     else:

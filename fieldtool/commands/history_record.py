@@ -22,6 +22,7 @@ from pathlib import Path
 from fieldtool import __version__
 from fieldtool.commands.boards import PROFILE_HELP, profile_arg
 from fieldtool.commands.history_text import safe
+from fieldtool.commands.store import PRIORS_STORE_HELP, add_store_option, notice, store_of
 from fieldtool.core.circuit.netlist import default_designators
 from fieldtool.core.circuit.profile import Profile
 from fieldtool.core.circuit.spec import display_name
@@ -44,8 +45,8 @@ from fieldtool.core.history import (
     check_name,
     resolve_logs_dir,
 )
-from fieldtool.core.history.fleet import confirmed_failures
 from fieldtool.core.readings import NodeReading, load_readings
+from fieldtool.store.priors import fleet_counts
 
 TOP_SUSPECTS = 5  # suspects kept in the stored diagnosis snapshot
 
@@ -73,6 +74,7 @@ def register(subparsers: argparse._SubParsersAction, logs_help: str, outcomes) -
     p.add_argument("--outcome", choices=outcomes, help="close the session with this outcome")
     p.add_argument("--technician", help="who did the work (default: your login name)")
     p.add_argument("--logs", help=logs_help)
+    add_store_option(p, PRIORS_STORE_HELP)
     p.add_argument("--json", action="store_true", help="one JSON object on stdout")
     p.set_defaults(handler=run_record)
 
@@ -144,7 +146,10 @@ def run_record(args: argparse.Namespace) -> int:
     dictionary = load_or_build(profile)
     readings = load_readings(args.readings, dictionary.nodes, profile.labels)
     after = load_readings(args.verify, dictionary.nodes, profile.labels) if args.verify else ()
-    confirmed = confirmed_failures(logs, profile.name) if logs.is_dir() else {}
+    counts = fleet_counts(store_of(args), logs, profile.name)
+    if counts.notice:
+        notice(counts.notice)
+    confirmed = counts.counts
     priors = fleet_priors(profile, dictionary.hypotheses, confirmed) if confirmed else None
     diagnosis = diagnose(dictionary, readings, priors=priors)
     top = diagnosis.suspects[:TOP_SUSPECTS]

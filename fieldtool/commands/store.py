@@ -22,6 +22,11 @@ STORE_HELP = (
     f"(default: ${ENV_VAR}); passwords go in ~/.pgpass"
 )
 
+PRIORS_STORE_HELP = (
+    f"fleet store whose confirmed repairs set the priors (default: ${ENV_VAR}); when it cannot "
+    "be reached, the local history folder is used and a notice says so"
+)
+
 
 def add_store_option(parser: argparse.ArgumentParser, help_text: str = STORE_HELP) -> None:
     """Give a command the ``--store`` option."""

@@ -10,6 +10,7 @@ import tempfile
 from pathlib import Path
 
 from fieldtool.commands.boards import PROFILE_HELP, profile_arg
+from fieldtool.commands.store import PRIORS_STORE_HELP, add_store_option, store_of
 from fieldtool.core import history as hist
 from fieldtool.core.circuit.library import user_profiles_dir
 from fieldtool.core.circuit.netlist import build_circuit
@@ -27,6 +28,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     common.add_argument("--logs", help="history folder (default: $FIELDTOOL_LOGS or ./logs)")
     common.add_argument("--technician", default="", help="your name or initials for the history")
     common.add_argument("--cache", help="fault dictionary cache folder")
+    add_store_option(common, PRIORS_STORE_HELP)
 
     tui = subparsers.add_parser("tui", parents=[common], help="open the start screen")
     tui.add_argument("--settings", help="meter settings TOML file")
@@ -93,6 +95,7 @@ def _run(args: argparse.Namespace, request=None, settings: MeterSettings | None 
         cache_dir=getattr(args, "cache", None),
         technician=getattr(args, "technician", "") or "",
         settings=settings,
+        store=store_of(args),
     )
     app.run()
     if app.writer_left_unsaved:

@@ -19,6 +19,7 @@ from fieldtool.core.diagnosis.dictionary import FaultDictionary
 from fieldtool.core.diagnosis.faults import Fault
 from fieldtool.core.errors import FieldtoolError
 from fieldtool.meters.settings import MeterSettings
+from fieldtool.store import StoreAddress
 from fieldtool.tui.dialogs import ErrorDialog, NoticeDialog, ResumeDialog
 from fieldtool.tui.meter_strip import MeterChoice
 from fieldtool.tui.session import BoardSession
@@ -39,6 +40,7 @@ class AppConfig:
     rescue_dir: Path | None = (
         None  # where unsaveable events go at quit (default ~/fieldtool-rescue)
     )
+    store: StoreAddress | None = None  # the fleet store for the priors (None: files only)
 
 
 @dataclass(frozen=True)
@@ -287,6 +289,7 @@ def make_app(
     technician: str = "",
     settings: MeterSettings | None = None,
     rescue_dir: str | os.PathLike[str] | None = None,
+    store: StoreAddress | None = None,
 ) -> FieldtoolApp:
     """The app, shared by the CLI and the tests."""
     config = AppConfig(
@@ -296,5 +299,6 @@ def make_app(
         technician=technician,
         settings=settings or MeterSettings(),
         rescue_dir=Path(rescue_dir) if rescue_dir else None,
+        store=store,
     )
     return FieldtoolApp(config, request)

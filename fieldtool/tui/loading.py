@@ -60,7 +60,13 @@ class LoadingScreen(Screen):
         # A history folder that cannot be read must not stop the probing: published priors,
         # no resume, and the writer says so (and keeps every reading) when it cannot save.
         try:
-            priors = choose_priors(r.profile, dictionary, self.config.logs_dir)
+            priors = choose_priors(
+                r.profile,
+                dictionary,
+                self.config.logs_dir,
+                self.config.store,
+                lambda text: self.app.call_from_thread(self._warn, f"Priors: {text}"),
+            )
         except HistoryError as exc:
             priors = published_priors(r.profile, dictionary.hypotheses)
             self.app.call_from_thread(self._warn, f"Fleet counts not used: {exc.message}")

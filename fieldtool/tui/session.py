@@ -9,7 +9,6 @@ starts again from the verification readings alone.
 
 from __future__ import annotations
 
-import importlib
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from pathlib import Path
@@ -22,6 +21,8 @@ from fieldtool.core.diagnosis.dictionary import FaultDictionary
 from fieldtool.core.diagnosis.priors import fleet_priors, published_priors
 from fieldtool.core.diagnosis.ranking import Diagnosis, diagnose
 from fieldtool.core.readings import NodeReading
+from fieldtool.store import StoreAddress
+from fieldtool.store.priors import fleet_counts
 
 SNAPSHOT_SUSPECTS = 5  # how many suspects a Diagnosis record keeps
 
@@ -41,18 +42,24 @@ class Taken:
         return self.volts is None
 
 
-def choose_priors(profile: Profile, dictionary: FaultDictionary, logs_dir: Path):
-    """Fleet priors when the fleet's confirmed failures are available, else published ones."""
-    try:
-        fleet = importlib.import_module("fieldtool.core.history.fleet")
-    except ModuleNotFoundError as exc:
-        if exc.name != "fieldtool.core.history.fleet":
-            raise
+def choose_priors(
+    profile: Profile,
+    dictionary: FaultDictionary,
+    logs_dir: Path,
+    store: StoreAddress | None = None,
+    notify: Callable[[str], None] | None = None,
+):
+    """Fleet priors when the fleet's confirmed failures are available, else published ones.
+
+    From ``store`` when one is set; the local history when it cannot be reached (``notify``
+    is told why).
+    """
+    counts = fleet_counts(store, logs_dir, profile.name)
+    if counts.notice and notify is not None:
+        notify(counts.notice)
+    if not counts.counts:
         return published_priors(profile, dictionary.hypotheses)
-    confirmed = fleet.confirmed_failures(logs_dir, profile.name)
-    if not confirmed:
-        return published_priors(profile, dictionary.hypotheses)
-    return fleet_priors(profile, dictionary.hypotheses, confirmed)
+    return fleet_priors(profile, dictionary.hypotheses, counts.counts)
 
 
 class BoardSession:
