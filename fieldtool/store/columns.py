@@ -75,15 +75,11 @@ def micros(stamp: str) -> int | None:
     return (moment - _EPOCH) // _MICROSECOND
 
 
-def _copy(value: str | None) -> str:
-    """One field in COPY text format (``\\N`` is NULL)."""
+def _field(value: str | None) -> str:
+    """A column value (no tab or line break: ``to_column`` escapes them) in COPY text format."""
     if value is None:
         return "\\N"
-    return value.translate(_COPY_ESCAPES) if _COPY_SPECIAL.search(value) else value
-
-
-def _number(value: int | None) -> str | None:
-    return None if value is None else str(value)
+    return value.replace("\\", "\\\\") if "\\" in value else value
 
 
 def copy_line(profile: str, board: str, obj: dict[str, Any], line: str) -> str:
@@ -101,18 +97,20 @@ def copy_line(profile: str, board: str, obj: dict[str, Any], line: str) -> str:
         designator, mode = _text(obj.get("designator"), True), _text(obj.get("mode"), True)
     elif kind == SessionClosed.kind:
         outcome = _text(obj.get("outcome"))
-    fields = (
-        to_column(obj["id"]),
-        profile,
-        board,
-        to_column(kind),
-        to_column(session) if isinstance(session, str) and session else None,
-        to_column(tk),
-        None if kind in SKIPPED_KINDS else _number(micros(tk)),
-        str(max(-_INT32, min(_INT32, obj["schema"]))),
-        designator,
-        mode,
-        outcome,
-        line,
-    )
-    return "\t".join(map(_copy, fields)) + "\n"
+    us = None if kind in SKIPPED_KINDS else micros(tk)
+    return "\t".join(
+        (
+            _field(to_column(obj["id"])),
+            _field(profile),
+            _field(board),
+            _field(to_column(kind)),
+            _field(to_column(session)) if isinstance(session, str) and session else "\\N",
+            _field(to_column(tk)),
+            "\\N" if us is None else str(us),
+            str(max(-_INT32, min(_INT32, obj["schema"]))),
+            _field(designator),
+            _field(mode),
+            _field(outcome),
+            line.translate(_COPY_ESCAPES) if _COPY_SPECIAL.search(line) else line,
+        )
+    ) + "\n"

@@ -280,21 +280,18 @@ WITH summary AS (
     SELECT profile, board, session, min(tk) AS first_tk, min(us) AS first_us,
         min(tk) FILTER (WHERE {opening}) AS opened_tk,
         min(us) FILTER (WHERE {opening}) AS opened_us,
-        max(tk) FILTER (WHERE kind = {_literal(Verification.kind)}) AS verified_tk
+        max(tk) FILTER (WHERE kind = {_literal(Verification.kind)}) AS verified_tk,
+        -- the latest closing by (time, arrival): arrays compare element by element
+        max(ARRAY[tk, lpad(seq::text, 19, '0') COLLATE "C", outcome])
+            FILTER (WHERE {closing}) AS closed
     FROM {added} WHERE {fleet_kinds}
     GROUP BY profile, board, session
-), closing AS (
-    SELECT DISTINCT ON (profile, board, session) profile, board, session, tk, seq, outcome
-    FROM {added} WHERE {fleet_kinds} AND {closing}
-    ORDER BY profile, board, session, tk DESC, seq DESC
 )
 INSERT INTO fieldtool.sessions AS s (profile, board, session, first_tk, first_us, opened_tk,
     opened_us, verified_tk, closed_tk, closed_seq, outcome)
-SELECT m.profile, m.board, m.session, m.first_tk, m.first_us, m.opened_tk, m.opened_us,
-    m.verified_tk, c.tk, c.seq, c.outcome
-FROM summary m LEFT JOIN closing c
-    ON c.profile = m.profile AND c.board = m.board AND c.session = m.session
-ORDER BY m.profile, m.board, m.session
+SELECT profile, board, session, first_tk, first_us, opened_tk, opened_us, verified_tk,
+    closed[1], closed[2]::bigint, closed[3]
+FROM summary ORDER BY profile, board, session
 ON CONFLICT (profile, board, session) DO UPDATE SET
     first_tk = LEAST(s.first_tk, excluded.first_tk),
     first_us = LEAST(s.first_us, excluded.first_us),
@@ -341,7 +338,10 @@ def _trigger_sql() -> str:
     body = ";\n".join(_derived("added") + board_counts("fieldtool", touched, _baked_filter()))
     return f"""
 CREATE OR REPLACE FUNCTION fieldtool.records_added() RETURNS trigger
-LANGUAGE plpgsql SECURITY DEFINER SET search_path = pg_catalog, pg_temp AS $$
+LANGUAGE plpgsql SECURITY DEFINER SET search_path = pg_catalog, pg_temp
+-- A push's batch touches a few boards of many: reach their rows by index, never by scanning
+-- whole summary tables (which would make a large first push quadratic).
+SET enable_seqscan = off SET enable_hashjoin = off SET enable_mergejoin = off AS $$
 BEGIN
     -- Board rows first, in one order: pushes touching the same board take turns here, so
     -- each statement below sees what the other one committed. No temporary table in here:
