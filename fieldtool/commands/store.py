@@ -124,7 +124,7 @@ def run_init(args: argparse.Namespace) -> int:
     elif rebuilt:
         said = (
             f"the store at {where} is at schema version {after}; its fleet summaries were "
-            "rebuilt for this fieldtool's fault catalogue"
+            "rebuilt by this fieldtool's rules and fault catalogue"
         )
     else:
         said = f"the store at {where} is already at schema version {after}; nothing changed"

@@ -98,19 +98,22 @@ def copy_line(profile: str, board: str, obj: dict[str, Any], line: str) -> str:
     elif kind == SessionClosed.kind:
         outcome = _text(obj.get("outcome"))
     us = None if kind in SKIPPED_KINDS else micros(tk)
-    return "\t".join(
-        (
-            _field(to_column(obj["id"])),
-            _field(profile),
-            _field(board),
-            _field(to_column(kind)),
-            _field(to_column(session)) if isinstance(session, str) and session else "\\N",
-            _field(to_column(tk)),
-            "\\N" if us is None else str(us),
-            str(max(-_INT32, min(_INT32, obj["schema"]))),
-            _field(designator),
-            _field(mode),
-            _field(outcome),
-            line.translate(_COPY_ESCAPES) if _COPY_SPECIAL.search(line) else line,
+    return (
+        "\t".join(
+            (
+                _field(to_column(obj["id"])),
+                _field(profile),
+                _field(board),
+                _field(to_column(kind)),
+                _field(to_column(session)) if isinstance(session, str) and session else "\\N",
+                _field(to_column(tk)),
+                "\\N" if us is None else str(us),
+                str(max(-_INT32, min(_INT32, obj["schema"]))),
+                _field(designator),
+                _field(mode),
+                _field(outcome),
+                line.translate(_COPY_ESCAPES) if _COPY_SPECIAL.search(line) else line,
+            )
         )
-    ) + "\n"
+        + "\n"
+    )

@@ -1,15 +1,14 @@
 """The fleet view from the store: the same view as from files, counted by the server.
 
-The store's insert trigger keeps, per board, the confirmed failures (``board_failures``),
-the parts repaired more than once (``board_repeats``) and the repairs with the days between
-them (``board_view``), counted as ``history.fleet`` counts them (``schema``). A view then
-sums those over the profile's boards in a few queries, and ``history.fleet.finish_view``
-orders them exactly as the files' view does. Days are computed as the files compute them
-(whole microseconds, then float division), so both views agree to the last bit.
+The server keeps one ``board_view`` row per board (``summaries``): its sessions by outcome,
+its confirmed failures, its repairs with the days between them and its parts repaired more
+than once, counted as ``history.fleet`` counts them. A view sums those rows over the
+profile's boards in a few queries, and ``history.fleet.finish_view`` orders the result
+exactly as the files' view does.
 
-When this fieldtool's fault catalogue or record schema differs from the one the store counted
-with (another version), the per-board counts are made afresh at read time from ``repairs``
-into temporary tables, with the same SQL, and summed the same way.
+A fieldtool whose fault catalogue or record schema differs from the one the store counted
+with makes the profile's rows afresh at read time, into a temporary table, with its own copy
+of the same SQL (``summaries.at_read_time``), and sums them the same way.
 
 Boards holding records written before records named their session are grouped by position,
 which needs the lines in order: those few boards are summarised from their lines with the
@@ -31,45 +30,31 @@ from fieldtool.core.history.fleet_cache import SKIPPED_KINDS, summarize_bytes
 from fieldtool.store.columns import from_column, to_column
 from fieldtool.store.config import StoreAddress
 from fieldtool.store.connect import connected, driver
-from fieldtool.store.schema import board_counts, catalogue, confirmed_filter, summaries_match
+from fieldtool.store.schema import summaries_match
+from fieldtool.store.summaries import at_read_time, catalogue
 
-_TEMPORARY = """
-CREATE TEMP TABLE IF NOT EXISTS board_failures (LIKE fieldtool.board_failures)
-    ON COMMIT DELETE ROWS;
-CREATE TEMP TABLE IF NOT EXISTS board_repeats (LIKE fieldtool.board_repeats)
-    ON COMMIT DELETE ROWS;
-CREATE TEMP TABLE IF NOT EXISTS board_view (LIKE fieldtool.board_view) ON COMMIT DELETE ROWS;
-"""
-_AT_READ_TIME = board_counts(
-    "pg_temp",
-    "SELECT profile, board FROM fieldtool.boards WHERE profile = %(profile)s",
-    confirmed_filter("%(schema)s", "%(targets)s", "%(target_modes)s", "%(part_modes)s"),
-)
 _OF_PROFILE = "profile = %(profile)s AND board <> ALL(%(legacy)s)"
 _OUTCOMES = f"""
-SELECT CASE WHEN closed_tk IS NULL OR coalesce(outcome, '') = '' THEN 'open' ELSE outcome END,
-    count(*)
-FROM fieldtool.sessions WHERE {_OF_PROFILE} GROUP BY 1
+SELECT label, sum(n)::bigint FROM {{t}}.board_view, unnest(outcomes, outcome_counts) o(label, n)
+WHERE {_OF_PROFILE} GROUP BY label
 """
 _FAILURES = f"""
-SELECT designator, mode, sum(n), count(*), sum(verified)
-FROM {{t}}.board_failures WHERE {_OF_PROFILE} GROUP BY designator, mode
+SELECT d, m, sum(n)::bigint, count(*), sum(v)::bigint
+FROM {{t}}.board_view, unnest(designators, modes, counts, verified) f(d, m, n, v)
+WHERE {_OF_PROFILE} GROUP BY d, m
 """
 _REPAIRS = f"""
-SELECT coalesce(sum(repairs), 0),
+SELECT coalesce(sum(repairs), 0)::bigint,
     (SELECT array_agg(gap) FROM {{t}}.board_view, unnest(gaps) gap WHERE {_OF_PROFILE})
 FROM {{t}}.board_view WHERE {_OF_PROFILE}
 """
-_RECURRING = """
-SELECT v.board, v.repairs, v.first, v.last,
-    array_agg(f.designator), array_agg(f.mode), array_agg(f.n)
-FROM {t}.board_view v
-JOIN {t}.board_failures f ON f.profile = v.profile AND f.board = v.board
-WHERE v.repairs > 1 AND v.profile = %(profile)s AND v.board <> ALL(%(legacy)s)
-GROUP BY v.board, v.repairs, v.first, v.last
+_RECURRING = f"""
+SELECT board, repairs, first, last, designators, modes, counts
+FROM {{t}}.board_view WHERE repairs > 1 AND {_OF_PROFILE}
 """
 _REPEATS = f"""
-SELECT board, designator, modes, times, shortest FROM {{t}}.board_repeats WHERE {_OF_PROFILE}
+SELECT board, repeated, shortest, repeats, repeat_modes, repeat_times
+FROM {{t}}.board_view WHERE repeated IS NOT NULL AND {_OF_PROFILE}
 """
 _LEGACY_LINES = f"""
 SELECT line FROM fieldtool.records
@@ -103,10 +88,9 @@ def _prepare(conn, address: StoreAddress, profile_name: str) -> tuple[str, dict,
     params = {"profile": profile, "legacy": legacy, "boards": len(rows), **catalogue()}
     if summaries_match(conn, address.shown):
         return "fieldtool", params, legacy
-    conn.execute(_TEMPORARY)
-    for statement in _AT_READ_TIME:
+    for statement in at_read_time():
         conn.execute(statement, params)
-    conn.execute("ANALYZE pg_temp.board_failures, pg_temp.board_repeats, pg_temp.board_view")
+    conn.execute("ANALYZE pg_temp.board_view")
     return "pg_temp", params, legacy
 
 
@@ -123,8 +107,35 @@ def _legacy_parts(conn, profile: str, legacy: list[str]) -> ViewParts:
 def _failures(conn, t: str, params: dict) -> dict[tuple[str, str], list[int]]:
     return {
         (from_column(d), from_column(m)): [count, boards, verified]
-        for d, m, count, boards, verified in conn.execute(_FAILURES.format(t=t), params)
+        for d, m, count, boards, verified in conn.execute(_FAILURES.format(t=t), params).fetchall()
     }
+
+
+def _plain(values: list[str]) -> bool:
+    """True when no value is escaped: then the server's order (bytes) is the files' order."""
+    return not any("\\" in v for v in values)
+
+
+def _recurring(board, repairs, first, last, designators, modes, counts) -> RecurringBoard:
+    tally = zip(designators, modes, counts, strict=True)
+    if _plain(designators) and _plain(modes):
+        failures = tuple(tally)
+    else:
+        failures = tuple(sorted((from_column(d), from_column(m), n) for d, m, n in tally))
+    return RecurringBoard(
+        from_column(board), repairs, failures, from_column(first), from_column(last)
+    )
+
+
+def _repeats(board, repeated, shortest, lengths, modes, times) -> list[RepeatRepair]:
+    found, at, serial = [], 0, from_column(board)
+    for designator, days, n in zip(repeated, shortest, lengths, strict=True):
+        its_modes = tuple(map(from_column, modes[at : at + n]))
+        found.append(
+            RepeatRepair(serial, from_column(designator), its_modes, (*times[at : at + n],), days)
+        )
+        at += n
+    return found
 
 
 def fleet_view(
@@ -135,21 +146,15 @@ def fleet_view(
     with connected(address, statement_timeout_s=statement_timeout_s) as conn, _snapshot(conn):
         t, params, legacy = _prepare(conn, address, profile_name)
         parts = ViewParts(boards=params["boards"] - len(legacy))
-        for label, count in conn.execute(_OUTCOMES, params):
+        for label, count in conn.execute(_OUTCOMES.format(t=t), params).fetchall():
             parts.outcomes[from_column(label)] += count
         parts.failures = _failures(conn, t, params)
         parts.repairs, gaps = conn.execute(_REPAIRS.format(t=t), params).fetchone()
         parts.gaps = gaps or []
-        for board, repairs, first, last, ds, ms, ns in conn.execute(_RECURRING.format(t=t), params):
-            tally = sorted(zip(map(from_column, ds), map(from_column, ms), ns, strict=True))
-            parts.recurring.append(
-                RecurringBoard(from_column(board), repairs, tuple(tally), first, last)
-            )
-        for board, d, modes, times, shortest in conn.execute(_REPEATS.format(t=t), params):
-            modes = tuple(map(from_column, modes))
-            parts.repeats.append(
-                RepeatRepair(from_column(board), from_column(d), modes, tuple(times), shortest)
-            )
+        rows = conn.execute(_RECURRING.format(t=t), params).fetchall()
+        parts.recurring = [_recurring(*row) for row in rows]
+        for row in conn.execute(_REPEATS.format(t=t), params).fetchall():
+            parts.repeats += _repeats(*row)
         parts.add(_legacy_parts(conn, params["profile"], legacy))
     return finish_view(profile_name, parts)
 

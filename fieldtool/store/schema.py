@@ -7,19 +7,11 @@ Everything lives in the schema ``fieldtool`` of the database the address names:
   id, 1, 2, ... are conflicting contents (kept, as ``logs merge`` keeps them). Append-only for
   everyone: a statement trigger refuses UPDATE, DELETE and TRUNCATE (an administrator who
   must remove data disables it deliberately), and the technician role has no such privilege.
-- What the fleet view needs, kept up to date by a trigger on every insert into ``records``
-  (a ``SECURITY DEFINER`` function, so technicians need no right to change them):
-  ``boards`` (records per board), ``sessions`` (each session's start, latest closing and
-  latest verification), ``actions``, ``repairs`` (the actions of sessions closed fixed, with
-  whether a verification followed) and, per board, ``board_failures``, ``board_repeats`` and
-  ``board_view`` (the confirmed failures as ``history.fleet`` counts them). The trigger locks
-  the boards' rows first, in one order, so pushes touching the same board take turns and
-  each summary is rebuilt from everything committed.
-- ``meta``: the schema version, the store's id, and the fingerprints of the summaries'
-  logic (``derived``: sessions and repairs; ``catalogue``: the fault catalogue and record
-  schema the per-board counts were made with). ``store init`` rebuilds the summaries when a
-  fingerprint differs from this fieldtool's; a fieldtool with another catalogue counts from
-  ``repairs`` at read time instead.
+- ``boards``, ``sessions``, ``actions`` and ``board_view``: what the fleet view needs, kept
+  up to date by the server on every insert (``summaries``).
+- ``meta``: the schema version, the store's id, and the fingerprints of the summaries' logic
+  (``summaries.DERIVED``, ``summaries.SUMMARY``); ``store init`` rebuilds the summaries when
+  one differs from this fieldtool's.
 
 ``MIGRATIONS[v]`` takes a store from version v to v + 1; ``store init`` applies the missing
 ones in one transaction under an advisory lock.
@@ -27,33 +19,14 @@ ones in one transaction under an advisory lock.
 
 from __future__ import annotations
 
-import hashlib
 import uuid
 
-from fieldtool.core.history import SCHEMA, Action, SessionClosed, SessionOpened, Verification
-from fieldtool.core.history.fleet_cache import SKIPPED_KINDS
-from fieldtool.core.history.sessions import PART_MODES, TARGET_MODES
 from fieldtool.store.errors import StoreSchemaError
+from fieldtool.store.summaries import DERIVED, SUMMARY, rebuild
 
 TECHNICIAN_ROLE = "fieldtool_technician"
-MIN_SERVER = 140000  # PostgreSQL 14: EXTRACT gives exact numbers, the days depend on it
+MIN_SERVER = 150000  # the oldest release the tests run against (Debian 12 ships 15)
 
-
-_PLAIN = frozenset("abcdefghijklmnopqrstuvwxyzABCDEFGHIJKLMNOPQRSTUVWXYZ0123456789_:-")
-
-
-def _literal(word: str) -> str:
-    """A catalogue or kind name as an SQL literal; only plain names are ever baked in."""
-    if not word or not set(word) <= _PLAIN:
-        raise ValueError(f"not a plain name for the store's SQL: {word!r}")
-    return f"'{word}'"
-
-
-def _array(words) -> str:
-    return f"ARRAY[{', '.join(map(_literal, words))}]::text[]"
-
-
-_SKIPPED = ", ".join(map(_literal, SKIPPED_KINDS))
 
 _V1 = """
 CREATE SCHEMA fieldtool;
@@ -113,46 +86,24 @@ CREATE TABLE fieldtool.actions (
     schema_version integer NOT NULL
 );
 CREATE INDEX actions_session ON fieldtool.actions (profile, board, session);
-CREATE TABLE fieldtool.repairs (
-    profile text COLLATE "C" NOT NULL,
-    board text COLLATE "C" NOT NULL,
-    session text COLLATE "C" NOT NULL,
-    start text COLLATE "C" NOT NULL,
-    start_us bigint,
-    first_tk text COLLATE "C" NOT NULL,
-    seq bigint NOT NULL,
-    tk text COLLATE "C" NOT NULL,
-    designator text COLLATE "C" NOT NULL,
-    mode text COLLATE "C" NOT NULL,
-    schema_version integer NOT NULL,
-    verified boolean NOT NULL
-);
-CREATE INDEX repairs_board ON fieldtool.repairs (profile, board, session);
-CREATE TABLE fieldtool.board_failures (
-    profile text COLLATE "C" NOT NULL,
-    board text COLLATE "C" NOT NULL,
-    designator text COLLATE "C" NOT NULL,
-    mode text COLLATE "C" NOT NULL,
-    n integer NOT NULL,
-    verified integer NOT NULL
-);
-CREATE INDEX board_failures_board ON fieldtool.board_failures (profile, board);
-CREATE TABLE fieldtool.board_repeats (
-    profile text COLLATE "C" NOT NULL,
-    board text COLLATE "C" NOT NULL,
-    designator text COLLATE "C" NOT NULL,
-    modes text[] NOT NULL,
-    times text[] NOT NULL,
-    shortest float8
-);
-CREATE INDEX board_repeats_board ON fieldtool.board_repeats (profile, board);
 CREATE TABLE fieldtool.board_view (
     profile text COLLATE "C" NOT NULL,
     board text COLLATE "C" NOT NULL,
-    repairs integer NOT NULL,
-    first text COLLATE "C" NOT NULL,
-    last text COLLATE "C" NOT NULL,
-    gaps float8[],
+    repairs integer NOT NULL,  -- sessions that confirmed a failure
+    first text COLLATE "C",  -- the first and last repair's start
+    last text COLLATE "C",
+    gaps float8[],  -- days between successive repairs
+    outcomes text[],  -- sessions by outcome ("open" while not closed)
+    outcome_counts integer[],
+    designators text[],  -- confirmed failures: part, mode, repairs, verified
+    modes text[],
+    counts integer[],
+    verified integer[],
+    repeated text[],  -- parts repaired more than once: part, shortest gap in days,
+    shortest float8[],  -- how many repairs, their modes and starts (flattened)
+    repeats integer[],
+    repeat_modes text[],
+    repeat_times text[],
     PRIMARY KEY (profile, board)
 );
 
@@ -169,190 +120,6 @@ FOR EACH STATEMENT EXECUTE FUNCTION fieldtool.append_only();
 
 MIGRATIONS: tuple[str, ...] = (_V1,)  # MIGRATIONS[v]: version v -> v + 1
 LATEST = len(MIGRATIONS)
-
-
-def days(micros: str) -> str:
-    """SQL for microseconds as days, rounded as Python's ``timedelta.total_seconds() / 86400``."""
-    return f"((({micros})::numeric / 1000000)::float8 / 86400)"
-
-
-def confirmed_filter(schema: str, targets: str, target_modes: str, part_modes: str) -> str:
-    """SQL keeping the ``repairs`` rows (alias r) that confirm a failure (history.sessions)."""
-    return f"""r.schema_version <= {schema} AND r.designator <> ''
-        AND CASE WHEN r.designator = ANY({targets})
-            THEN r.designator || ':' || r.mode = ANY({target_modes})
-            ELSE r.mode = ANY({part_modes}) END"""
-
-
-def catalogue() -> dict[str, object]:
-    """This fieldtool's fault catalogue and record schema, as query parameters."""
-    return {
-        "schema": SCHEMA,
-        "targets": sorted(TARGET_MODES),
-        "target_modes": sorted(f"{t}:{m}" for t, modes in TARGET_MODES.items() for m in modes),
-        "part_modes": sorted(PART_MODES),
-    }
-
-
-def _baked_filter() -> str:
-    c = catalogue()
-    return confirmed_filter(
-        str(c["schema"]), _array(c["targets"]), _array(c["target_modes"]), _array(c["part_modes"])
-    )
-
-
-def board_counts(target: str, boards: str, confirmed: str) -> list[str]:
-    """SQL rebuilding ``board_failures``, ``board_repeats`` and ``board_view`` in ``target``.
-
-    Args:
-        target: the schema holding those tables (``fieldtool``, or ``pg_temp`` at read time).
-        boards: a query giving the (profile, board) pairs to rebuild.
-        confirmed: ``confirmed_filter``'s condition on ``fieldtool.repairs r``.
-
-    Returns:
-        Two statements: the old rows go, then the new ones come (one statement cannot do
-        both on a table with a unique key).
-    """
-    gone = "x USING touched WHERE x.profile = touched.profile AND x.board = touched.board"
-    return [
-        f"""
-WITH touched AS ({boards}),
-failures_gone AS (DELETE FROM {target}.board_failures {gone}),
-repeats_gone AS (DELETE FROM {target}.board_repeats {gone})
-DELETE FROM {target}.board_view {gone}""",
-        f"""
-WITH touched AS ({boards}),
-confirmed AS (
-    SELECT r.profile, r.board, r.session, r.start, r.start_us, r.first_tk, r.designator,
-        r.mode, bool_or(r.verified) AS verified, min(r.tk) AS tk1, min(r.seq) AS seq1
-    FROM touched JOIN fieldtool.repairs r
-        ON r.profile = touched.profile AND r.board = touched.board
-    WHERE {confirmed}
-    GROUP BY r.profile, r.board, r.session, r.start, r.start_us, r.first_tk, r.designator, r.mode
-), failures_new AS (
-    INSERT INTO {target}.board_failures
-    SELECT profile, board, designator, mode, count(*), count(*) FILTER (WHERE verified)
-    FROM confirmed GROUP BY profile, board, designator, mode
-), repeats_new AS (
-    INSERT INTO {target}.board_repeats
-    SELECT profile, board, designator, array_agg(mode ORDER BY o), array_agg(start ORDER BY o),
-        min(gap)
-    FROM (
-        SELECT profile, board, designator, mode, start, row_number() OVER w AS o,
-            {days("start_us - lag(start_us) OVER w")} AS gap
-        FROM confirmed
-        WINDOW w AS (PARTITION BY profile, board, designator
-                     ORDER BY start, first_tk, session, tk1, seq1)
-    ) part
-    GROUP BY profile, board, designator HAVING count(*) > 1
-), repair AS (
-    SELECT DISTINCT profile, board, session, start, start_us, first_tk FROM confirmed
-)
-INSERT INTO {target}.board_view
-SELECT profile, board, count(*), min(start), max(start),
-    array_agg(gap ORDER BY o) FILTER (WHERE gap IS NOT NULL)
-FROM (
-    SELECT profile, board, start, row_number() OVER w AS o,
-        {days("start_us")} - lag({days("start_us")}) OVER w AS gap
-    FROM repair
-    WINDOW w AS (PARTITION BY profile, board ORDER BY start, first_tk, session)
-) one_board
-GROUP BY profile, board""",
-    ]
-
-
-def _derived(added: str) -> list[str]:
-    """The statements that bring the summaries up to date for the records in ``added``."""
-    closing = "kind = " + _literal(SessionClosed.kind)
-    opening = "kind = " + _literal(SessionOpened.kind)
-    later = """excluded.closed_tk IS NOT NULL AND (s.closed_tk IS NULL
-            OR (excluded.closed_tk, excluded.closed_seq) > (s.closed_tk, s.closed_seq))"""
-    fleet_kinds = f"session IS NOT NULL AND kind NOT IN ({_SKIPPED})"
-    return [
-        f"""
-INSERT INTO fieldtool.boards AS b (profile, board, records, legacy)
-SELECT profile, board, count(*), count(*) FILTER (WHERE session IS NULL)
-FROM {added} GROUP BY profile, board ORDER BY profile, board
-ON CONFLICT (profile, board) DO UPDATE
-SET records = b.records + excluded.records, legacy = b.legacy + excluded.legacy""",
-        f"""
-WITH summary AS (
-    SELECT profile, board, session, min(tk) AS first_tk, min(us) AS first_us,
-        min(tk) FILTER (WHERE {opening}) AS opened_tk,
-        min(us) FILTER (WHERE {opening}) AS opened_us,
-        max(tk) FILTER (WHERE kind = {_literal(Verification.kind)}) AS verified_tk,
-        -- the latest closing by (time, arrival): arrays compare element by element
-        max(ARRAY[tk, lpad(seq::text, 19, '0') COLLATE "C", outcome])
-            FILTER (WHERE {closing}) AS closed
-    FROM {added} WHERE {fleet_kinds}
-    GROUP BY profile, board, session
-)
-INSERT INTO fieldtool.sessions AS s (profile, board, session, first_tk, first_us, opened_tk,
-    opened_us, verified_tk, closed_tk, closed_seq, outcome)
-SELECT profile, board, session, first_tk, first_us, opened_tk, opened_us, verified_tk,
-    closed[1], closed[2]::bigint, closed[3]
-FROM summary ORDER BY profile, board, session
-ON CONFLICT (profile, board, session) DO UPDATE SET
-    first_tk = LEAST(s.first_tk, excluded.first_tk),
-    first_us = LEAST(s.first_us, excluded.first_us),
-    opened_tk = LEAST(s.opened_tk, excluded.opened_tk),
-    opened_us = LEAST(s.opened_us, excluded.opened_us),
-    closed_tk = CASE WHEN {later} THEN excluded.closed_tk ELSE s.closed_tk END,
-    closed_seq = CASE WHEN {later} THEN excluded.closed_seq ELSE s.closed_seq END,
-    outcome = CASE WHEN {later} THEN excluded.outcome ELSE s.outcome END,
-    verified_tk = GREATEST(s.verified_tk, excluded.verified_tk)""",
-        f"""
-INSERT INTO fieldtool.actions
-    (profile, board, session, seq, tk, designator, mode, schema_version)
-SELECT profile, board, session, seq, tk, designator, mode, schema_version
-FROM {added} WHERE kind = {_literal(Action.kind)} AND session IS NOT NULL
-    AND designator IS NOT NULL AND mode IS NOT NULL""",
-        f"""
-WITH touched AS (SELECT DISTINCT profile, board, session FROM {added} WHERE {fleet_kinds}),
-gone AS (
-    DELETE FROM fieldtool.repairs r USING touched t
-    WHERE r.profile = t.profile AND r.board = t.board AND r.session = t.session
-)
-INSERT INTO fieldtool.repairs
-SELECT a.profile, a.board, a.session, coalesce(s.opened_tk, s.first_tk),
-    CASE WHEN s.opened_tk IS NULL THEN s.first_us ELSE s.opened_us END, s.first_tk,
-    a.seq, a.tk, a.designator, a.mode, a.schema_version, coalesce(s.verified_tk >= a.tk, false)
-FROM touched t
-JOIN fieldtool.sessions s ON s.profile = t.profile AND s.board = t.board AND s.session = t.session
-JOIN fieldtool.actions a ON a.profile = t.profile AND a.board = t.board AND a.session = t.session
-WHERE s.closed_tk IS NOT NULL AND s.outcome = 'fixed'""",
-    ]
-
-
-def _fingerprint(text: str) -> str:
-    return hashlib.sha256(text.encode("utf-8")).hexdigest()[:16]
-
-
-DERIVED = _fingerprint("".join(_derived("added")))
-CATALOGUE = _fingerprint("".join(board_counts("fieldtool", "added", _baked_filter())))
-
-
-def _trigger_sql() -> str:
-    """The insert trigger: every summary statement, then the per-board counts, baked."""
-    touched = "SELECT DISTINCT profile, board FROM added"
-    body = ";\n".join(_derived("added") + board_counts("fieldtool", touched, _baked_filter()))
-    return f"""
-CREATE OR REPLACE FUNCTION fieldtool.records_added() RETURNS trigger
-LANGUAGE plpgsql SECURITY DEFINER SET search_path = pg_catalog, pg_temp
--- A push's batch touches a few boards of many: reach their rows by index, never by scanning
--- whole summary tables (which would make a large first push quadratic).
-SET enable_seqscan = off SET enable_hashjoin = off SET enable_mergejoin = off AS $$
-BEGIN
-    -- Board rows first, in one order: pushes touching the same board take turns here, so
-    -- each statement below sees what the other one committed. No temporary table in here:
-    -- a definer's function must not touch objects the caller could have made.
-{body};
-    RETURN NULL;
-END $$;
-DROP TRIGGER IF EXISTS records_added ON fieldtool.records;
-CREATE TRIGGER records_added AFTER INSERT ON fieldtool.records
-REFERENCING NEW TABLE AS added FOR EACH STATEMENT EXECUTE FUNCTION fieldtool.records_added();
-"""
 
 
 def _meta(conn, key: str) -> str | None:
@@ -413,7 +180,7 @@ def summaries_match(conn, shown: str) -> bool:
             f"the store at {shown} summarises sessions as another fieldtool version does; "
             "an administrator rebuilds the summaries with 'fieldtool store init --store URL'"
         )
-    return _meta(conn, "catalogue") == CATALOGUE
+    return _meta(conn, "summary") == SUMMARY
 
 
 def migrate(conn) -> tuple[int, int, bool]:
@@ -427,7 +194,7 @@ def migrate(conn) -> tuple[int, int, bool]:
         server = conn.info.server_version
         if server < MIN_SERVER:
             raise StoreSchemaError(
-                f"the server is PostgreSQL {server // 10000}; a store needs 14 or newer"
+                f"the server is PostgreSQL {server // 10000}; a store needs 15 or newer"
             )
         encoding = conn.execute("SELECT current_setting('server_encoding')").fetchone()[0]
         if encoding != "UTF8":
@@ -446,26 +213,12 @@ def migrate(conn) -> tuple[int, int, bool]:
         if before == 0:
             _set_meta(conn, "store_id", uuid.uuid4().hex)
         _set_meta(conn, "schema_version", str(LATEST))
-        rebuilt = _meta(conn, "derived") != DERIVED or _meta(conn, "catalogue") != CATALOGUE
+        rebuilt = _meta(conn, "derived") != DERIVED or _meta(conn, "summary") != SUMMARY
         if rebuilt:
-            _rebuild(conn)
+            rebuild(conn)
+            _set_meta(conn, "derived", DERIVED)
+            _set_meta(conn, "summary", SUMMARY)
     return before, LATEST, rebuilt and before > 0
-
-
-def _rebuild(conn) -> None:
-    """Install this version's trigger and rebuild every summary from the records."""
-    conn.execute(_trigger_sql())
-    conn.execute(
-        "TRUNCATE fieldtool.boards, fieldtool.sessions, fieldtool.actions, fieldtool.repairs, "
-        "fieldtool.board_failures, fieldtool.board_repeats, fieldtool.board_view"
-    )
-    for statement in _derived("fieldtool.records"):
-        conn.execute(statement)
-    everything = "SELECT profile, board FROM fieldtool.boards"
-    for statement in board_counts("fieldtool", everything, _baked_filter()):
-        conn.execute(statement)
-    _set_meta(conn, "derived", DERIVED)
-    _set_meta(conn, "catalogue", CATALOGUE)
 
 
 def technician_sql(database: str, owner: str, role: str = TECHNICIAN_ROLE) -> str:

@@ -42,8 +42,8 @@ def test_a_technician_adds_and_reads_but_never_changes_or_deletes(tmp_path, tech
         "DELETE FROM fieldtool.records",
         "TRUNCATE fieldtool.records",
         "UPDATE fieldtool.sessions SET outcome = 'fixed'",
-        "DELETE FROM fieldtool.board_failures",
-        "INSERT INTO fieldtool.board_view VALUES ('p', 'b', 1, 'x', 'y', NULL)",
+        "DELETE FROM fieldtool.board_view",
+        "INSERT INTO fieldtool.boards VALUES ('p', 'b', 1, 0)",
     ]
     with psycopg.connect(technician.conninfo, autocommit=True) as conn:
         for sql in refused:
@@ -73,9 +73,9 @@ def test_store_init_prints_the_role_sql_and_says_what_it_did(pg, capsys):
     code, out, _ = run(capsys, "store", "init", "--store", url, "--role", "techs")
     assert out.startswith("the store at") and "nothing changed" in out and '"techs"' in out
     with psycopg.connect(url, autocommit=True) as conn:
-        conn.execute("UPDATE fieldtool.meta SET value = 'old' WHERE key = 'catalogue'")
+        conn.execute("UPDATE fieldtool.meta SET value = 'old' WHERE key = 'summary'")
     code, out, _ = run(capsys, "store", "init", "--store", url)
-    assert "its fleet summaries were rebuilt for this fieldtool's fault catalogue" in out
+    assert "its fleet summaries were rebuilt by this fieldtool's rules and fault catalogue" in out
 
 
 def test_a_database_without_a_store_or_from_a_newer_version_is_refused(pg, store, admin, capsys):
