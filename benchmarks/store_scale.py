@@ -90,9 +90,8 @@ def time_near(rng: random.Random, days: float):
 def run(address: StoreAddress, fleet: Path, work: Path, boards: int) -> None:
     """The measurements (see module docstring)."""
     t, report = timed(push, address, fleet)
-    print(
-        f"first push into the empty store: {t:.1f} s ({report.added} records, {report.boards} boards)"
-    )
+    counted = f"{report.added} records, {report.boards} boards"
+    print(f"first push into the empty store: {t:.1f} s ({counted})")
     t, again = timed(push, address, fleet)
     print(f"the same push again: {t:.2f} s ({again.added} new, {again.already_present} present)")
     t, full = timed(push, address, fleet, use_cursor=False)
