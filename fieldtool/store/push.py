@@ -142,7 +142,7 @@ class _Parsers:
     no child ever holds a copy of it; at most ``AHEAD`` parsed files wait in memory.
     """
 
-    AHEAD = 32
+    AHEAD = 128  # files: about two batches, so parsing goes on while the server works
 
     def __init__(self, files: int) -> None:
         can_fork = "fork" in multiprocessing.get_all_start_methods()
