@@ -262,11 +262,12 @@ class _Sender:
             inserted = next(n for p, _, _, _, n in rows if p is None)
             for profile, board, rid, line in (r[:4] for r in rows if r[0] is not None):
                 if self._store_version(cur, rid, line):
-                    conflicts.append(Conflict(from_column(board), from_column(profile), rid))
+                    conflict = Conflict(from_column(board), from_column(profile), from_column(rid))
+                    conflicts.append(conflict)
         added = inserted + len(conflicts)
         self.tally.added += added
         self.tally.present += self.count - added
-        self.tally.conflicts += [Conflict(c.board, c.profile, from_column(c.id)) for c in conflicts]
+        self.tally.conflicts += conflicts
         self.direct = added == self.count  # nothing was there: try the quick way again
 
     def _store_version(self, cur, rid: str, line: str) -> bool:

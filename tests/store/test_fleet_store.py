@@ -88,3 +88,24 @@ def test_unknown_profile_and_board_say_what_the_store_holds(tmp_path, store, cap
     code, _, err = run(capsys, "history", "TG-0024", "--store", store.conninfo)
     assert code == 2 and "did you mean TG-0042?" in err
     assert store_fleet.confirmed_failures(store, "tidegauge") == {}
+
+
+def test_offline_history_and_fleet_show_the_local_files(tmp_path, capsys, monkeypatch):
+    """$FIELDTOOL_STORE set but unreachable (nothing listens on its port): the laptop's files
+    answer, with a notice; an explicit --logs reads the files without asking the store."""
+    import socket
+
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        port = s.getsockname()[1]
+    monkeypatch.chdir(tmp_path)
+    monkeypatch.setenv("FIELDTOOL_STORE", f"postgresql://ana:pw@127.0.0.1:{port}/fleet")
+    session(tmp_path / "logs", "SN1", day(0), "fixed", [("D5", "open")])
+    code, out, err = run(capsys, "history", "SN1")
+    assert code == 0 and out.startswith("Board SN1: 1 session(s)")
+    assert err.startswith("fieldtool: notice: cannot connect to the store at postgresql://ana:***@")
+    assert f"showing the local files in {tmp_path / 'logs'}" in err and "pw@" not in err
+    code, out, err = run(capsys, "fleet", "cw6", "--json")
+    assert code == 0 and json.loads(out)["repairs"] == 1 and "notice" in err
+    code, out, err = run(capsys, "fleet", "cw6", "--logs", "logs", "--json")
+    assert code == 0 and err == "" and json.loads(out)["repairs"] == 1
