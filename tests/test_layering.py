@@ -48,18 +48,22 @@ def test_core_has_subsystems():
         assert f"fieldtool.core.{name}" in modules
 
 
-def test_core_imports_neither_textual_nor_serial():
-    modules = _modules(fieldtool.core)
+def _loaded(modules: list[str], roots: tuple[str, ...]) -> str:
+    """Which of ``roots`` importing ``modules`` loads, in a fresh interpreter."""
     code = (
         "import importlib, sys\n"
         f"for m in {modules!r}:\n"
         "    importlib.import_module(m)\n"
-        "roots = ('textual', 'serial', 'rich')\n"
+        f"roots = {roots!r}\n"
         "print(','.join(sorted(m for m in sys.modules if m.split('.')[0] in roots)))\n"
     )
-    out = subprocess.run(
+    return subprocess.run(
         [sys.executable, "-c", code], capture_output=True, text=True, check=True
     ).stdout.strip()
+
+
+def test_core_imports_neither_textual_nor_serial():
+    out = _loaded(_modules(fieldtool.core), ("textual", "serial", "rich"))
     assert out == "", f"core pulled in {out}"
 
 
@@ -108,16 +112,7 @@ def test_store_imports_only_core():
             if n.split(".")[1:2] and n.split(".")[1] in ("meters", "commands", "tui")
         }
         assert not bad, f"{module} imports {sorted(bad)}"
-    code = (
-        "import importlib, sys\n"
-        f"for m in {_modules(fieldtool.store)!r}:\n"
-        "    importlib.import_module(m)\n"
-        "roots = ('textual', 'serial', 'psycopg')\n"
-        "print(','.join(sorted(m for m in sys.modules if m.split('.')[0] in roots)))\n"
-    )
-    out = subprocess.run(
-        [sys.executable, "-c", code], capture_output=True, text=True, check=True
-    ).stdout.strip()
+    out = _loaded(_modules(fieldtool.store), ("textual", "serial", "psycopg"))
     assert out == "", f"importing the store pulled in {out} (psycopg only when connecting)"
 
 

@@ -40,7 +40,7 @@ from fieldtool.core.history import (
     parse_lines,
     parse_object,
 )
-from fieldtool.core.history.files import rewrite
+from fieldtool.core.history.files import identity, read_with_identity, rewrite
 from fieldtool.core.history.merge import Conflict, MergeReport, same_record, source_files
 from fieldtool.store.columns import COLUMNS, copy_line, from_column, to_column
 from fieldtool.store.config import StoreAddress
@@ -106,10 +106,6 @@ class _Parsed:
     skipped: str | None = None
 
 
-def _identity(st: os.stat_result) -> tuple[int, ...]:
-    return (st.st_ino, st.st_dev, st.st_size, st.st_mtime_ns, st.st_ctime_ns)
-
-
 def _parse_file(job: tuple[str, str, str]) -> _Parsed:
     """Read one board file (identity first) and turn its records into COPY rows."""
     profile, serial, name = job
@@ -121,18 +117,13 @@ def _parse_file(job: tuple[str, str, str]) -> _Parsed:
     except BadNameError as exc:
         return _Parsed(key, skipped=f"{path}: {exc.message}")
     try:
-        fd = os.open(path, os.O_RDONLY | os.O_CLOEXEC)
-        try:
-            st = os.fstat(fd)  # identity first: bytes appended after this make it stale
-            data = os.pread(fd, st.st_size, 0) if st.st_size else b""
-        finally:
-            os.close(fd)
+        ident, data = read_with_identity(path)
     except OSError as exc:
         return _Parsed(key, skipped=f"could not read {path}: {exc.strerror or exc}")
-    found, damaged = parse_lines(data[: st.st_size], str(path), parse_object)
+    found, damaged = parse_lines(data, str(path), parse_object)
     p, b = to_column(profile), to_column(serial)
     rows = "".join(copy_line(p, b, obj, line) for obj, line in found).encode("utf-8")
-    return _Parsed(key, _identity(st), len(found), tuple(damaged), rows)
+    return _Parsed(key, tuple(ident), len(found), tuple(damaged), rows)
 
 
 class _Parsers:
@@ -377,7 +368,7 @@ def _unchanged(known: Any, path: Path, stored: int | None) -> bool:
     if not isinstance(known, dict) or not isinstance(known.get("records"), int):
         return False
     try:
-        identity = list(_identity(path.stat()))
+        now = identity(path.stat())
     except OSError:
         return False
-    return known.get("identity") == identity and (stored or 0) >= known["records"]
+    return known.get("identity") == now and (stored or 0) >= known["records"]
