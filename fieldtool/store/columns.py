@@ -57,12 +57,6 @@ def from_column(value: str) -> str:
     return json.loads(f'"{value}"') if "\\" in value else value
 
 
-def _text(value: Any, strip: bool = False) -> str | None:
-    if not isinstance(value, str):
-        return None
-    return to_column(value.strip() if strip else value)
-
-
 def micros(stamp: str) -> int | None:
     """A stored time (``time_key`` form) as microseconds since 1970, as the fleet view reads
     it (a time without a zone is UTC); None when it is not a time."""
@@ -75,45 +69,45 @@ def micros(stamp: str) -> int | None:
     return (moment - _EPOCH) // _MICROSECOND
 
 
-def _field(value: str | None) -> str:
-    """A column value (no tab or line break: ``to_column`` escapes them) in COPY text format."""
-    if value is None:
+def cell(value: str) -> str:
+    """A text value as a COPY text field of its column: ``to_column``, then COPY's escaping of
+    backslashes (a column value never holds a tab or a line break: ``to_column`` escapes them).
+    """
+    if value.isalnum() or (value.isprintable() and '"' not in value and "\\" not in value):
+        return value  # the usual case, checked quickly: kept as it is
+    return to_column(value).replace("\\", "\\\\")
+
+
+def _optional(value: Any, strip: bool = False) -> str:
+    """A field that may be missing or not a string in the record: ``\\N`` (NULL) then."""
+    if not isinstance(value, str):
         return "\\N"
-    return value.replace("\\", "\\\\") if "\\" in value else value
+    return cell(value.strip() if strip else value)
 
 
 def copy_line(profile: str, board: str, obj: dict[str, Any], line: str) -> str:
     """One record as a COPY text row of ``COLUMNS``, newline included.
 
     Args:
-        profile, board: already as columns (``to_column``).
+        profile, board: already as COPY fields (``cell``).
         obj: the line's JSON object, its envelope checked (``history.parse_object``).
     """
     kind = obj["kind"]
     tk = time_key(obj["time"])
     session = obj.get("session")
-    designator = mode = outcome = None
+    session = cell(session) if isinstance(session, str) and session else "\\N"
+    designator = mode = outcome = "\\N"
     if kind == Action.kind:
-        designator, mode = _text(obj.get("designator"), True), _text(obj.get("mode"), True)
+        designator = _optional(obj.get("designator"), strip=True)
+        mode = _optional(obj.get("mode"), strip=True)
     elif kind == SessionClosed.kind:
-        outcome = _text(obj.get("outcome"))
+        outcome = _optional(obj.get("outcome"))
     us = None if kind in SKIPPED_KINDS else micros(tk)
+    us = "\\N" if us is None else str(us)
+    schema = max(-_INT32, min(_INT32, obj["schema"]))
+    if _COPY_SPECIAL.search(line):
+        line = line.translate(_COPY_ESCAPES)
     return (
-        "\t".join(
-            (
-                _field(to_column(obj["id"])),
-                _field(profile),
-                _field(board),
-                _field(to_column(kind)),
-                _field(to_column(session)) if isinstance(session, str) and session else "\\N",
-                _field(to_column(tk)),
-                "\\N" if us is None else str(us),
-                str(max(-_INT32, min(_INT32, obj["schema"]))),
-                _field(designator),
-                _field(mode),
-                _field(outcome),
-                line.translate(_COPY_ESCAPES) if _COPY_SPECIAL.search(line) else line,
-            )
-        )
-        + "\n"
+        f"{cell(obj['id'])}\t{profile}\t{board}\t{cell(kind)}\t{session}\t{cell(tk)}\t{us}\t"
+        f"{schema}\t{designator}\t{mode}\t{outcome}\t{line}\n"
     )

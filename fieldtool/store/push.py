@@ -42,7 +42,7 @@ from fieldtool.core.history import (
 )
 from fieldtool.core.history.files import identity, read_with_identity, rewrite
 from fieldtool.core.history.merge import Conflict, MergeReport, same_record, source_files
-from fieldtool.store.columns import COLUMNS, copy_line, from_column, to_column
+from fieldtool.store.columns import COLUMNS, cell, copy_line, from_column, to_column
 from fieldtool.store.config import StoreAddress
 from fieldtool.store.connect import connected, driver
 from fieldtool.store.errors import StoreUnavailable
@@ -121,7 +121,7 @@ def _parse_file(job: tuple[str, str, str]) -> _Parsed:
     except OSError as exc:
         return _Parsed(key, skipped=f"could not read {path}: {exc.strerror or exc}")
     found, damaged = parse_lines(data, str(path), parse_object)
-    p, b = to_column(profile), to_column(serial)
+    p, b = cell(profile), cell(serial)
     rows = "".join(copy_line(p, b, obj, line) for obj, line in found).encode("utf-8")
     return _Parsed(key, tuple(ident), len(found), tuple(damaged), rows)
 
