@@ -17,6 +17,8 @@ files' own code (``history.fleet.view_parts``) and added in.
 
 from __future__ import annotations
 
+import itertools
+
 from fieldtool.core.history import NotFoundError, check_name
 from fieldtool.core.history.fleet import (
     FleetView,
@@ -104,37 +106,39 @@ def _legacy_parts(conn, profile: str, legacy: list[str]) -> ViewParts:
     return view_parts(summaries)
 
 
-def _failures(conn, t: str, params: dict) -> dict[tuple[str, str], list[int]]:
+def _failures(cur, t: str, params: dict) -> dict[tuple[str, str], list[int]]:
     return {
         (from_column(d), from_column(m)): [count, boards, verified]
-        for d, m, count, boards, verified in conn.execute(_FAILURES.format(t=t), params).fetchall()
+        for d, m, count, boards, verified in cur.execute(_FAILURES.format(t=t), params).fetchall()
     }
 
 
-def _plain(values: list[str]) -> bool:
-    """True when no value is escaped: then the server's order (bytes) is the files' order."""
-    return not any("\\" in v for v in values)
+def _plain(*columns: list[str]) -> bool:
+    """True when no value is escaped (no backslash): then each value is itself, and the
+    server's order of them (by bytes) is the files' order (by code point)."""
+    return "\\" not in "".join(itertools.chain.from_iterable(columns))
 
 
 def _recurring(board, repairs, first, last, designators, modes, counts) -> RecurringBoard:
-    tally = zip(designators, modes, counts, strict=True)
-    if _plain(designators) and _plain(modes):
-        failures = tuple(tally)
-    else:
-        failures = tuple(sorted((from_column(d), from_column(m), n) for d, m, n in tally))
-    return RecurringBoard(
-        from_column(board), repairs, failures, from_column(first), from_column(last)
-    )
+    if _plain(designators, modes, [board, first, last]):
+        tally = tuple(zip(designators, modes, counts, strict=True))
+        return RecurringBoard(board, repairs, tally, first, last)
+    tally = zip(map(from_column, designators), map(from_column, modes), counts, strict=True)
+    first, last = from_column(first), from_column(last)
+    return RecurringBoard(from_column(board), repairs, tuple(sorted(tally)), first, last)
 
 
 def _repeats(board, repeated, shortest, lengths, modes, times) -> list[RepeatRepair]:
-    found, at, serial = [], 0, from_column(board)
+    if not _plain(repeated, modes, times, [board]):
+        board, repeated = from_column(board), list(map(from_column, repeated))
+        modes, times = list(map(from_column, modes)), list(map(from_column, times))
+    found, at = [], 0
     for designator, days, n in zip(repeated, shortest, lengths, strict=True):
-        its_modes = tuple(map(from_column, modes[at : at + n]))
+        end = at + n
         found.append(
-            RepeatRepair(serial, from_column(designator), its_modes, (*times[at : at + n],), days)
+            RepeatRepair(board, designator, tuple(modes[at:end]), tuple(times[at:end]), days)
         )
-        at += n
+        at = end
     return found
 
 
@@ -146,14 +150,15 @@ def fleet_view(
     with connected(address, statement_timeout_s=statement_timeout_s) as conn, _snapshot(conn):
         t, params, legacy = _prepare(conn, address, profile_name)
         parts = ViewParts(boards=params["boards"] - len(legacy))
-        for label, count in conn.execute(_OUTCOMES.format(t=t), params).fetchall():
+        cur = conn.cursor(binary=True)  # arrays of thousands of values: binary reads quicker
+        for label, count in cur.execute(_OUTCOMES.format(t=t), params).fetchall():
             parts.outcomes[from_column(label)] += count
-        parts.failures = _failures(conn, t, params)
-        parts.repairs, gaps = conn.execute(_REPAIRS.format(t=t), params).fetchone()
+        parts.failures = _failures(cur, t, params)
+        parts.repairs, gaps = cur.execute(_REPAIRS.format(t=t), params).fetchone()
         parts.gaps = gaps or []
-        rows = conn.execute(_RECURRING.format(t=t), params).fetchall()
+        rows = cur.execute(_RECURRING.format(t=t), params).fetchall()
         parts.recurring = [_recurring(*row) for row in rows]
-        for row in conn.execute(_REPEATS.format(t=t), params).fetchall():
+        for row in cur.execute(_REPEATS.format(t=t), params).fetchall():
             parts.repeats += _repeats(*row)
         parts.add(_legacy_parts(conn, params["profile"], legacy))
     return finish_view(profile_name, parts)
