@@ -7,6 +7,7 @@ Writes the tide-gauge fleet of ``history_scale.py`` (same generator), starts a P
 server on this machine in a temporary folder (or uses ``--store``, an empty database the
 script initialises), and measures, wall-clock:
 
+- reading and parsing the fleet as a push does, nothing sent (the laptop's share of a push);
 - the first push into the empty store (target <= 60 s), and pushing again with nothing new
   (target <= 10 s; also without the push cursor, every file checked: ``--all``);
 - the fleet view from the store (target <= 1 s): first after the push, then warm; and the
@@ -43,9 +44,10 @@ import psycopg  # noqa: E402
 from history_scale import PROFILE, Writer, generate, machine, timed  # noqa: E402
 
 from fieldtool.core.history.fleet import fleet_view as files_view  # noqa: E402
+from fieldtool.core.history.merge import source_files  # noqa: E402
 from fieldtool.store import StoreAddress  # noqa: E402
 from fieldtool.store.fleet import confirmed_failures, fleet_view  # noqa: E402
-from fieldtool.store.push import push  # noqa: E402
+from fieldtool.store.push import _Parsers, push  # noqa: E402
 from fieldtool.store.read import read_board  # noqa: E402
 from fieldtool.store.schema import migrate  # noqa: E402
 from tests.pg_server import Server, why_unavailable  # noqa: E402
@@ -87,8 +89,18 @@ def time_near(rng: random.Random, days: float):
     return EPOCH + timedelta(days=days + rng.uniform(0, 20))
 
 
+def _parse_only(fleet: Path) -> int:
+    """What a laptop does for a push before anything is sent: read and parse every file."""
+    files = source_files(fleet)
+    jobs = [(profile, serial, str(path)) for profile, serial, path in files]
+    with _Parsers(len(jobs)) as parsers:
+        return sum(parsed.records for parsed in parsers.parse(jobs))
+
+
 def run(address: StoreAddress, fleet: Path, work: Path, boards: int) -> None:
     """The measurements (see module docstring)."""
+    t, records = timed(_parse_only, fleet)
+    print(f"reading and parsing the fleet for a push, nothing sent: {t:.1f} s ({records} records)")
     t, report = timed(push, address, fleet)
     counted = f"{report.added} records, {report.boards} boards"
     print(f"first push into the empty store: {t:.1f} s ({counted})")
