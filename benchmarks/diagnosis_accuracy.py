@@ -50,7 +50,7 @@ from fieldtool.core.diagnosis.dictionary_cache import load_or_build  # noqa: E40
 from fieldtool.core.diagnosis.faults import BOARD_TARGETS, Fault, apply_fault  # noqa: E402
 from fieldtool.core.diagnosis.priors import published_priors  # noqa: E402
 from fieldtool.core.diagnosis.ranking import CONFIDENT, diagnose  # noqa: E402
-from fieldtool.core.readings import NodeReading  # noqa: E402
+from fieldtool.core.measurement import DC, TYPED, Measurement  # noqa: E402
 
 DIODE_SPREAD_V = 0.015  # ± forward-drop spread between parts (as the dictionary assumes)
 STEPS = 80  # as fieldtool expect
@@ -179,16 +179,19 @@ def run_trial(d, priors, trial: Trial, rng) -> dict:
     p = d.profile
     acc = np.abs(trial.volts) * p.meter_percent / 100 + p.meter_volts
     noisy = trial.volts + acc * rng.uniform(-1.0, 1.0, len(acc))
-    read = {n: NodeReading(n, float(v)) for n, v in zip(d.nodes, noisy, strict=True)}
+    read = {
+        n: Measurement(n, DC, float(v), TYPED, settled=True)
+        for n, v in zip(d.nodes, noisy, strict=True)
+    }
 
-    readings: list[NodeReading] = []
+    readings: list[Measurement] = []
     result = diagnose(d, readings, priors)
     while result.next_probe is not None:
         readings.append(read[result.next_probe])
         result = diagnose(d, readings, priors)
     guided, guided_ok = len(readings), result.top.probability >= CONFIDENT
 
-    ordered: list[NodeReading] = []
+    ordered: list[Measurement] = []
     order_ok = False
     for node in d.nodes:
         ordered.append(read[node])

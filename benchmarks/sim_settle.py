@@ -50,14 +50,14 @@ def walk(profile, fault: str | None, rule: SettleRule) -> tuple[int, list[float]
     expectation = meter.expectation
     settled, times, worst = 0, [], 0.0
     for node in expectation.nodes:
-        meter.touch(node.node)
+        meter.place_probe(node.node)
         start = clock()
         result = settle(meter.read, rule, clock=clock)
         times.append(clock() - start)
         settled += result.settled
         accuracy = profile.meter_percent / 100 * abs(node.volts) + profile.meter_volts
-        if result.volts is not None:
-            worst = max(worst, abs(result.volts - node.volts) / accuracy)
+        if result.value is not None:
+            worst = max(worst, abs(result.value - node.volts) / accuracy)
     return settled, times, worst, len(expectation.nodes)
 
 

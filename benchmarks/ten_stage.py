@@ -1,7 +1,7 @@
-"""The 10-stage DC-fed ladder the diagnosis benchmarks use (a benchmark board, not a shipped one).
+"""The bench ladders the benchmarks use (benchmark boards, not shipped ones).
 
-Same parts and drive as ``solver_speed.py``'s ladders: 12 V supply and drive at 10 kHz, 4.7 µF
-capacitors (±20 %), small-signal silicon diodes, a 220 kΩ load, a 10 MΩ meter.
+DC-fed ladders with a 12 V supply and drive at 10 kHz, 4.7 µF capacitors (±20 %), small-signal
+silicon diodes, a 220 kΩ load, a 10 MΩ meter; the diagnosis benchmarks use the 10-stage one.
 """
 
 from __future__ import annotations
@@ -16,6 +16,18 @@ TEN_STAGE = {
     "capacitor": {"farads": 4.7e-6, "tolerance": 0.2, "esr_ohms": 0.05},
     "load": {"ohms": 220000.0},
 }
+
+
+def bench_ladder(stages: int) -> dict:
+    """The bench ladder with ``stages`` stages, as profile data."""
+    data = {name: dict(table) for name, table in TEN_STAGE.items()}
+    data["board"].update(name=f"bench-dc-ladder-{stages}", stages=stages)
+    return data
+
+
+def bench_profile(stages: int) -> Profile:
+    """The bench ladder with ``stages`` stages as a validated profile."""
+    return profile_from_dict(bench_ladder(stages), f"<benchmark: {stages}-stage dc-ladder>")
 
 
 def ten_stage_profile() -> Profile:

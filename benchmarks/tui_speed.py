@@ -77,6 +77,7 @@ async def reading_runs(profile_path: str, cache: str) -> tuple[list[float], list
     from fieldtool.core.circuit.expect import expect
     from fieldtool.core.circuit.profile import load_profile
     from fieldtool.core.diagnosis.faults import parse_fault
+    from fieldtool.core.measurement import DC, TYPED, Measurement
     from fieldtool.tui.app import SessionRequest, make_app
     from fieldtool.tui.meter_strip import MeterChoice
     from fieldtool.tui.node_table import NodeTable
@@ -103,7 +104,7 @@ async def reading_runs(profile_path: str, cache: str) -> tuple[list[float], list
                 await pilot.pause()
                 idle.append(time.perf_counter() - t0)
                 t0 = time.perf_counter()
-                screen.take(node, truth[node], "typed", None)
+                screen.take(Measurement(node, DC, truth[node], TYPED, settled=True))
                 t1 = time.perf_counter()
                 await pilot.pause()
                 t2 = time.perf_counter()

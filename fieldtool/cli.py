@@ -1,7 +1,8 @@
 """Command-line entry point: non-interactive subcommands, each a thin shell over core.
 
 Each subcommand lives in a module of ``fieldtool.commands`` exposing ``register(subparsers)``;
-the handler it sets returns an exit code. Every ``FieldtoolError`` becomes one line on
+the handler it sets returns an exit code (``fieldtool`` alone runs the start screen's, which
+``commands.tui`` sets as the default). Every ``FieldtoolError`` becomes one line on
 stderr and exit code 2, so no traceback reaches a user.
 """
 
@@ -24,6 +25,20 @@ COMMAND_MODULES = (
     "fieldtool.commands.store",
 )
 
+# The module that registers each subcommand, so that a command loads only its own module and
+# what that needs (start-up time: `fieldtool expect` never loads the terminal UI, the serial
+# library or the history store). `fieldtool --help` and unknown words load them all.
+# tests/cli/test_startup.py checks this table against what the modules register.
+COMMAND_MODULE = {
+    "expect": "fieldtool.commands.expect",
+    "profiles": "fieldtool.commands.profiles",
+    **dict.fromkeys(("ports", "read", "sim-meter"), "fieldtool.commands.meters"),
+    **dict.fromkeys(("fleet", "history", "logs", "record", "report"), "fieldtool.commands.history"),
+    **dict.fromkeys(("calibrate", "diagnose", "inject"), "fieldtool.commands.diagnosis"),
+    **dict.fromkeys(("demo", "probe", "tui"), "fieldtool.commands.tui"),
+    "store": "fieldtool.commands.store",
+}
+
 
 class _Parser(argparse.ArgumentParser):
     """argparse that reports usage errors as one line and exit code 2."""
@@ -36,35 +51,26 @@ class _Parser(argparse.ArgumentParser):
         return " ".join(parts[1:]) if len(parts) > 1 else ""
 
 
-def build_parser() -> argparse.ArgumentParser:
-    """The parser with every available subcommand registered."""
+def build_parser(command: str | None = None) -> argparse.ArgumentParser:
+    """The parser with every available subcommand registered, or only ``command``'s module's."""
     parser = _Parser(prog="fieldtool", description=__doc__.splitlines()[0])
     parser.add_argument("--version", action="version", version=f"fieldtool {__version__}")
     subparsers = parser.add_subparsers(dest="command", parser_class=_Parser)
-    for name in COMMAND_MODULES:
-        try:
-            module = importlib.import_module(name)
-        except ModuleNotFoundError as exc:
-            if exc.name == name:
-                continue  # that feature is not built yet
-            raise
-        module.register(subparsers)
+    modules = (COMMAND_MODULE[command],) if command in COMMAND_MODULE else COMMAND_MODULES
+    for name in modules:
+        importlib.import_module(name).register(subparsers)  # each one always exists
     return parser
 
 
 def main(argv: list[str] | None = None) -> int:
     """Run one subcommand; return its exit code."""
-    parser = build_parser()
-    args = parser.parse_args(argv)
-    handler = getattr(args, "handler", None)
-    if handler is None:
-        default = getattr(parser, "_default_handler", None)
-        if default is None:
-            parser.print_help()
-            return 0
-        handler = default
+    words = sys.argv[1:] if argv is None else argv
+    command = next((w for w in words if not w.startswith("-")), None)
+    args = build_parser(command).parse_args(argv)
+    if not hasattr(args, "handler"):  # only the full parser carries the start screen's default
+        args = build_parser().parse_args(argv)
     try:
-        return int(handler(args) or 0)
+        return int(args.handler(args) or 0)
     except FieldtoolError as exc:
         print(f"fieldtool: {exc.title.lower()}: {exc.message}", file=sys.stderr)
         return 2

@@ -4,7 +4,8 @@ The reference readings for the diagnosis checks come from ngspice (a general-pur
 simulator, Debian package ``ngspice``), not from fieldtool's own solver. The healthy netlist
 is ``fieldtool.core.circuit.spice.spice_netlist``; the fault is then written into the SPICE text
 independently of ``fieldtool.core.diagnosis.faults`` (an open part's lines are deleted, a short is a
-1 Ω resistor across the part, lost capacitance scales the capacitor's value), and the meter is
+resistor across the part, 1 Ω unless given, lost capacitance scales the capacitor's value, a
+grown ESR scales its series resistor), and the meter is
 a resistor from the probed node to ground. One ngspice run gives one node's reading, as a
 technician gets it by moving the probe.
 
@@ -45,8 +46,10 @@ class SpiceFault:
     """A fault as written into the SPICE text: a part designator, a mode, a severity."""
 
     ref: str  # default designator, "D3" or "C4"
-    mode: str  # "open" | "short" | "lowcap"
+    mode: str  # "open" | "short" | "lowcap" | "esr"
     fraction: float = 1.0  # capacitance left, for "lowcap"
+    ohms: float = SHORT_OHMS  # the short's resistance, for "short"
+    factor: float = 1.0  # how many times the ESR grew, for "esr"
 
 
 @dataclass(frozen=True)
@@ -80,15 +83,59 @@ def write_fault(netlist: str, circuit: Circuit, fault: SpiceFault) -> str:
         lines = [line for i, line in enumerate(lines) if i not in found]
     elif fault.mode == "short":
         at = next(i for i, line in enumerate(lines) if line.startswith(".options"))
-        lines.insert(at, f"RFAULT {a} {b} {SHORT_OHMS:g}")
+        lines.insert(at, f"RFAULT {a} {b} {fault.ohms:.9g}")
     elif fault.mode == "lowcap":
         i = next(i for i in found if lines[i].lower().startswith(f"c{fault.ref}".lower()))
         words = lines[i].split()
         words[3] = f"{float(words[3]) * fault.fraction:.6e}"
         lines[i] = " ".join(words)
+    elif fault.mode == "esr":
+        i = next(i for i in found if lines[i].lower().startswith(f"re{j} "))
+        words = lines[i].split()
+        words[3] = f"{float(words[3]) * fault.factor:.6e}"
+        lines[i] = " ".join(words)
     else:
         raise ValueError(fault.mode)
     return "\n".join(lines) + "\n"
+
+
+def run_deck(workdir: Path, name: str, lines: list[str]) -> subprocess.CompletedProcess:
+    """Write a netlist's lines to ``workdir/name`` and run ngspice on it in batch mode."""
+    workdir.mkdir(parents=True, exist_ok=True)
+    (workdir / name).write_text("\n".join(lines) + "\n")
+    return subprocess.run(
+        [NGSPICE, "-b", name], cwd=workdir, capture_output=True, text=True, timeout=600
+    )
+
+
+def period_average_measures(expr: str, periods: int, period: float) -> list[str]:
+    """ngspice ``meas`` lines a0 … a11: ``expr`` integrated over one period at MARKS marks.
+
+    Each window is one whole period starting a quarter period in, so its ends fall on the
+    flat parts of a square drive rather than on an edge; ``integ`` (trapezoidal) over the
+    window, to be divided by T: ngspice-39's ``avg`` ends its window on the first time point
+    past ``to`` and is then off by O(step) on a square node.
+    """
+    T = period
+    marks = np.linspace(periods / MARKS, periods, MARKS).round().astype(int)
+    return [
+        f"meas tran a{i} integ {expr} from={(k - 1) * T + T / 4:.9e} to={k * T + T / 4:.9e}"
+        for i, k in enumerate(marks)
+    ]
+
+
+def aitken(a: np.ndarray) -> tuple[float, float]:
+    """(settled value, distance still to go) of MARKS period averages (see the module doc).
+
+    Where the 4th, 8th and 12th are not a shrinking geometric sequence, the settled value is
+    the last and the distance to go is how far the last third of the run itself moved.
+    """
+    a1, a2, a3 = a[MARKS // 3 - 1], a[2 * MARKS // 3 - 1], a[-1]
+    d1, d2 = a2 - a1, a3 - a2
+    denom = d2 - d1
+    geometric = abs(denom) > 1e-12 and d1 * d2 > 0 and abs(d2) < abs(d1)
+    settled = a3 - d2 * d2 / denom if geometric else a3
+    return float(settled), float(abs(settled - a3) if geometric else abs(d2))
 
 
 def _measure_run(
@@ -107,15 +154,7 @@ def _measure_run(
         text = write_fault(text, circuit, fault)
     T = circuit.period_s
     probe = node.lower()
-    # Each window is one whole period starting a quarter period in, so its ends fall on the
-    # flat parts of a square drive rather than on an edge.
-    marks = np.linspace(periods / MARKS, periods, MARKS).round().astype(int)
-    # ``integ`` (trapezoidal) over the window, divided by T: ngspice-39's ``avg`` ends its
-    # window on the first time point past ``to`` and is then off by O(step) on a square node.
-    measures = [
-        f"meas tran a{i} integ v({probe}) from={(k - 1) * T + T / 4:.9e} to={k * T + T / 4:.9e}"
-        for i, k in enumerate(marks)
-    ]
+    measures = period_average_measures(f"v({probe})", periods, T)
     lines = []
     for line in text.splitlines():
         if line.startswith(".options"):
@@ -125,11 +164,7 @@ def _measure_run(
             lines.append("print " + " ".join(f"a{i}" for i in range(MARKS)))
             continue
         lines.append(line)
-    workdir.mkdir(parents=True, exist_ok=True)
-    (workdir / "probe.cir").write_text("\n".join(lines) + "\n")
-    proc = subprocess.run(
-        [NGSPICE, "-b", "probe.cir"], cwd=workdir, capture_output=True, text=True, timeout=300
-    )
+    proc = run_deck(workdir, "probe.cir", lines)
     found = dict(re.findall(r"^(a\d+)\s+=\s+(\S+)", proc.stdout, re.MULTILINE))
     if len(found) != MARKS:
         raise AssertionError(
@@ -151,14 +186,9 @@ def metered_reading(
     """The settled DC reading of ``node`` with a meter of ``meter_ohms`` on it (see module)."""
     while True:
         a = _measure_run(circuit, params, node, meter_ohms, fault, periods, workdir)
-        a1, a2, a3 = a[MARKS // 3 - 1], a[2 * MARKS // 3 - 1], a[-1]
-        d1, d2 = a2 - a1, a3 - a2
-        denom = d2 - d1
-        geometric = abs(denom) > 1e-12 and d1 * d2 > 0 and abs(d2) < abs(d1)
-        settled = a3 - d2 * d2 / denom if geometric else a3
+        settled, to_go = aitken(a)
         tol = max(SETTLE_REL * abs(settled), SETTLE_ABS)
-        # Not geometric: the last third of the run must itself have moved less than tol.
-        to_go = abs(settled - a3) if geometric else abs(d2)
+        a3 = a[-1]
         if to_go <= tol:
             return MeteredReading(node, float(settled), float(a3), periods)
         if periods >= max_periods:

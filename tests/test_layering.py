@@ -32,6 +32,8 @@ def _imports(module: str) -> set[str]:
     parts = module.split(".")
     path = PACKAGE.joinpath(*parts[1:])
     path = path / "__init__.py" if path.is_dir() else path.with_suffix(".py")
+    if not path.exists():
+        return set()  # a compiled extension (the solver's kernel) imports nothing of ours
     names = set()
     for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"))):
         if isinstance(node, ast.ImportFrom) and node.module:

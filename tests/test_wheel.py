@@ -24,6 +24,10 @@ def test_wheel_install_runs_a_shipped_profile_by_name(tmp_path):
     (wheel,) = dist.glob("fieldtool-*.whl")
     names = zipfile.ZipFile(wheel).namelist()
     assert "fieldtool/profiles/tidegauge-apd-bias.toml" in names
+    kernels = [
+        n for n in names if n.startswith("fieldtool/core/circuit/_kernel.") and not n.endswith(".c")
+    ]
+    assert kernels, "the wheel carries no compiled solver kernel (hatch_build.py)"
     venv = tmp_path / "venv"
     subprocess.run([sys.executable, "-m", "venv", "--system-site-packages", str(venv)], check=True)
     python = venv / "bin" / "python"
@@ -45,6 +49,13 @@ def test_wheel_install_runs_a_shipped_profile_by_name(tmp_path):
         check=True,
     ).stdout.strip()
     assert where.startswith(str(venv)), f"the wheel's package was not the one imported: {where}"
+    uses_kernel = [
+        str(python),
+        "-c",
+        "from fieldtool.core.circuit import kernel as k; print(k.available())",
+    ]
+    kernel = subprocess.run(uses_kernel, cwd=empty, env=env, capture_output=True, text=True)
+    assert kernel.stdout.strip() == "True", kernel.stderr
     run = subprocess.run(
         [str(venv / "bin" / "fieldtool"), "expect", "tidegauge-apd-bias"],
         cwd=empty,

@@ -11,22 +11,23 @@ from datetime import UTC, datetime
 from pathlib import Path
 
 from fieldtool.commands.boards import PROFILE_HELP, profile_arg
-from fieldtool.commands.expect import to_json as expectation_json
-from fieldtool.commands.expect import to_text as expectation_text
+from fieldtool.commands.expect import full_json as expectation_json
+from fieldtool.commands.expect import full_text as expectation_text
 from fieldtool.commands.store import PRIORS_STORE_HELP, add_store_option, notice, store_of
-from fieldtool.core.circuit.expect import expect
 from fieldtool.core.circuit.profile import Profile, profile_from_dict
 from fieldtool.core.circuit.profile_write import to_toml
 from fieldtool.core.diagnosis.calibrate import calibrate
 from fieldtool.core.diagnosis.dictionary import FaultDictionary
 from fieldtool.core.diagnosis.dictionary_cache import default_cache_dir, load_or_build
 from fieldtool.core.diagnosis.faults import describe, parse_fault
-from fieldtool.core.diagnosis.priors import Priors, fleet_priors, published_priors
+from fieldtool.core.diagnosis.priors import Priors
 from fieldtool.core.diagnosis.ranking import Diagnosis, diagnose
 from fieldtool.core.errors import InputError, ProfileError
+from fieldtool.core.measurement import DC
 from fieldtool.core.readings import load_readings
+from fieldtool.core.session import choose_priors, history_failures
 from fieldtool.store import StoreAddress
-from fieldtool.store.priors import fleet_counts
+from fieldtool.store.priors import store_failures
 
 FAULT_HELP = (
     "TARGET:MODE[=SEVERITY], e.g. D5:open, C4:short, C3:lowcap=0.3 (fraction left), "
@@ -81,15 +82,14 @@ def run_inject(args: argparse.Namespace) -> int:
     """Handle ``fieldtool inject``."""
     profile = profile_arg(args.profile)
     fault = parse_fault(args.fault, profile)
-    result = expect(profile, fault=fault)
     if args.json:
-        out = expectation_json(result)
+        out = expectation_json(profile, fault)
         out["fault"] = fault.spec(profile)
         out["fault_words"] = describe(fault, profile)
         print(json.dumps(out, indent=2))
     else:
         print(f"INJECTED FAULT: {describe(fault, profile)} ({fault.spec(profile)})")
-        print(expectation_text(result))
+        print(expectation_text(profile, fault))
     return 0
 
 
@@ -121,20 +121,13 @@ def dictionary_for(profile: Profile, cache: str | None) -> FaultDictionary:
 def priors_for(
     profile: Profile, d: FaultDictionary, logs: str | None, store: StoreAddress | None = None
 ) -> Priors:
-    """Fleet priors from the store or a history folder, or the published ones.
-
-    A store that cannot be reached falls back to the folder, with a notice on stderr.
-    """
+    """Fleet priors from the store or the ``--logs`` history folder, or the published ones
+    without either (a store that cannot be reached: the folder, with a notice on stderr)."""
     if logs and not Path(logs).is_dir():
         raise InputError(f"--logs {logs}: no such folder")
-    if not logs and store is None:
-        return published_priors(profile, d.hypotheses)
-    counts = fleet_counts(store, logs, profile.name)
-    if counts.notice:
-        notice(counts.notice)
-    if counts.source == "none":
-        return published_priors(profile, d.hypotheses)
-    return fleet_priors(profile, d.hypotheses, counts.counts)
+    if store is None:
+        return choose_priors(profile, d.hypotheses, history_failures(logs) if logs else None)
+    return choose_priors(profile, d.hypotheses, store_failures(store, logs, notice))
 
 
 def run_diagnose(args: argparse.Namespace) -> int:
@@ -152,17 +145,18 @@ def run_diagnose(args: argparse.Namespace) -> int:
 
 def diagnosis_text(d: FaultDictionary, readings, result: Diagnosis) -> str:
     """Readings against the healthy bands, the ranked suspects and the advice."""
-    lines = [f"{d.profile.name}: {len(readings)} reading(s)", ""]
+    dc = [r for r in readings if r.quantity == DC]
+    lines = [f"{d.profile.name}: {len(dc)} reading(s)", ""]
     lines.append(f"{'node':<6}{'test pt':<9}{'read':>10}{'healthy band':>24}  verdict")
-    for r in readings:
-        band = d.band(r.node)
-        label = d.labels.get(r.node, "")
-        if r.volts is None:
-            lines.append(f"{r.node:<6}{label:<9}{'OL':>10}{'':>24}  over range")
+    for r in dc:
+        band = d.band(r.at)
+        label = d.labels.get(r.at, "")
+        if r.value is None:
+            lines.append(f"{r.at:<6}{label:<9}{'OL':>10}{'':>24}  over range")
             continue
-        verdict = "in band" if band.contains(r.volts) else ("LOW" if r.volts < band.low else "HIGH")
+        verdict = "in band" if band.contains(r.value) else ("LOW" if r.value < band.low else "HIGH")
         span = f"{band.low:.2f} … {band.high:.2f} V"
-        lines.append(f"{r.node:<6}{label:<9}{r.volts:>8.3f} V{span:>24}  {verdict}")
+        lines.append(f"{r.at:<6}{label:<9}{r.value:>8.3f} V{span:>24}  {verdict}")
     lines += ["", "most likely:"]
     for s in result.suspects[:8]:
         bar = "#" * round(s.probability * 20)

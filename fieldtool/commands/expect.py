@@ -5,8 +5,13 @@ from __future__ import annotations
 import json
 import math
 
+from fieldtool.commands import expect_readouts
 from fieldtool.commands.boards import PROFILE_HELP, profile_arg
+from fieldtool.commands.expect_readouts import si as _si
 from fieldtool.core.circuit.expect import Expectation, expect
+from fieldtool.core.circuit.netlist import Change
+from fieldtool.core.circuit.profile import Profile
+from fieldtool.core.circuit.readouts.board import board_readouts
 
 
 def register(subparsers) -> None:
@@ -14,7 +19,11 @@ def register(subparsers) -> None:
     p = subparsers.add_parser(
         "expect",
         help="expected reading at every node of a board, and its safety figures",
-        description="Expected DC reading (as the meter reads it) and ripple at every node.",
+        description=(
+            "Expected DC reading (as the meter reads it) and ripple at every node; ripple on a "
+            "scope, AC RMS, DC under the profile's test loads, the supply current and each "
+            "diode's diode-test reading."
+        ),
     )
     p.add_argument("profile", help=PROFILE_HELP)
     p.add_argument("--load-ohms", type=float, help="use this load instead of the profile's")
@@ -27,9 +36,24 @@ def run(args) -> int:
     profile = profile_arg(args.profile)
     if args.load_ohms is not None:
         profile = profile.with_load_ohms(args.load_ohms)
-    result = expect(profile)
-    print(json.dumps(to_json(result), indent=2) if args.json else to_text(result))
+    print(json.dumps(full_json(profile), indent=2) if args.json else full_text(profile))
     return 0
+
+
+def full_json(profile: Profile, fault: Change | None = None) -> dict:
+    """Everything `expect` knows of a board (optionally faulted), as one JSON object."""
+    data = to_json(expect(profile, fault=fault))
+    more = board_readouts(profile, fault=fault, spreads=False)  # expect shows no spreads
+    for j, node in enumerate(data["nodes"]):
+        node.update(expect_readouts.node_json(more, j))
+    data.update(expect_readouts.board_json(more))
+    return data
+
+
+def full_text(profile: Profile, fault: Change | None = None) -> str:
+    """Everything `expect` knows of a board (optionally faulted), as readable tables."""
+    more = board_readouts(profile, fault=fault, spreads=False)  # expect shows no spreads
+    return to_text(expect(profile, fault=fault)) + "\n" + expect_readouts.text(more)
 
 
 def _num(x: float | None) -> float | None:
@@ -67,15 +91,6 @@ def to_json(e: Expectation) -> dict:
         "converged": e.converged,
         "residual_volts": e.residual_volts,
     }
-
-
-def _si(x: float | None, unit: str) -> str:
-    if x is None or not math.isfinite(x):
-        return "n/a"
-    for scale, prefix in ((1e6, "M"), (1e3, "k"), (1, ""), (1e-3, "m"), (1e-6, "µ"), (1e-9, "n")):
-        if abs(x) >= scale or scale == 1e-9:
-            return f"{x / scale:.4g} {prefix}{unit}"
-    return f"{x:g} {unit}"
 
 
 def to_text(e: Expectation) -> str:

@@ -1,8 +1,9 @@
 """``fieldtool record``: log a whole bench session from a readings file, non-interactively.
 
 The session holds the readings, the diagnosis the engine gives for them (with this board
-type's fleet history as priors), what was done, readings after the repair and the outcome,
-written with one append so it is saved whole or not at all.
+type's fleet history as priors), what was done, readings after the repair and the outcome:
+the same records, in the same order, as the terminal UI writes for the same work (both run
+``core.session.BoardSession``), written with one append so it is saved whole or not at all.
 
 ``--action`` says which part, how it had failed and what was done, in any order:
 ``"D5:open replaced"``, ``"replaced C4:short"``, ``"CR105:leaky resoldered"`` (the mode after
@@ -17,9 +18,7 @@ import argparse
 import getpass
 import json
 import os
-from pathlib import Path
 
-from fieldtool import __version__
 from fieldtool.commands.boards import PROFILE_HELP, profile_arg
 from fieldtool.commands.history_text import safe
 from fieldtool.commands.store import PRIORS_STORE_HELP, add_store_option, notice, store_of
@@ -28,27 +27,21 @@ from fieldtool.core.circuit.profile import Profile
 from fieldtool.core.circuit.spec import display_name
 from fieldtool.core.diagnosis.dictionary_cache import load_or_build
 from fieldtool.core.diagnosis.faults import BOARD_TARGETS, parse_fault
-from fieldtool.core.diagnosis.priors import fleet_priors
-from fieldtool.core.diagnosis.ranking import diagnose
 from fieldtool.core.errors import InputError
 from fieldtool.core.history import (
     Action,
-    Diagnosis,
+    Event,
     HistoryError,
-    Reading,
-    SessionClosed,
-    SessionOpened,
-    Suspect,
-    Verification,
     append_many,
     board_path,
     check_name,
     resolve_logs_dir,
 )
-from fieldtool.core.readings import NodeReading, load_readings
-from fieldtool.store.priors import fleet_counts
+from fieldtool.core.readings import load_readings
+from fieldtool.core.session import BoardSession, choose_priors
+from fieldtool.store.priors import store_failures
 
-TOP_SUSPECTS = 5  # suspects kept in the stored diagnosis snapshot
+TOP_SUSPECTS = 5  # suspects printed
 
 
 def register(subparsers: argparse._SubParsersAction, logs_help: str, outcomes) -> None:
@@ -117,21 +110,8 @@ def parse_action(text: str, profile: Profile) -> Action:
     return Action(designator=display_name(profile, target), done=done, mode=mode)
 
 
-def _measurements(cls, readings: tuple[NodeReading, ...], source: str) -> list[Reading]:
-    return [
-        cls(
-            node=r.node,
-            volts=r.volts,
-            source=source,
-            overload=r.volts is None,
-            ripple_vpp=r.ripple_vpp,
-        )
-        for r in readings
-    ]
-
-
 def run_record(args: argparse.Namespace) -> int:
-    """Handle ``fieldtool record``."""
+    """Handle ``fieldtool record``: the same session the terminal UI writes, from files."""
     profile = profile_arg(args.profile)
     serial = check_name(args.board)
     logs = resolve_logs_dir(args.logs, os.environ)
@@ -140,46 +120,45 @@ def run_record(args: argparse.Namespace) -> int:
     actions = [parse_action(text, profile) for text in args.action or []]
     if (args.part or args.note) and len(actions) != 1:
         raise InputError("--part and --note go with exactly one --action")
+    if args.verify and not actions:
+        raise InputError("--verify takes readings after a repair; say what was done with --action")
     if actions and (args.part or args.note):
         a = actions[0]
         actions = [Action(a.designator, a.done, a.mode, args.part, args.note or "")]
     dictionary = load_or_build(profile)
     readings = load_readings(args.readings, dictionary.nodes, profile.labels)
     after = load_readings(args.verify, dictionary.nodes, profile.labels) if args.verify else ()
-    counts = fleet_counts(store_of(args), logs, profile.name)
-    if counts.notice:
-        notice(counts.notice)
-    confirmed = counts.counts
-    priors = fleet_priors(profile, dictionary.hypotheses, confirmed) if confirmed else None
-    diagnosis = diagnose(dictionary, readings, priors=priors)
-    top = diagnosis.suspects[:TOP_SUSPECTS]
-    snapshot = Diagnosis(tuple(Suspect(s.component or "", s.mode, s.probability) for s in top))
-    technician = args.technician or _login()
-    opened = SessionOpened(
-        technician=technician, profile_hash=profile.digest, tool_version=__version__
+    failures = store_failures(store_of(args), logs, notice)
+    priors = choose_priors(profile, dictionary.hypotheses, failures)
+    events: list[Event] = []
+    session = BoardSession(
+        profile,
+        serial,
+        dictionary,
+        lambda event, _sid: events.append(event),
+        priors=priors,
+        technician=args.technician or _login(),
     )
-    events = [
-        opened,
-        *_measurements(Reading, readings, f"file {Path(args.readings).name}"),
-        snapshot,
-        *actions,
-        *_measurements(
-            Verification, after, f"file {Path(args.verify).name}" if args.verify else ""
-        ),
-    ]
+    session_id = session.open()
+    diagnosis = session.take(*readings)
+    if actions:
+        session.record_repair(*actions)
+        session.take(*after)
+    elif not args.outcome:
+        session.save_diagnosis()  # a session left open still says what the engine thought
     if args.outcome:
-        events.append(SessionClosed(outcome=args.outcome))
-    records = append_many(logs, profile.name, serial, events)
+        session.close(args.outcome)
+    records = append_many(logs, profile.name, serial, events, session=session_id)
     path = board_path(logs, profile.name, serial)
     if args.json:
         out = {
             "board": serial,
             "profile": profile.name,
-            "session": opened.session_id,
+            "session": session_id,
             "file": str(path),
             "records": [r.id for r in records],
             "diagnosis": diagnosis.to_json(),
-            "priors": "fleet" if priors is not None else "published",
+            "priors": "fleet" if priors.from_fleet else "published",
             "actions": [
                 {"designator": a.designator, "mode": a.mode, "done": a.done} for a in actions
             ],
@@ -187,15 +166,21 @@ def run_record(args: argparse.Namespace) -> int:
         }
         print(json.dumps(out, indent=2, ensure_ascii=False))
         return 0
+    nodes = len({m.at for m in readings})
     lines = [
-        f"saved session {opened.session_id[:12]} for board {safe(serial)} ({profile.name}) in "
-        f"{path}: {len(readings)} reading(s), {len(actions)} action(s), {len(after)} after repair,"
-        f" outcome {args.outcome or 'none (session left open)'}",
+        f"saved session {session_id[:12]} for board {safe(serial)} ({profile.name}) in "
+        f"{path}: {nodes} reading(s), {len(actions)} action(s), "
+        f"{len({m.at for m in after})} after repair, "
+        f"outcome {args.outcome or 'none (session left open)'}",
         "suspects ("
-        + ("priors from this fleet's confirmed failures" if priors else "published priors")
+        + (
+            "priors from this fleet's confirmed failures"
+            if priors.from_fleet
+            else "published priors"
+        )
         + "):",
     ]
-    for s in top:
+    for s in diagnosis.suspects[:TOP_SUSPECTS]:
         lines.append(
             f"  {s.probability:6.1%}  {safe(s.words)}  "
             f"(prior {s.prior:.2%}, {safe(s.prior_source)})"

@@ -5,10 +5,11 @@ from __future__ import annotations
 import unicodedata
 from typing import Any
 
-from fieldtool.core.history import BoardHistory, Record, time_key
+from fieldtool.core.history import UNSETTLED, BoardHistory, Reading, Record, time_key
 from fieldtool.core.history.fleet import FleetView
 from fieldtool.core.history.merge import MergeReport
 from fieldtool.core.history.sessions import Session, confirmed_in
+from fieldtool.core.measurement import DC, Measurement
 
 LIST_LIMIT = 15  # rows per list in text output; --json has them all
 
@@ -26,13 +27,20 @@ def when(stamp: str) -> str:
     return f"{key[:10]} {key[11:16]}" if len(key) == 27 else safe(stamp)
 
 
-def _volts(value: Any, overload: Any = False) -> str:
-    if overload or value is None:
-        return "OL (over range)"
-    try:
-        return f"{float(value):.4g} V"
-    except (TypeError, ValueError):
-        return safe(value)
+def value_text(m: Measurement) -> str:
+    """A measured value with its unit, or ``OL (over range)``."""
+    return "OL (over range)" if m.value is None else f"{m.value:.4g} {m.unit}"
+
+
+def _measurement_words(record: Record, m: Measurement) -> str:
+    label = "reading" if record.kind == "reading" else "verification (after repair)"
+    what = "" if m.quantity == DC else f" {m.quantity.words}"
+    extra = f", spread {m.spread:.3g} {m.unit}" if m.spread is not None else ""
+    ripple = record.fields.get("ripple_vpp")  # schema 1 kept a ripple beside the DC value
+    if record.schema == 1 and isinstance(ripple, int | float):
+        extra += f", ripple {ripple:.3g} V p-p"
+    source = safe(m.source) + ("" if m.settled else UNSETTLED)
+    return f"{label} {safe(m.at)}{what} = {value_text(m)} ({source}{extra})"
 
 
 def describe(record: Record) -> str:
@@ -48,13 +56,10 @@ def describe(record: Record) -> str:
             f"fieldtool {safe(f.get('tool_version', '?'))}{extra})"
         )
     if kind in ("reading", "verification"):
-        label = "reading" if kind == "reading" else "verification (after repair)"
-        spread = f", spread {f['spread']:.3g} V" if isinstance(f.get("spread"), float) else ""
-        if isinstance(f.get("ripple_vpp"), int | float):
-            spread += f", ripple {f['ripple_vpp']:.3g} V p-p"
-        source = safe(f.get("source", "typed"))
-        value = _volts(f.get("volts"), f.get("overload"))
-        return f"{label} {safe(f.get('node'))} = {value} ({source}{spread})"
+        event = record.event
+        if isinstance(event, Reading):
+            return _measurement_words(record, event.measurement)
+        return f"{safe(kind)} (fields this version cannot read; kept as is)"
     if kind == "diagnosis":
         return "diagnosis: " + ", ".join(_suspect(s) for s in f.get("suspects", [])[:4])
     if kind == "action":

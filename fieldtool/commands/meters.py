@@ -11,13 +11,11 @@ import sys
 from fieldtool.commands.boards import PROFILE_HELP, profile_arg
 from fieldtool.core.diagnosis.faults import describe, parse_fault
 from fieldtool.core.errors import InputError
-from fieldtool.meters.scpi import ScpiMeter
+from fieldtool.meters.connect import open_serial_meter
 from fieldtool.meters.settings import MeterSettings, load_settings, with_overrides
 from fieldtool.meters.settle import settle
 from fieldtool.meters.sim_pty import PtyMeter
 from fieldtool.meters.simulated import SimulatedMeter, random_fault
-from fieldtool.meters.stream import StreamMeter
-from fieldtool.meters.transport import open_port
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:
@@ -103,34 +101,27 @@ def run_read(args: argparse.Namespace) -> int:
     """Take one (optionally settled) reading and print it."""
     base = load_settings(args.settings) if args.settings else MeterSettings()
     settings = with_overrides(base, protocol=args.protocol, baud=args.baud)
-    terminator = settings.terminator.encode("ascii")
-    transport = open_port(args.port, settings.baud, settings.timeout_s, terminator)
+    meter = open_serial_meter(args.port, settings)
     try:
-        meter_cls = ScpiMeter if settings.protocol == "scpi" else StreamMeter
-        meter = meter_cls(transport, settings)
         meter.connect()
-        if args.settle:
-            result = settle(meter.read, settings.settle)
-            out = {
-                "volts": result.volts,
-                "overload": result.overload,
-                "spread": result.spread,
-                "count": result.count,
-                "settled": result.settled,
-            }
-        else:
-            reading = meter.read()
-            out = {"volts": reading.volts, "overload": reading.overload, "spread": None}
-            out["count"] = 1
-        out["meter"] = meter.identity
+        reading = settle(meter.read, settings.settle) if args.settle else meter.read()
     finally:
-        transport.close()
+        meter.close()
+    out = {
+        "volts": reading.value,
+        "overload": reading.overload,
+        "spread": reading.spread,
+        "count": reading.samples,
+        "meter": meter.identity,
+    }
+    if args.settle:
+        out["settled"] = reading.settled
     if args.json:
         print(json.dumps(out))
-    elif out["overload"]:
+    elif reading.overload:
         print("OL (overload)")
     else:
-        print(f"{out['volts']:.6g} V")
+        print(f"{reading.value:.6g} V")
     return 0
 
 

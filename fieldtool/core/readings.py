@@ -1,10 +1,11 @@
-"""Node readings: what the technician measured, and the CSV file that carries them.
+"""The readings file: what the technician measured at each node, as ``Measurement`` objects.
 
 A readings file has a header row ``node,volts`` and an optional ``ripple_vpp`` column; node
 names are the ones ``fieldtool expect`` prints (S0, P1, S1, ..., OUT), test-point labels from
 the profile are accepted too. ``volts`` is a number (a decimal comma is refused in CSV, where
 the comma separates columns) or ``OL`` for a meter over range. Blank lines and lines starting
-with ``#`` are skipped.
+with ``#`` are skipped. Each row gives a ``dc`` measurement at its node and, where the ripple
+cell is filled, a ``ripple-pp`` measurement there too; their source is the file's name.
 """
 
 from __future__ import annotations
@@ -13,26 +14,12 @@ import csv
 import io
 import math
 from collections.abc import Iterable, Sequence
-from dataclasses import dataclass
 from pathlib import Path
 
 from fieldtool.core.errors import InputError
+from fieldtool.core.measurement import DC, RIPPLE_PP, Measurement, Source
 
 OVERLOAD_WORDS = ("ol", "overload")
-
-
-@dataclass(frozen=True)
-class NodeReading:
-    """One measured node: DC volts (None on overload) and an optional ripple peak-to-peak."""
-
-    node: str
-    volts: float | None
-    ripple_vpp: float | None = None
-
-    @property
-    def overload(self) -> bool:
-        """True when the meter was over range at this node."""
-        return self.volts is None
 
 
 def _number(text: str, where: str, column: str, allow_overload: bool) -> float | None:
@@ -65,10 +52,18 @@ def resolve_node(name: str, nodes: Sequence[str], labels: dict[str, str], where:
 
 
 def parse_readings_csv(
-    text: str, nodes: Sequence[str], labels: dict[str, str] | None = None, where: str = "readings"
-) -> tuple[NodeReading, ...]:
-    """Readings from CSV text; each node at most once, every name checked against the board."""
+    text: str,
+    nodes: Sequence[str],
+    labels: dict[str, str] | None = None,
+    where: str = "readings",
+    source: Source | None = None,
+) -> tuple[Measurement, ...]:
+    """Measurements from CSV text; each node at most once, every name checked against the board.
+
+    ``source`` defaults to a file named ``where``.
+    """
     labels = labels or {}
+    source = source or Source("file", where)
     rows = [
         (number, line)
         for number, line in enumerate(text.splitlines(), start=1)
@@ -83,7 +78,8 @@ def parse_readings_csv(
             f"{where}:{header_no}: header is {header_line.strip()!r}; expected 'node,volts' "
             "or 'node,volts,ripple_vpp'"
         )
-    readings: dict[str, NodeReading] = {}
+    readings: list[Measurement] = []
+    seen: set[str] = set()
     for number, line in rows[1:]:
         here = f"{where}:{number}"
         cells = next(csv.reader([line]))
@@ -93,24 +89,25 @@ def parse_readings_csv(
                 "a decimal comma must be a point in CSV"
             )
         node = resolve_node(cells[0], nodes, labels, here)
-        if node in readings:
+        if node in seen:
             raise InputError(f"{here}: node {node} is read twice; keep one row per node")
+        seen.add(node)
         volts = _number(cells[1], here, "volts", allow_overload=True)
-        ripple = None
+        readings.append(Measurement(node, DC, volts, source, settled=True))
         if len(cells) > 2 and cells[2].strip():
             ripple = _number(cells[2], here, "ripple_vpp", allow_overload=False)
             if ripple is not None and ripple < 0:
                 raise InputError(f"{here}: ripple_vpp {ripple:g} is negative")
-        readings[node] = NodeReading(node, volts, ripple)
+            readings.append(Measurement(node, RIPPLE_PP, ripple, source, settled=True))
     if not readings:
         raise InputError(f"{where}: only a header, no readings")
-    return tuple(readings.values())
+    return tuple(readings)
 
 
 def load_readings(
     path: str | Path, nodes: Sequence[str], labels: dict[str, str] | None = None
-) -> tuple[NodeReading, ...]:
-    """Readings from a CSV file (see module docstring)."""
+) -> tuple[Measurement, ...]:
+    """Measurements from a CSV file (see module docstring); their source is ``file NAME``."""
     p = Path(path)
     try:
         raw = p.read_bytes()
@@ -122,19 +119,30 @@ def load_readings(
         text = raw.decode("utf-8-sig")
     except UnicodeDecodeError:
         raise InputError(f"{p}: not UTF-8 text; save the CSV as UTF-8") from None
-    return parse_readings_csv(text, nodes, labels, str(p))
+    return parse_readings_csv(text, nodes, labels, str(p), Source("file", p.name))
 
 
-def readings_csv(readings: Iterable[NodeReading]) -> str:
-    """Readings written back as CSV text (with ripple only where one was read)."""
-    rows = list(readings)
+def readings_csv(readings: Iterable[Measurement]) -> str:
+    """DC (and ripple) measurements written back as CSV text, one row a node in the order the
+    DC readings come, with the ripple column only where a ripple was read."""
+    dc: dict[str, float | None] = {}
+    ripple: dict[str, float | None] = {}
+    for m in readings:
+        if m.at is None or m.quantity not in (DC, RIPPLE_PP):
+            raise InputError(
+                f"a readings file holds dc and ripple-pp readings at nodes, not {m.quantity.name}"
+                f" at {m.at}"
+            )
+        (dc if m.quantity == DC else ripple)[m.at] = m.value
+    missing = [n for n in ripple if n not in dc]
+    if missing:
+        raise InputError(f"a readings file needs a dc reading at each node; none at {missing}")
     out = io.StringIO()
-    with_ripple = any(r.ripple_vpp is not None for r in rows)
-    out.write("node,volts,ripple_vpp\n" if with_ripple else "node,volts\n")
-    for r in rows:
-        volts = "OL" if r.volts is None else repr(float(r.volts))
-        line = f"{r.node},{volts}"
-        if with_ripple:
-            line += "," + ("" if r.ripple_vpp is None else repr(float(r.ripple_vpp)))
+    out.write("node,volts,ripple_vpp\n" if ripple else "node,volts\n")
+    for node, volts in dc.items():
+        line = f"{node},{'OL' if volts is None else repr(volts)}"
+        if ripple:
+            value = ripple.get(node)
+            line += "," + ("" if value is None else repr(value))
         out.write(line + "\n")
     return out.getvalue()

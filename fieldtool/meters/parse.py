@@ -1,11 +1,16 @@
-"""Pure parsers for readings: typed by a technician, sent by SCPI meters, streamed lines."""
+"""Pure parsers for readings: typed by a technician, sent by SCPI meters, streamed lines.
+
+Each returns a ``Measurement`` of the quantity asked for (DC volts unless told otherwise),
+not placed yet; a meter's is a raw sample (not settled), a typed one is as the technician
+judged it (settled).
+"""
 
 from __future__ import annotations
 
 import math
 import re
-from dataclasses import dataclass
 
+from fieldtool.core.measurement import DC, TYPED, Measurement, Quantity, Source
 from fieldtool.meters.errors import MeterGarbage, ReadingParseError
 
 # SCPI uses +9.9E37 for overload (+inf), -9.9E37 for -inf and 9.91E37 for not-a-number.
@@ -18,29 +23,16 @@ _TYPED = re.compile(rf"^\s*(?P<value>{_NUMBER})\s*(?P<unit>[a-zA-Zµμ]*)\s*$")
 _NR = re.compile(r"^\s*[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?\s*$")
 _OVERLOAD_WORDS = {"ol", "overload", "o.l", "o.l."}
 
+UNIT_NAMES = {"V": "voltage", "A": "current"}  # for messages: "not a voltage unit"
 EXPECTED = "a voltage such as 12.9, 12.9V, 890mV, 1.2kV or 12,9, or OL for overload"
 
 
-@dataclass(frozen=True)
-class Reading:
-    """One reading: volts (None when overloaded), the unit text and the raw text."""
-
-    volts: float | None
-    overload: bool = False
-    unit: str = "V"
-    raw: str = ""
-
-
-def overload_reading(raw: str, unit: str = "") -> Reading:
-    """A reading that says the meter was over range."""
-    return Reading(volts=None, overload=True, unit=unit, raw=raw)
-
-
-def unit_scale(unit: str) -> float | None:
-    """Volts per unit for ``V``, ``mV``, ``uV``, ``µV`` or ``kV``; None if not a voltage."""
+def unit_scale(unit: str, base: str = "V") -> float | None:
+    """Base units per ``unit`` (``V``, ``mV``, ``uV``, ``µV``, ``kV`` for volts); None if it is
+    not that base unit; no unit at all means the base unit."""
     if unit == "":
         return 1.0
-    if unit[-1] not in "vV":
+    if unit[-1].lower() != base.lower() or len(base) != 1:
         return None
     prefix = unit[:-1]
     if prefix in ("M", "K"):  # 'MV' is ambiguous; 'KV' is a common shouting of kV
@@ -53,41 +45,42 @@ def _number(text: str) -> float:
     return float(text.replace(",", "."))
 
 
-def parse_typed(text: str) -> Reading:
+def parse_typed(text: str, quantity: Quantity = DC) -> Measurement:
     """Parse what a technician typed: ``12.9``, ``12,9 V``, ``890mV``, ``1.2kV``, ``OL``."""
-    raw = text
     stripped = text.strip()
     if stripped.lower() in _OVERLOAD_WORDS:
-        return overload_reading(raw)
+        return Measurement(None, quantity, None, TYPED, settled=True)
     if not stripped:
         raise ReadingParseError(f"nothing was typed; expected {EXPECTED}")
     match = _TYPED.match(stripped)
     if match is None:
         raise ReadingParseError(f"'{stripped}' is not a number with a unit; expected {EXPECTED}")
     value_text, unit = match["value"], match["unit"]
-    scale = unit_scale(unit)
+    scale = unit_scale(unit, quantity.unit)
     if scale is None:
         raise ReadingParseError(
             f"understood the number {value_text} but not the unit '{unit}'; expected {EXPECTED}"
         )
-    volts = _number(value_text) * scale
-    if not math.isfinite(volts):
+    value = _number(value_text) * scale
+    if not math.isfinite(value):
         raise ReadingParseError(f"'{stripped}' is not a finite voltage; expected {EXPECTED}")
-    return Reading(volts=volts, overload=False, unit=unit or "V", raw=raw)
+    return Measurement(None, quantity, value, TYPED, settled=True)
 
 
-def parse_scpi_number(text: str) -> Reading:
+def parse_scpi_number(text: str, source: Source, quantity: Quantity = DC) -> Measurement:
     """Parse an IEEE 488.2 NR1/NR2/NR3 response; |x| >= 9.9e37 means overload."""
     stripped = text.strip()
     if not _NR.match(stripped):
         raise MeterGarbage(f"meter answered {stripped!r}, which is not an IEEE 488.2 number")
     value = float(stripped)
     if abs(value) >= SCPI_NO_READING:
-        return overload_reading(text, unit="V")
-    return Reading(volts=value, overload=False, unit="V", raw=text)
+        return Measurement(None, quantity, None, source)
+    return Measurement(None, quantity, value, source)
 
 
-def parse_stream_line(line: str, regex: str | re.Pattern[str]) -> Reading | None:
+def parse_stream_line(
+    line: str, regex: str | re.Pattern[str], source: Source, quantity: Quantity = DC
+) -> Measurement | None:
     """Parse one streamed line with a regex holding groups ``value`` and optional ``unit``.
 
     Returns None when the line does not match (a status line, noise); raises MeterGarbage
@@ -101,15 +94,16 @@ def parse_stream_line(line: str, regex: str | re.Pattern[str]) -> Reading | None
     value_text = (groups.get("value") or "").strip()
     unit = (groups.get("unit") or "").strip()
     if value_text.lower() in _OVERLOAD_WORDS:
-        return overload_reading(line, unit=unit)
+        return Measurement(None, quantity, None, source)
     try:
         value = _number(value_text)
     except ValueError:
         msg = f"streamed value {value_text!r} in line {line!r} is not a number"
         raise MeterGarbage(msg) from None
     if abs(value) >= SCPI_NO_READING:
-        return overload_reading(line, unit=unit)
-    scale = unit_scale(unit)
+        return Measurement(None, quantity, None, source)
+    scale = unit_scale(unit, quantity.unit)
     if scale is None:
-        raise MeterGarbage(f"streamed unit {unit!r} in line {line!r} is not a voltage unit")
-    return Reading(volts=value * scale, overload=False, unit=unit or "V", raw=line)
+        what = UNIT_NAMES.get(quantity.unit, quantity.unit)
+        raise MeterGarbage(f"streamed unit {unit!r} in line {line!r} is not a {what} unit")
+    return Measurement(None, quantity, value * scale, source)

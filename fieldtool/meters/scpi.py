@@ -5,13 +5,15 @@ from __future__ import annotations
 import time
 from collections.abc import Callable
 
+from fieldtool.core.measurement import Measurement
+from fieldtool.meters.base import Meter
 from fieldtool.meters.errors import MeterGarbage
-from fieldtool.meters.parse import Reading, parse_scpi_number
+from fieldtool.meters.parse import parse_scpi_number
 from fieldtool.meters.settings import MeterSettings
 from fieldtool.meters.transport import Transport
 
 
-class ScpiMeter:
+class ScpiMeter(Meter):
     """Ask a SCPI meter who it is, set it to DC volts, then read on request."""
 
     def __init__(
@@ -22,9 +24,9 @@ class ScpiMeter:
         clock: Callable[[], float] = time.monotonic,
         sleep: Callable[[float], None] = time.sleep,
     ) -> None:
+        super().__init__(f"scpi meter on {transport.name}")
         self.transport = transport
         self.settings = settings or MeterSettings()
-        self.identity: str | None = None
         self.clock = clock
         self.sleep = sleep
         self._last_sent: float | None = None
@@ -55,13 +57,15 @@ class ScpiMeter:
             self._send(self.settings.configure_command)
         return identity
 
-    def read(self) -> Reading:
-        """One reading; a garbled answer is retried once, then MeterGarbage."""
+    def read(self) -> Measurement:
+        """One sample; a garbled answer is retried once, then MeterGarbage."""
         try:
-            return parse_scpi_number(self._ask(self.settings.read_command))
+            answer = self._ask(self.settings.read_command)
+            return self.stamped(parse_scpi_number(answer, self.source, self.quantity))
         except MeterGarbage:
             self.transport.discard_stale()
-            return parse_scpi_number(self._ask(self.settings.read_command))
+            answer = self._ask(self.settings.read_command)
+            return self.stamped(parse_scpi_number(answer, self.source, self.quantity))
 
     def close(self) -> None:
         """Release the transport."""

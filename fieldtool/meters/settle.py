@@ -1,37 +1,35 @@
-"""Wait for a meter reading to stop moving before it is trusted."""
+"""When a meter's reading has stopped moving: one pure rule, used live and blocking.
+
+``judge`` looks at the samples taken since the probe landed and says where the value stands:
+the latest value, how far the last ``rule.count`` samples spread, and whether the rule is met
+(``count`` in a row within percent·|v|/100 + volts and, with ``rule.trend``, the ``count``
+before them agreeing too at a mean no more than half a band away, so a slow creep is not
+called settled; ``count`` overloads in a row are a settled overload). The terminal UI calls it
+on every new sample; ``settle`` reads until it is met or the rule's timeout passes (``fieldtool
+read --settle``).
+"""
 
 from __future__ import annotations
 
 import time
-from collections.abc import Callable
-from dataclasses import dataclass
+from collections.abc import Callable, Sequence
+from dataclasses import replace
 
-from fieldtool.meters.parse import Reading
+from fieldtool.core.measurement import Measurement
 from fieldtool.meters.settings import SettleRule
 
 
-@dataclass(frozen=True)
-class Settled:
-    """The outcome of settling: the value, how far the last readings spread, and honesty."""
-
-    volts: float | None
-    spread: float | None
-    count: int
-    overload: bool
-    settled: bool
-
-
-def _band(values: list[float], rule: SettleRule) -> float:
+def _band(values: Sequence[float], rule: SettleRule) -> float:
     centre = sum(values) / len(values)
     return rule.percent / 100.0 * abs(centre) + rule.volts
 
 
-def _agree(values: list[float], rule: SettleRule) -> bool:
+def _agree(values: Sequence[float], rule: SettleRule) -> bool:
     """True when every value lies within the rule's band around their mean."""
     return max(values) - min(values) <= _band(values, rule)
 
 
-def _steady(before: list[float], window: list[float], rule: SettleRule) -> bool:
+def _steady(before: Sequence[float], window: Sequence[float], rule: SettleRule) -> bool:
     """True when the window before agrees too and the mean has not moved by half a band."""
     if len(before) < rule.count or not _agree(before, rule):
         return False
@@ -39,32 +37,41 @@ def _steady(before: list[float], window: list[float], rule: SettleRule) -> bool:
     return shift <= 0.5 * _band(window, rule)
 
 
+def judge(samples: Sequence[Measurement], rule: SettleRule) -> Measurement | None:
+    """The latest sample with the spread of the last ``rule.count``, whether the rule is met,
+    and how many samples were judged; None before any sample."""
+    return _verdict(samples, rule) if samples else None
+
+
+def _verdict(samples: Sequence[Measurement], rule: SettleRule) -> Measurement:
+    last = samples[-1]
+    recent = samples[-rule.count :]
+    full = len(recent) == rule.count
+    if full and all(s.overload for s in recent):
+        return replace(last, spread=None, settled=True, samples=len(samples))
+    numbers = [s.value for s in recent if s.value is not None]
+    earlier = [s.value for s in samples[-2 * rule.count : -rule.count] if s.value is not None]
+    spread = max(numbers) - min(numbers) if len(numbers) > 1 else None
+    ok = full and len(numbers) == rule.count and _agree(numbers, rule)
+    if ok and rule.trend:
+        ok = _steady(earlier, numbers, rule)
+    return replace(last, spread=spread, settled=ok, samples=len(samples))
+
+
 def settle(
-    read_fn: Callable[[], Reading],
+    read: Callable[[], Measurement],
     rule: SettleRule,
     clock: Callable[[], float] = time.monotonic,
-    on_value: Callable[[Reading], None] | None = None,
-) -> Settled:
-    """Read until ``rule.count`` readings in a row agree (and, with ``rule.trend``, the
-    ``count`` before them too, at the same mean), or report honestly at the timeout."""
+    on_sample: Callable[[Measurement], None] | None = None,
+) -> Measurement:
+    """Read until ``judge`` says settled, or return its honest verdict at the timeout."""
     start = clock()
-    history: list[Reading] = []
-    total = 0
+    samples: list[Measurement] = []
     while True:
-        reading = read_fn()
-        total += 1
-        if on_value is not None:
-            on_value(reading)
-        history = (history + [reading])[-2 * rule.count :]
-        recent = history[-rule.count :]
-        window_full = len(recent) == rule.count
-        if window_full and all(r.overload for r in recent):
-            return Settled(None, None, total, overload=True, settled=True)
-        numbers = [r.volts for r in recent if r.volts is not None]
-        earlier = [r.volts for r in history[: -rule.count] if r.volts is not None]
-        agreed = window_full and len(numbers) == rule.count and _agree(numbers, rule)
-        if agreed and (not rule.trend or _steady(earlier, numbers, rule)):
-            return Settled(numbers[-1], max(numbers) - min(numbers), total, False, True)
-        if clock() - start >= rule.timeout_s:
-            spread = max(numbers) - min(numbers) if len(numbers) > 1 else None
-            return Settled(reading.volts, spread, total, overload=reading.overload, settled=False)
+        sample = read()
+        samples.append(sample)
+        if on_sample is not None:
+            on_sample(sample)
+        verdict = _verdict(samples, rule)
+        if verdict.settled or clock() - start >= rule.timeout_s:
+            return verdict

@@ -17,8 +17,8 @@ from collections import deque
 from collections.abc import Callable
 
 from fieldtool.core.errors import InputError
+from fieldtool.core.measurement import Measurement
 from fieldtool.meters.errors import UnknownNode
-from fieldtool.meters.parse import Reading
 from fieldtool.meters.simulated import SimulatedMeter
 
 # SCPI-99 error numbers (SCPI Consortium, SCPI 1999.0 Vol. 2, ch. 21; from memory).
@@ -62,20 +62,20 @@ def canonical_header(command: str) -> str:
     return ":".join(parts) + ("?" if query else "")
 
 
-def scpi_number(reading: Reading) -> str:
-    """A reading as an IEEE 488.2 NR3 number; overload as the SCPI +9.9E37."""
-    if reading.overload or reading.volts is None:
+def scpi_number(sample: Measurement) -> str:
+    """A sample as an IEEE 488.2 NR3 number; overload as the SCPI +9.9E37."""
+    if sample.value is None:
         return SCPI_OVERLOAD
-    return f"{reading.volts:+.8E}"
+    return f"{sample.value:+.8E}"
 
 
-def stream_text(reading: Reading) -> str:
-    """A reading as a 5-digit meter's logging line: ``125.77 V``, ``12.345 mV`` or ``OL``."""
-    if reading.overload or reading.volts is None:
+def stream_text(sample: Measurement) -> str:
+    """A sample as a 5-digit meter's logging line: ``125.77 V``, ``12.345 mV`` or ``OL``."""
+    if sample.value is None:
         return "OL"
-    value, unit = reading.volts, "V"
+    value, unit = sample.value, sample.unit
     if abs(value) < 1.0:
-        value, unit = value * 1000.0, "mV"
+        value, unit = value * 1000.0, "m" + unit
     digits = max(0, 5 - len(str(int(abs(value)))))
     return f"{value:.{digits}f} {unit}"
 
@@ -86,7 +86,7 @@ class ScpiResponder:
     def __init__(self, meter: SimulatedMeter) -> None:
         self.meter = meter
         self.errors: deque[str] = deque()
-        self.last: Reading | None = None
+        self.last: Measurement | None = None
 
     def error(self, entry: str) -> None:
         """Queue an SCPI error; a full queue ends in a queue-overflow entry."""
@@ -190,11 +190,11 @@ class PtyMeter:
             self.say("nodes: " + ", ".join(self.meter.describe_node(n) for n in self.meter.nodes))
             self.say("type a node or test point (or GND) to move the probe, 'lift' or 'quit'")
         elif word.lower() in _LIFT_WORDS:
-            self.meter.touch(None)
+            self.meter.place_probe(None)
             self.say(self.where())
         else:
             try:
-                self.meter.touch(word)
+                self.meter.place_probe(word)
             except UnknownNode as exc:
                 self.say(exc.message)
                 return

@@ -17,7 +17,7 @@ average with the meter's input resistance on that node. On top of it, what a tec
 - **Range**: beyond ``[meter] range_volts`` of the profile it reads overload (never without).
 
 Each ``read()`` takes the meter's measurement time; with a fixed seed and an injected clock and
-sleep, a sequence of touches and reads is reproducible.
+sleep, a sequence of probe placements and reads is reproducible.
 """
 
 from __future__ import annotations
@@ -35,8 +35,9 @@ from fieldtool.core.circuit.expect import Expectation, expect
 from fieldtool.core.circuit.netlist import build_circuit, default_nodes
 from fieldtool.core.circuit.profile import Profile
 from fieldtool.core.diagnosis.faults import Fault, apply_fault, catalog, parse_fault
+from fieldtool.core.measurement import Measurement
+from fieldtool.meters.base import Meter
 from fieldtool.meters.errors import MeterDisconnected, UnknownNode
-from fieldtool.meters.parse import Reading, overload_reading
 
 # Common practice, no source: a handheld or bench meter on autorange shows a steady DC reading
 # about 1–2 s after the probes land; a first-order lag of 0.3 s is within 1 % after 1.4 s.
@@ -118,8 +119,8 @@ def random_fault(profile: Profile, seed: int) -> Fault | None:
     return faults[int(rng.integers(len(faults)))]
 
 
-class SimulatedMeter:
-    """A meter on a simulated board: ``touch`` a node, then ``read`` as from any meter driver.
+class SimulatedMeter(Meter):
+    """A meter on a simulated board: ``place_probe`` on a node, then ``read`` as any meter.
 
     Args:
         profile: the board.
@@ -146,6 +147,7 @@ class SimulatedMeter:
         meter_tau_s: float = METER_TAU_S,
         expectation: Expectation | None = None,
     ) -> None:
+        super().__init__("simulated meter")
         self.profile = profile
         self.fault = parse_fault(fault, profile) if isinstance(fault, str) else fault
         self.clock = clock
@@ -162,6 +164,9 @@ class SimulatedMeter:
         self._solved: tuple[Expectation, dict[str, NodeFacts]] | None = None
         self._landing = _Landing(None, clock(), 0.0, _LIFTED)
         self._closed = False
+
+    places_probe = True
+    source_kind = "simulated"
 
     # -- the board ------------------------------------------------------------------------
 
@@ -217,12 +222,12 @@ class SimulatedMeter:
         """The node the probe is on, or None when it is lifted."""
         return self._landing.node
 
-    def touch(self, node: str | None) -> None:
+    def place_probe(self, at: str | None) -> None:
         """Put the probe on a node (a name or test-point label) or lift it (None)."""
-        if node is None:
+        if at is None:
             facts, where = _LIFTED, None
         else:
-            where = self.resolve(node)
+            where = self.resolve(at)
             facts = self._board()[where]
         with self._lock:
             t = self.clock()
@@ -248,7 +253,7 @@ class SimulatedMeter:
         p = self.profile
         return self.noise_fraction * (p.meter_percent / 100.0 * abs(volts) + p.meter_volts)
 
-    # -- the driver shape -----------------------------------------------------------------
+    # -- the meter -----------------------------------------------------------------
 
     def connect(self) -> str:
         """Solve the board now (about a second) so the first reading is not late."""
@@ -256,18 +261,18 @@ class SimulatedMeter:
         self._board()
         return self.identity
 
-    def sample(self) -> Reading:
-        """The reading at this instant, without waiting for a measurement."""
+    def sample(self) -> Measurement:
+        """The sample at this instant, without waiting for a measurement."""
         self._check_open()
         with self._lock:
             shown = self._display(self.clock())
             volts = float(shown + self._rng.normal(0.0, self.noise_sigma(shown)))
         if self.range_volts is not None and abs(volts) > self.range_volts:
-            return overload_reading("OL", unit="V")
-        return Reading(volts=volts, overload=False, unit="V", raw=f"{volts:+.5E}")
+            return self.stamped(Measurement(None, self.quantity, None, self.source))
+        return self.stamped(Measurement(None, self.quantity, volts, self.source))
 
-    def read(self) -> Reading:
-        """One reading, after the meter's measurement time."""
+    def read(self) -> Measurement:
+        """One sample, after the meter's measurement time."""
         self._check_open()
         self.sleep(self.reading_interval_s)
         return self.sample()

@@ -4,15 +4,17 @@ from __future__ import annotations
 
 import re
 
+from fieldtool.core.measurement import Measurement
+from fieldtool.meters.base import Meter
 from fieldtool.meters.errors import MeterGarbage
-from fieldtool.meters.parse import Reading, parse_stream_line
+from fieldtool.meters.parse import parse_stream_line
 from fieldtool.meters.settings import MeterSettings
 from fieldtool.meters.transport import Transport
 
 MAX_SKIPPED_LINES = 20
 
 
-class StreamMeter:
+class StreamMeter(Meter):
     """Read the next fresh line from a streaming meter and pull the value out with a regex."""
 
     def __init__(
@@ -21,26 +23,26 @@ class StreamMeter:
         settings: MeterSettings | None = None,
         max_skipped: int = MAX_SKIPPED_LINES,
     ) -> None:
+        super().__init__(f"stream meter on {transport.name}")
         self.transport = transport
         self.settings = settings or MeterSettings(protocol="stream")
         self.pattern = re.compile(self.settings.stream_regex)
         self.max_skipped = max_skipped
-        self.identity: str | None = None
 
     def connect(self) -> None:
         """Streaming meters have no identity to ask for; nothing to do."""
         return None
 
-    def read(self) -> Reading:
+    def read(self) -> Measurement:
         """The value of the next line that arrives after this call."""
         self.transport.discard_stale()
         skipped: list[str] = []
         while len(skipped) <= self.max_skipped:
             raw = self.transport.readline(self.settings.timeout_s)
             line = raw.decode("utf-8", errors="replace").strip()
-            reading = parse_stream_line(line, self.pattern)
-            if reading is not None:
-                return reading
+            sample = parse_stream_line(line, self.pattern, self.source, self.quantity)
+            if sample is not None:
+                return self.stamped(sample)
             skipped.append(line)
         last = skipped[-1] if skipped else ""
         raise MeterGarbage(

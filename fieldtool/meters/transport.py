@@ -2,29 +2,18 @@
 
 from __future__ import annotations
 
-import errno
-import termios
-import time
 from typing import Protocol
 
 import serial
+from serial.serialutil import Timeout
 
-from fieldtool.meters.errors import (
-    MeterDisconnected,
-    MeterTimeout,
-    PortBusy,
-    PortMissing,
-    PortPermission,
-    permission_message,
-)
-
-# What a port that has gone away raises: pyserial's own error, the OS error, and termios.error
-# from tcdrain/tcflush on a line that hung up (EIO), which is neither of the others.
-PORT_ERRORS = (serial.SerialException, OSError, termios.error)
+from fieldtool.meters.errors import PORT_ERRORS, MeterTimeout, port_errors
 
 
 class Transport(Protocol):
     """What a meter driver needs: write bytes, read a line, close."""
+
+    name: str
 
     def write(self, data: bytes) -> None:
         """Send bytes to the meter."""
@@ -45,91 +34,52 @@ class SerialTransport:
     def __init__(self, port: serial.SerialBase, terminator: bytes = b"\n", name: str = "") -> None:
         self.port = port
         self.terminator = terminator
-        self.name = name or str(getattr(port, "port", "") or "serial port")
+        self.name = name or port.port or "serial port"
         self._pending = b""
-
-    def _disconnected(self, exc: BaseException) -> MeterDisconnected:
-        return MeterDisconnected(
-            f"{self.name} stopped answering mid-reading ({exc});"
-            " check the cable and plug the meter back in"
-        )
 
     def write(self, data: bytes) -> None:
         """Send bytes to the meter."""
-        try:
+        with port_errors(self.name):
             self.port.write(data)
             self.port.flush()
-        except PORT_ERRORS as exc:
-            raise self._disconnected(exc) from None
 
     def readline(self, timeout: float) -> bytes:
         """One complete line ending in the terminator; a partial line is a MeterTimeout."""
-        deadline = time.monotonic() + timeout
+        deadline = Timeout(timeout)
         end = self.terminator[-1:]
         while True:
             cut = self._pending.find(end)
             if cut >= 0:
                 line, self._pending = self._pending[: cut + 1], self._pending[cut + 1 :]
                 return line
-            left = deadline - time.monotonic()
-            if left <= 0:
+            if deadline.expired():
                 partial, self._pending = self._pending, b""
                 got = f"only a partial line {partial!r}" if partial else "nothing"
                 raise MeterTimeout(
                     f"{self.name}: {got} within {timeout:g} s; check baud rate, terminator"
                     " and that the meter is in remote/output mode"
                 )
-            try:
-                self.port.timeout = min(left, 0.05)
-                waiting = getattr(self.port, "in_waiting", 0) or 1
-                chunk = self.port.read(waiting)
-            except PORT_ERRORS as exc:
-                raise self._disconnected(exc) from None
+            with port_errors(self.name):
+                self.port.timeout = min(deadline.time_left(), 0.05)
+                chunk = self.port.read(self.port.in_waiting or 1)
             self._pending += chunk
 
     def discard_stale(self) -> None:
         """Throw away buffered input, ours and the driver's."""
         self._pending = b""
-        try:
+        with port_errors(self.name):
             self.port.reset_input_buffer()
-        except PORT_ERRORS as exc:
-            raise self._disconnected(exc) from None
 
     def close(self) -> None:
-        """Close the port; closing twice is harmless."""
+        """Close the port; closing twice, or a port already gone, is harmless."""
         try:
             self.port.close()
         except PORT_ERRORS:
             pass  # the port is already gone; nothing left to release
 
 
-def translate_open_error(name: str, exc: BaseException) -> Exception:
-    """The MeterError that explains why ``name`` could not be opened."""
-    code = getattr(exc, "errno", None)
-    text = str(exc).lower()
-    if code == errno.ENOENT or "no such file" in text or "filenotfound" in text:
-        return PortMissing(
-            f"{name} does not exist; plug the meter in or list ports with 'fieldtool ports'"
-        )
-    if code == errno.EACCES or "permission denied" in text:
-        return PortPermission(permission_message(name))
-    if code == errno.EBUSY or "busy" in text or "lock" in text:
-        return PortBusy(f"{name} is in use by another program; close it and try again")
-    if "connection refused" in text or "could not open port" in text:
-        return PortMissing(f"cannot open {name} ({exc}); check the name or address")
-    return MeterDisconnected(f"cannot use {name} ({exc})")
-
-
 def open_port(name: str, baud: int = 9600, timeout: float = 2.0, terminator: bytes = b"\n"):
     """Open a device path or pyserial URL (``loop://``, ``socket://``, ``rfc2217://``)."""
-    try:
+    with port_errors(name, opening=True):
         port = serial.serial_for_url(name, baudrate=baud, timeout=timeout, exclusive=True)
-    except ValueError:
-        # URL handlers such as loop:// do not know 'exclusive'
-        try:
-            port = serial.serial_for_url(name, baudrate=baud, timeout=timeout)
-        except (serial.SerialException, OSError) as exc:
-            raise translate_open_error(name, exc) from None
-    except (serial.SerialException, OSError) as exc:
-        raise translate_open_error(name, exc) from None
     return SerialTransport(port, terminator=terminator, name=name)

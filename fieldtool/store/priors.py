@@ -6,10 +6,12 @@ not usable), the local files give the counts and ``notice`` says so, in one line
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
 
 from fieldtool.core.history.fleet import confirmed_failures as files_confirmed
+from fieldtool.core.session import FailureSource
 from fieldtool.store.config import StoreAddress
 from fieldtool.store.errors import StoreError
 from fieldtool.store.fleet import confirmed_failures as store_confirmed
@@ -49,3 +51,20 @@ def fleet_counts(
     if notice:
         notice += f"; fleet priors from the local files in {local}"
     return FleetCounts(files_confirmed(local, profile_name), "files", notice)
+
+
+def store_failures(
+    store: StoreAddress | None,
+    logs_dir: Path | str | None,
+    notify: Callable[[str], None] | None = None,
+) -> FailureSource:
+    """Where ``core.session.choose_priors`` takes confirmed failures from: ``fleet_counts``,
+    with its notice (if any) handed to ``notify``."""
+
+    def confirmed(profile_name: str) -> dict[tuple[str, str], int]:
+        counts = fleet_counts(store, logs_dir, profile_name)
+        if counts.notice and notify is not None:
+            notify(counts.notice)
+        return counts.counts
+
+    return confirmed

@@ -26,7 +26,13 @@ from __future__ import annotations
 
 import hashlib
 
-from fieldtool.core.history import SCHEMA, Action, SessionClosed, SessionOpened, Verification
+from fieldtool.core.history import (
+    Action,
+    SessionClosed,
+    SessionOpened,
+    Verification,
+    schema_for,
+)
 from fieldtool.core.history.fleet_cache import SKIPPED_KINDS
 from fieldtool.core.history.sessions import PART_MODES, TARGET_MODES
 
@@ -50,9 +56,10 @@ def days(micros: str) -> str:
 
 
 def catalogue() -> dict[str, object]:
-    """This fieldtool's fault catalogue and record schema, as ``board_summary``'s arguments."""
+    """This fieldtool's fault catalogue and the action schema it reads, as ``board_summary``'s
+    arguments."""
     return {
-        "schema": SCHEMA,
+        "schema": schema_for(Action.kind),
         "targets": sorted(TARGET_MODES),
         "target_modes": sorted(f"{t}:{m}" for t, modes in TARGET_MODES.items() for m in modes),
         "part_modes": sorted(PART_MODES),

@@ -1,57 +1,49 @@
-"""The fieldtool terminal app: start, load, probe, repair, verify; built by ``make_app``."""
+"""The fieldtool terminal app: start, load, probe, repair, verify; built by ``make_app``.
+
+The flow runs on what screens hand back: the start screen posts ``StartScreen.Chosen``, the
+loading worker ``LoadingScreen.Loaded`` (or ``Failed``), the resume dialog returns its answer,
+and the probing screen posts ``ProbingScreen.SessionEnded``. The app holds the history writer
+and shows its backlog in ``unsaved_count``, a reactive the screens watch.
+"""
 
 from __future__ import annotations
 
 import os
 from collections.abc import Iterable
-from dataclasses import dataclass, field
 from pathlib import Path
 
 from textual.app import App, SystemCommand
 from textual.binding import Binding
 from textual.message import Message
+from textual.reactive import reactive
 from textual.screen import Screen
 from textual.worker import Worker, WorkerState
 
-from fieldtool.core import history as hist
-from fieldtool.core.circuit.profile import Profile
-from fieldtool.core.diagnosis.dictionary import FaultDictionary
-from fieldtool.core.diagnosis.faults import Fault
+from fieldtool.core.circuit.safety import CAUTION
 from fieldtool.core.errors import FieldtoolError
+from fieldtool.core.history.sessions import Session
+from fieldtool.core.session import BoardSession
 from fieldtool.meters.settings import MeterSettings
 from fieldtool.store import StoreAddress
-from fieldtool.tui.dialogs import ErrorDialog, NoticeDialog, ResumeDialog
-from fieldtool.tui.meter_strip import MeterChoice
-from fieldtool.tui.session import BoardSession
+from fieldtool.tui.config import AppConfig, SessionRequest
+from fieldtool.tui.dialogs import (
+    ActionDialog,
+    ErrorDialog,
+    NoticeDialog,
+    OutcomeDialog,
+    ResumeDialog,
+)
+from fieldtool.tui.help import TYPED, HelpScreen, key_table
+from fieldtool.tui.history import FleetScreen, HistoryScreen
+from fieldtool.tui.loading import LoadedBoard, LoadingScreen
+from fieldtool.tui.palette import Commands
+from fieldtool.tui.probing import ProbingScreen
+from fieldtool.tui.start import StartScreen
 from fieldtool.tui.writer import HistoryWriter
 
 PALETTE_WORDS = "Command palette: the main actions by name"
 
-
-@dataclass(frozen=True)
-class AppConfig:
-    """Where things live and who is working; passed in, never read from the environment here."""
-
-    logs_dir: Path
-    profiles_dir: Path | None = None  # your own profiles; the shipped ones are always listed
-    cache_dir: Path | None = None
-    technician: str = ""
-    settings: MeterSettings = field(default_factory=MeterSettings)
-    rescue_dir: Path | None = (
-        None  # where unsaveable events go at quit (default ~/fieldtool-rescue)
-    )
-    store: StoreAddress | None = None  # the fleet store for the priors (None: files only)
-
-
-@dataclass(frozen=True)
-class SessionRequest:
-    """A board to work on: its profile, serial, meter, and whether to resume (None: ask)."""
-
-    profile: Profile
-    serial: str
-    meter: MeterChoice
-    resume: bool | None = None
-    demo_fault: Fault | None = None
+__all__ = ["AppConfig", "FieldtoolApp", "SessionRequest", "help_text", "make_app"]
 
 
 class HistorySaved(Message):
@@ -77,12 +69,13 @@ class FieldtoolApp(App):
         Binding("ctrl+p", "command_palette", "Commands", show=False, tooltip=PALETTE_WORDS),
     ]
 
+    unsaved_count: reactive[int] = reactive(0)  # events handed to the writer, not saved yet
+
     def __init__(self, config: AppConfig, request: SessionRequest | None = None) -> None:
         super().__init__()
         self.config = config
         self.request = request
         self.writer: HistoryWriter | None = None
-        self.unsaved_count = 0
         self.save_error_shown = False
         self.writer_left_unsaved = 0
         self.rescued_to: Path | None = None
@@ -91,48 +84,41 @@ class FieldtoolApp(App):
 
     def on_mount(self) -> None:
         """Open on the start screen, or straight on a board."""
-        from fieldtool.tui.start import StartScreen
-
         if self.request is not None:
-            self.begin(self.request)  # the start screen comes after the session, if at all
+            self.push_screen(LoadingScreen(self.request, self.config))
         else:
             self.push_screen(StartScreen(self.config))
 
-    def begin(self, request: SessionRequest) -> None:
-        """Load the board's fault dictionary and history, then open its session."""
-        from fieldtool.tui.loading import LoadingScreen
+    def on_start_screen_chosen(self, message: StartScreen.Chosen) -> None:
+        """Load the chosen board's fault dictionary and history."""
+        self.switch_screen(LoadingScreen(message.request, self.config))
 
-        self.push_screen(LoadingScreen(request, self.config))
+    def on_loading_screen_failed(self, message: LoadingScreen.Failed) -> None:
+        """The board could not be opened: the start screen, with the error over it."""
+        self.switch_screen(StartScreen(self.config))
+        self.push_screen(ErrorDialog(message.error))
 
-    def loaded(
-        self,
-        request: SessionRequest,
-        dictionary: FaultDictionary,
-        priors,
-        unfinished: hist.BoardHistory | None,
-    ) -> None:
-        """The dictionary is ready: ask about an unfinished session if there is one."""
-        if unfinished is None or request.resume is False:
-            self.open_session(request, dictionary, priors, None)
+    def on_loading_screen_loaded(self, message: LoadingScreen.Loaded) -> None:
+        """The board is ready: ask about an unfinished session if there is one."""
+        board = message.board
+        unfinished, resume = board.unfinished, board.request.resume
+        if unfinished is None or resume is not None:
+            self.open_session(board, unfinished if resume else None)
             return
-        if request.resume:
-            self.open_session(request, dictionary, priors, unfinished)
-            return
-        opened = next(r for r in reversed(unfinished.events) if r.kind == "session-opened")
-        after = [r for r in unfinished.events if r.time >= opened.time]
-        readings = sum(r.kind in ("reading", "verification") for r in after)
-        actions = sum(r.kind == "action" for r in after)
-        dialog = ResumeDialog(request.serial, opened.time[:16].replace("T", " "), readings, actions)
+        records = unfinished.records
+        readings = sum(r.kind in ("reading", "verification") for r in records)
+        actions = sum(r.kind == "action" for r in records)
+        opened = unfinished.start[:16].replace("T", " ")
+        dialog = ResumeDialog(board.request.serial, opened, readings, actions)
 
-        def chosen(resume: bool | None) -> None:
-            self.open_session(request, dictionary, priors, unfinished if resume else None)
+        def chosen(answer: bool | None) -> None:
+            self.open_session(board, unfinished if answer else None)
 
         self.push_screen(dialog, chosen)
 
-    def open_session(self, request, dictionary, priors, resume_from) -> None:
+    def open_session(self, board: LoadedBoard, resume_from: Session | None) -> None:
         """Create the session (new or resumed) and show the probing screen."""
-        from fieldtool.tui.probing import ProbingScreen
-
+        request = board.request
         self.close_writer()
         self.writer = HistoryWriter(
             self.config.logs_dir,
@@ -145,9 +131,9 @@ class FieldtoolApp(App):
         session = BoardSession(
             request.profile,
             request.serial,
-            dictionary,
+            board.dictionary,
             self.writer.submit,
-            priors=priors,
+            priors=board.priors,
             technician=self.config.technician,
         )
         if resume_from is not None:
@@ -155,18 +141,16 @@ class FieldtoolApp(App):
             self.notify(f"Resumed: {restored} readings restored.", timeout=4)
         else:
             session.open()
-        screen = ProbingScreen(session, request.meter, request.demo_fault)
+        screen = ProbingScreen(session, request.meter, self.config.logs_dir, request.demo_fault)
         self.switch_screen(screen)
 
-    def session_finished(self, reveal: str | None) -> None:
+    def on_probing_screen_session_ended(self, message: ProbingScreen.SessionEnded) -> None:
         """The outcome is saved: back to the start screen."""
-        from fieldtool.tui.start import StartScreen
-
         if self.writer is not None:
             self.writer.drain()
         self.switch_screen(StartScreen(self.config))
-        if reveal:
-            self.push_screen(NoticeDialog("Demo: the hidden fault", reveal))
+        if message.reveal:
+            self.push_screen(NoticeDialog("Demo: the hidden fault", message.reveal))
 
     def close_writer(self) -> None:
         """Write what is queued and stop the writer; what cannot be saved goes to a rescue file."""
@@ -178,20 +162,14 @@ class FieldtoolApp(App):
 
     # --- history writer messages ---------------------------------------------------------
 
-    def _writer_state(self) -> None:
-        self.unsaved_count = len(self.writer.unsaved) if self.writer else 0
-        refresh = getattr(self.screen, "refresh_title", None)
-        if refresh is not None:
-            refresh()
-
     def on_history_saved(self, message: HistorySaved) -> None:
         """An event reached the disk."""
         self.save_error_shown = False
-        self._writer_state()
+        self.unsaved_count = len(self.writer.unsaved) if self.writer else 0
 
     def on_history_failed(self, message: HistoryFailed) -> None:
         """Say once that saving fails; the events stay queued in memory."""
-        self._writer_state()
+        self.unsaved_count = len(self.writer.unsaved) if self.writer else 0
         if not self.save_error_shown:
             self.save_error_shown = True
             self.push_screen(ErrorDialog(message.error))
@@ -207,38 +185,21 @@ class FieldtoolApp(App):
                 "please report this with the board's profile.",
                 title="Unexpected error",
             )
-        self.show_error(error)
+        self.push_screen(ErrorDialog(error))
 
     # --- app-wide actions ----------------------------------------------------------------
 
-    def loading_failed(self, error: FieldtoolError) -> None:
-        """The board could not be opened: the start screen, with the error over it."""
-        from fieldtool.tui.start import StartScreen
-
-        self.switch_screen(StartScreen(self.config))
-        self.show_error(error)
-
-    def show_error(self, error: FieldtoolError) -> None:
-        """Show an error in a dialog."""
-        self.push_screen(ErrorDialog(error))
-
     def action_help(self) -> None:
         """Every key, for the screen in front."""
-        from fieldtool.tui.help import HelpScreen
-
         if not isinstance(self.screen, HelpScreen):
-            self.push_screen(HelpScreen())
+            self.push_screen(HelpScreen(help_text()))
 
     def action_history(self, serial: str) -> None:
         """A board's timeline."""
-        from fieldtool.tui.history import HistoryScreen
-
         self.push_screen(HistoryScreen(self.config.logs_dir, serial))
 
     def action_fleet(self, profile_name: str) -> None:
         """A board type's confirmed failures."""
-        from fieldtool.tui.history import FleetScreen
-
         self.push_screen(FleetScreen(self.config.logs_dir, profile_name))
 
     async def action_quit(self) -> None:
@@ -251,26 +212,12 @@ class FieldtoolApp(App):
         self.close_writer()
 
     def get_system_commands(self, screen: Screen) -> Iterable[SystemCommand]:
-        """The main actions in the command palette."""
+        """The main actions in the command palette: the app's, then the screen's own."""
         yield from super().get_system_commands(screen)
         yield SystemCommand("Help: every key", "List every key and what it does", self.action_help)
-        for title, help_text, action in PALETTE:
-            if hasattr(screen, f"action_{action}"):
-                yield SystemCommand(title, help_text, _runner(screen, action))
-
-
-PALETTE = (
-    ("Jump to the next probe", "Select the node the diagnosis suggests", "next_probe"),
-    ("Accept the settled reading", "Take the meter's settled value at this node", "accept"),
-    ("Type a reading", "Enter a value by hand", "type_reading"),
-    ("Record a repair", "Designator, what was done, part used, note", "repair"),
-    ("Close the session", "Fixed, not fixed or escalated", "close_session"),
-    ("Safety details", "Each capacitor's voltage and stored energy", "safety"),
-    ("Board history", "This board's timeline", "history"),
-    ("Fleet failures", "Confirmed failures on this board type", "fleet"),
-    ("Reconnect the meter", "Open the meter's port again", "reconnect"),
-    ("Start a session", "Open the board chosen on the start screen", "start"),
-)
+        if isinstance(screen, Commands):
+            for title, help_words, action in screen.PALETTE:
+                yield SystemCommand(title, help_words, _runner(screen, action))
 
 
 def _runner(screen: Screen, action: str):
@@ -278,6 +225,23 @@ def _runner(screen: Screen, action: str):
         await screen.run_action(action)
 
     return run
+
+
+def help_text() -> str:
+    """Every screen's keys, the typed-entry syntax and the standing caution."""
+    table_keys = [Binding("up,down", "", "Select a node (the table's rows)")]
+    parts = [
+        key_table("Everywhere", FieldtoolApp.BINDINGS),
+        key_table("Probing", table_keys + ProbingScreen.BINDINGS),
+        TYPED,
+        key_table("Start", StartScreen.BINDINGS + [Binding("tab", "", "Next field")]),
+        key_table("Record a repair", ActionDialog.BINDINGS),
+        key_table("Close the session", OutcomeDialog.BINDINGS),
+        key_table("Unfinished session", ResumeDialog.BINDINGS),
+        key_table("History and fleet", HistoryScreen.BINDINGS + FleetScreen.BINDINGS),
+        f"**Safety.** {CAUTION}",
+    ]
+    return "\n".join(parts)
 
 
 def make_app(

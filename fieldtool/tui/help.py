@@ -1,4 +1,8 @@
-"""The help screen: every key of every screen, read from the bindings themselves."""
+"""The help screen: every key of every screen, read from the bindings themselves.
+
+The app gathers the screens' bindings into the text (``app.help_text``); this module knows
+no screen.
+"""
 
 from __future__ import annotations
 
@@ -6,8 +10,6 @@ from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.screen import ModalScreen
 from textual.widgets import Footer, Label, Markdown
-
-from fieldtool.core.circuit.safety import CAUTION
 
 TYPED = """\
 **Typed readings.** Type a digit (or press **t**) to start; Enter takes the value into the
@@ -48,38 +50,19 @@ def key_table(title: str, bindings: list[Binding]) -> str:
     return "\n".join(rows) + "\n"
 
 
-def help_text() -> str:
-    """Every screen's keys, the typed-entry syntax and the standing caution."""
-    from fieldtool.tui.app import FieldtoolApp
-    from fieldtool.tui.dialogs import ActionDialog, OutcomeDialog, ResumeDialog
-    from fieldtool.tui.history import FleetScreen, HistoryScreen
-    from fieldtool.tui.probing import ProbingScreen
-    from fieldtool.tui.start import StartScreen
-
-    table_keys = [Binding("up,down", "", "Select a node (the table's rows)")]
-    parts = [
-        key_table("Everywhere", FieldtoolApp.BINDINGS),
-        key_table("Probing", table_keys + ProbingScreen.BINDINGS),
-        TYPED,
-        key_table("Start", StartScreen.BINDINGS + [Binding("tab", "", "Next field")]),
-        key_table("Record a repair", ActionDialog.BINDINGS),
-        key_table("Close the session", OutcomeDialog.BINDINGS),
-        key_table("Unfinished session", ResumeDialog.BINDINGS),
-        key_table("History and fleet", HistoryScreen.BINDINGS + FleetScreen.BINDINGS),
-        f"**Safety.** {CAUTION}",
-    ]
-    return "\n".join(parts)
-
-
 class HelpScreen(ModalScreen[None]):
     """Every key and what it does."""
 
     BINDINGS = [Binding("escape,question_mark,f1,q", "dismiss", "Close help")]
 
+    def __init__(self, text: str) -> None:
+        super().__init__()
+        self.text = text
+
     def compose(self) -> ComposeResult:
         """A scrolling Markdown page."""
         yield Label("Keys", classes="screen-title")
-        yield Markdown(help_text(), id="help-text")
+        yield Markdown(self.text, id="help-text")
         yield Footer()
 
     def on_mount(self) -> None:

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import importlib
 from pathlib import Path
 
 from textual import work
@@ -13,6 +12,9 @@ from textual.widgets import DataTable, Footer, Label, Static
 
 from fieldtool.core import history as hist
 from fieldtool.core.errors import FieldtoolError
+from fieldtool.core.history.fleet import confirmed_failures
+from fieldtool.core.history.sessions import group_sessions
+from fieldtool.core.measurement import DC
 from fieldtool.tui.view import volts_text
 
 
@@ -25,11 +27,17 @@ def event_words(record: hist.Record) -> str:
         who = f" by {e.technician}" if e.technician else ""
         return f"session opened{who} (fieldtool {e.tool_version})"
     if isinstance(e, hist.Reading):  # verification included
-        value = "OL" if e.volts is None else f"{volts_text(e.volts)} V"
-        spread = f" ±{volts_text(e.spread / 2, 2)}" if e.spread else ""
-        return f"{e.node} = {value}{spread} ({e.source})"
-    if isinstance(e, hist.Diagnosis):
-        top = ", ".join(f"{s.designator} {s.mode} {s.probability:.0%}" for s in e.suspects[:3])
+        m = e.measurement
+        what = "" if m.quantity == DC else f" {m.quantity.words}"
+        value = "OL" if m.value is None else f"{volts_text(m.value)} {m.unit}"
+        spread = f" ±{volts_text(m.spread / 2, 2)}" if m.spread else ""
+        source = f"{m.source}{'' if m.settled else hist.UNSETTLED}"
+        return f"{m.at}{what} = {value}{spread} ({source})"
+    if isinstance(e, hist.DiagnosisSnapshot):
+        top = ", ".join(
+            " ".join(w for w in (s.designator, s.mode, f"{s.probability:.0%}") if w)
+            for s in e.suspects[:3]
+        )
         return f"suspects: {top}"
     if isinstance(e, hist.Action):
         parts = [f"{e.designator} {e.done}"]
@@ -93,7 +101,7 @@ class HistoryScreen(Screen):
         if h is not None:
             for row in rows:
                 table.add_row(*row)
-            sessions = sum(r.kind == "session-opened" for r in h.events)
+            sessions = sum(s.id is not None for s in group_sessions(h.events))
             note = f"{len(h.events)} records, {sessions} sessions."
             if h.damaged:
                 note += f" {len(h.damaged)} damaged lines left on disk untouched"
@@ -128,15 +136,7 @@ class FleetScreen(Screen):
     @work(thread=True, exclusive=True, exit_on_error=False)
     def _count(self) -> None:
         try:
-            fleet = importlib.import_module("fieldtool.core.history.fleet")
-        except ModuleNotFoundError as exc:
-            if exc.name != "fieldtool.core.history.fleet":
-                raise
-            note = "Fleet counts need fieldtool.core.history.fleet, which this build does not have."
-            self.app.call_from_thread(self._show, {}, note)
-            return
-        try:
-            counts = fleet.confirmed_failures(self.logs_dir, self.profile_name)
+            counts = confirmed_failures(self.logs_dir, self.profile_name)
         except FieldtoolError as exc:
             self.app.call_from_thread(self._show, {}, f"{exc.title}: {exc.message}")
             return

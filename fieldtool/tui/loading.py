@@ -1,26 +1,61 @@
-"""Loading a board: the fault dictionary (from cache, or built with progress), priors, history."""
+"""Loading a board: the fault dictionary (from cache, or built with progress), priors, history.
+
+A thread worker prepares everything and posts ``Loaded`` with a ``LoadedBoard`` (or
+``Failed`` with the error) for the app to go on with.
+"""
 
 from __future__ import annotations
+
+from dataclasses import dataclass
 
 from textual import work
 from textual.app import ComposeResult
 from textual.containers import Vertical
+from textual.message import Message
 from textual.screen import Screen
 from textual.widgets import Footer, Label, ProgressBar, Static
 from textual.worker import get_current_worker
 
 from fieldtool.core.circuit.safety import CAUTION
+from fieldtool.core.diagnosis.dictionary import FaultDictionary
 from fieldtool.core.diagnosis.dictionary_cache import load_or_build
-from fieldtool.core.diagnosis.priors import published_priors
+from fieldtool.core.diagnosis.priors import Priors
 from fieldtool.core.errors import FieldtoolError
 from fieldtool.core.history import HistoryError
-from fieldtool.tui.session import choose_priors, unfinished_session
+from fieldtool.core.history.sessions import Session
+from fieldtool.core.session import choose_priors, unfinished_session
+from fieldtool.store.priors import store_failures
+from fieldtool.tui.config import AppConfig, SessionRequest
+
+
+@dataclass(frozen=True)
+class LoadedBoard:
+    """What a session on the requested board needs, ready to open."""
+
+    request: SessionRequest
+    dictionary: FaultDictionary
+    priors: Priors
+    unfinished: Session | None  # the board's latest session never closed, if any
 
 
 class LoadingScreen(Screen):
     """Shows progress while a worker prepares the board's session."""
 
-    def __init__(self, request, config) -> None:
+    class Loaded(Message):
+        """The board is ready; ``board`` holds what its session needs."""
+
+        def __init__(self, board: LoadedBoard) -> None:
+            super().__init__()
+            self.board = board
+
+    class Failed(Message):
+        """The board cannot be opened; ``error`` says why."""
+
+        def __init__(self, error: FieldtoolError) -> None:
+            super().__init__()
+            self.error = error
+
+    def __init__(self, request: SessionRequest, config: AppConfig) -> None:
         super().__init__()
         self.request = request
         self.config = config
@@ -41,7 +76,7 @@ class LoadingScreen(Screen):
 
     @work(thread=True, exclusive=True, exit_on_error=False)
     def prepare(self) -> None:
-        """Dictionary, priors and unfinished history, off the UI thread."""
+        """Dictionary, priors and unfinished session, off the UI thread."""
         worker = get_current_worker()
         r = self.request
 
@@ -55,20 +90,19 @@ class LoadingScreen(Screen):
             )
         except FieldtoolError as exc:
             if not worker.is_cancelled:
-                self.app.call_from_thread(self._failed, exc)
+                self.post_message(self.Failed(exc))
             return
         # A history folder that cannot be read must not stop the probing: published priors,
         # no resume, and the writer says so (and keeps every reading) when it cannot save.
         try:
-            priors = choose_priors(
-                r.profile,
-                dictionary,
-                self.config.logs_dir,
+            failures = store_failures(
                 self.config.store,
+                self.config.logs_dir,
                 lambda text: self.app.call_from_thread(self._warn, f"Priors: {text}"),
             )
+            priors = choose_priors(r.profile, dictionary.hypotheses, failures)
         except HistoryError as exc:
-            priors = published_priors(r.profile, dictionary.hypotheses)
+            priors = choose_priors(r.profile, dictionary.hypotheses)
             self.app.call_from_thread(self._warn, f"Fleet counts not used: {exc.message}")
         try:
             unfinished = unfinished_session(self.config.logs_dir, r.serial)
@@ -76,7 +110,7 @@ class LoadingScreen(Screen):
             unfinished = None
             self.app.call_from_thread(self._warn, f"History not read: {exc.message}")
         if not worker.is_cancelled:
-            self.app.call_from_thread(self.app.loaded, r, dictionary, priors, unfinished)
+            self.post_message(self.Loaded(LoadedBoard(r, dictionary, priors, unfinished)))
 
     def _progress(self, done: int, total: int) -> None:
         self.query_one("#loading-what", Static).update(
@@ -86,6 +120,3 @@ class LoadingScreen(Screen):
 
     def _warn(self, text: str) -> None:
         self.app.notify(text, severity="warning", timeout=8)
-
-    def _failed(self, error: FieldtoolError) -> None:
-        self.app.loading_failed(error)

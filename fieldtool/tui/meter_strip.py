@@ -1,37 +1,38 @@
-"""The meter strip: live value, settling, a sparkline, and the meter's worker thread.
+"""The meter strip (live value, settling, a sparkline) and the link from the meter's loop.
 
-The strip owns the meter connection. A thread worker opens the port (``open_port``), asks the
-driver for readings in a loop with the driver's finite timeouts, tells a simulated meter where
-the probe is, and hands each value back with ``call_from_thread``. The screen sets
-``probe_node`` (attributes down); the strip posts ``Connected`` and ``Problem`` (messages up).
-A lost meter stops the loop and keeps every reading already taken.
+The reading itself is done by ``meters.loop.MeterLoop`` in a thread worker of the probing
+screen; ``MeterLink`` is its listener and posts what the loop tells to the strip as messages.
+The strip draws them (samples at the probed node judged by the meter's settle rule,
+``meters.settle.judge``) and lets them bubble on to the screen, which says what went wrong.
+The screen sets ``probe_node`` and which link to follow (attributes down).
 """
 
 from __future__ import annotations
 
-import threading
 from collections import deque
 from dataclasses import dataclass, field
 
-from textual import work
 from textual.containers import Horizontal
 from textual.content import Content
 from textual.message import Message
+from textual.message_pump import MessagePump
 from textual.reactive import reactive
 from textual.widgets import Sparkline, Static
-from textual.worker import Worker, WorkerState, get_current_worker
 
 from fieldtool.core.circuit.profile import Profile
 from fieldtool.core.diagnosis.faults import Fault
 from fieldtool.core.errors import FieldtoolError
-from fieldtool.meters.errors import MeterTimeout
-from fieldtool.meters.parse import Reading
-from fieldtool.meters.settings import MeterSettings, SettleRule
-from fieldtool.meters.settle import _agree, _steady  # the settle rule's own judgement
+from fieldtool.core.measurement import Measurement, Source
+from fieldtool.meters.base import Meter
+from fieldtool.meters.connect import open_serial_meter
+from fieldtool.meters.errors import MeterTransientError
+from fieldtool.meters.loop import MeterListener, MeterLoop
+from fieldtool.meters.settings import MeterSettings
+from fieldtool.meters.settle import judge
+from fieldtool.meters.simulated import SimulatedMeter
 from fieldtool.tui.view import volts_text
 
 SPARK_POINTS = 40
-POLL_S = 0.2  # pause between requests; the driver's own timeout bounds each read
 
 
 @dataclass(frozen=True)
@@ -44,92 +45,89 @@ class MeterChoice:
     fault: Fault | None = None  # simulated meter: the board's hidden fault
     seed: int = 0
 
-    @property
-    def words(self) -> str:
-        """The choice in a few words for the title bar."""
-        if self.kind == "port":
-            return f"{self.settings.protocol} meter on {self.port}"
-        if self.kind == "simulated":
-            return "simulated meter"
-        return "typed readings"
 
-
-def open_meter(choice: MeterChoice, profile: Profile):
-    """Open and return the meter driver for a choice (blocking: call it from a worker)."""
+def open_meter(choice: MeterChoice, profile: Profile) -> Meter:
+    """The meter for a choice, not yet connected (blocking: the meter loop calls it)."""
     if choice.kind == "simulated":
-        from fieldtool.meters.simulated import SimulatedMeter
-
         return SimulatedMeter(profile, fault=choice.fault, seed=choice.seed)
-    from fieldtool.meters.scpi import ScpiMeter
-    from fieldtool.meters.stream import StreamMeter
-    from fieldtool.meters.transport import open_port
-
-    s = choice.settings
-    transport = open_port(choice.port, s.baud, s.timeout_s, s.terminator.encode("ascii"))
-    return (ScpiMeter if s.protocol == "scpi" else StreamMeter)(transport, s)
+    return open_serial_meter(choice.port, choice.settings)
 
 
-@dataclass(frozen=True)
-class Settle:
-    """Where the live value stands: the value, whether it settled, and its spread."""
+class MeterLink(MeterListener):
+    """A meter loop's listener that posts what it is told to ``target`` as messages."""
 
-    volts: float | None
-    overload: bool
-    settled: bool
-    spread: float | None
-    count: int
+    class Connected(Message):
+        """The meter answered."""
 
+        def __init__(self, link: MeterLink, source: Source) -> None:
+            super().__init__()
+            self.link = link  # the link that posted it (a loop since replaced is ignored)
+            self.source = source  # the meter (its identity, or its port)
 
-def settle_state(window: list[Reading], rule: SettleRule) -> Settle | None:
-    """Judge the readings since the probe landed by the same rule ``meters.settle`` applies
-    (None before any reading)."""
-    if not window:
-        return None
-    last = window[-1]
-    recent = window[-rule.count :]
-    full = len(recent) == rule.count
-    if full and all(r.overload for r in recent):
-        return Settle(None, True, True, None, len(window))
-    numbers = [r.volts for r in recent if r.volts is not None]
-    earlier = [r.volts for r in window[-2 * rule.count : -rule.count] if r.volts is not None]
-    spread = max(numbers) - min(numbers) if len(numbers) > 1 else None
-    ok = full and len(numbers) == rule.count and _agree(numbers, rule)
-    if ok and rule.trend:
-        ok = _steady(earlier, numbers, rule)  # a slow creep is not settled
-    return Settle(last.volts, last.overload, ok, spread, len(window))
+    class Sample(Message):
+        """A sample, placed at the node the probe was on."""
+
+        def __init__(self, link: MeterLink, sample: Measurement) -> None:
+            super().__init__()
+            self.link = link
+            self.sample = sample
+
+    class Problem(Message):
+        """A reading failed (``lost`` False: the loop goes on) or the loop stopped (True)."""
+
+        def __init__(self, link: MeterLink, error: FieldtoolError, lost: bool) -> None:
+            super().__init__()
+            self.link = link
+            self.error = error
+            self.lost = lost
+
+    def __init__(self, target: MessagePump) -> None:
+        self.target = target
+        self.loop: MeterLoop | None = None
+
+    def _post(self, message: Message) -> None:
+        try:
+            self.target.post_message(message)
+        except RuntimeError:  # the app's event loop has closed: nobody is listening
+            if self.loop is not None:
+                self.loop.stop()
+
+    def started(self, loop: MeterLoop) -> None:
+        """Keep the loop, to stop it once nobody listens."""
+        self.loop = loop
+
+    def connected(self, source: Source) -> None:
+        """Tell the screen the meter answered."""
+        self._post(self.Connected(self, source))
+
+    def received(self, sample: Measurement) -> None:
+        """Hand the sample to the screen."""
+        self._post(self.Sample(self, sample))
+
+    def failed(self, error: MeterTransientError) -> None:
+        """Tell the screen a reading failed; the loop goes on."""
+        self._post(self.Problem(self, error, lost=False))
+
+    def lost(self, error: FieldtoolError) -> None:
+        """Tell the screen the loop stopped."""
+        self._post(self.Problem(self, error, lost=True))
 
 
 class MeterStrip(Horizontal):
-    """Live meter value, settling state and recent history; owns the meter worker."""
+    """Live meter value, settling state and recent history, as the screen tells them."""
 
     probe_node: reactive[str | None] = reactive(None)
     status: reactive[str] = reactive("")
 
-    class Connected(Message):
-        """The meter answered; ``identity`` is what it said it is."""
-
-        def __init__(self, identity: str) -> None:
-            super().__init__()
-            self.identity = identity
-
-    class Problem(Message):
-        """The meter failed; ``lost`` means the loop stopped (unplugged, port gone)."""
-
-        def __init__(self, error: FieldtoolError, lost: bool) -> None:
-            super().__init__()
-            self.error = error
-            self.lost = lost
-
-    def __init__(self, choice: MeterChoice, profile: Profile, **kwargs) -> None:
+    def __init__(self, choice: MeterChoice, **kwargs) -> None:
         super().__init__(**kwargs)
         self.choice = choice
-        self.profile = profile
         self.rule = choice.settings.settle
-        self.window: list[Reading] = []
+        self.window: list[Measurement] = []
         self.history: deque[float] = deque(maxlen=SPARK_POINTS)
         self.identity = ""
-        self.connected = False
-        self._stop = threading.Event()
+        self.live = False  # a meter is connected and being read
+        self.link: MeterLink | None = None  # messages from any other link are stale
 
     def compose(self):
         """A text readout and a sparkline."""
@@ -137,118 +135,70 @@ class MeterStrip(Horizontal):
         yield Sparkline([], id="meter-spark")
 
     def on_mount(self) -> None:
-        """Start reading unless the readings are typed."""
+        """Title the strip and draw it."""
         self.border_title = "Meter"
         self.status = "type a reading: t or a digit" if self.choice.kind == "typed" else "opening"
         self._show()
-        if self.choice.kind != "typed":
-            self.start()
-
-    def on_unmount(self) -> None:
-        """Let the worker leave its loop."""
-        self._stop.set()
 
     @property
-    def live(self) -> bool:
-        """True while a meter is connected and being read."""
-        return self.connected
+    def settle(self) -> Measurement | None:
+        """The samples at the probed node judged by the settle rule (None before any)."""
+        return judge(self.window, self.rule)
 
-    @property
-    def settle(self) -> Settle | None:
-        """The current settle judgement for the node under the probe."""
-        return settle_state(self.window, self.rule)
-
-    def start(self) -> None:
-        """(Re)connect the meter."""
-        if self.choice.kind == "typed":
-            return
-        self._stop.clear()
+    def follow(self, link: MeterLink, choice: MeterChoice) -> None:
+        """A new meter loop reports through ``link``; what came before is forgotten."""
+        self.link = link
+        self.choice = choice
+        self.live = False
         self.status = "connecting"
-        self._run()
+        self.reset_window()
 
-    def watch_probe_node(self) -> None:
-        """The probe moved: the value must settle again."""
-        self.window = []
-        self._show()
-
-    def watch_status(self) -> None:
-        self._show()
-
-    @work(thread=True, exclusive=True, group="meter", exit_on_error=False)
-    def _run(self) -> None:
-        worker = get_current_worker()
-        try:
-            driver = open_meter(self.choice, self.profile)
-            identity = driver.connect() or getattr(driver, "identity", None) or self.choice.words
-        except FieldtoolError as exc:
-            self._hand_back(self._lost, exc, True)
+    def on_meter_link_connected(self, message: MeterLink.Connected) -> None:
+        """The meter answered."""
+        if message.link is not self.link:
+            message.stop()
             return
-        self._hand_back(self._connected, str(identity))
-        touched: object = object()
-        try:
-            while not (worker.is_cancelled or self._stop.is_set()):
-                node = self.probe_node
-                if node != touched and hasattr(driver, "touch"):
-                    driver.touch(node)
-                    touched = node
-                try:
-                    reading = driver.read()
-                except MeterTimeout as exc:
-                    self._hand_back(self._lost, exc, False)
-                    continue
-                except FieldtoolError as exc:
-                    self._hand_back(self._lost, exc, True)
-                    return
-                self._hand_back(self._value, reading, node)
-                self._stop.wait(POLL_S)
-        finally:
-            driver.close()
+        self.identity = str(message.source)
+        self.live = True
+        self.status = self.identity
 
-    def _hand_back(self, callback, *args) -> None:
-        """Run ``callback`` on the UI thread unless the app is going away."""
-        if self._stop.is_set():
-            return
-        try:
-            self.app.call_from_thread(callback, *args)
-        except RuntimeError:
-            self._stop.set()  # the app has stopped; nothing to hand back to
+    def on_meter_link_sample(self, message: MeterLink.Sample) -> None:
+        """Draw a sample taken at the probed node."""
+        message.stop()
+        if message.link is self.link and message.sample.at == self.probe_node:
+            self.add(message.sample)
 
-    def on_worker_state_changed(self, event: Worker.StateChanged) -> None:
-        """A meter loop that ended for any reason leaves no meter connected."""
-        if event.worker.group == "meter" and event.state in (
-            WorkerState.ERROR,
-            WorkerState.SUCCESS,
-        ):
-            if event.worker.state == WorkerState.ERROR or not self._stop.is_set():
-                self.connected = False
-                if event.state == WorkerState.ERROR:
-                    self.status = "no meter: it stopped unexpectedly (m reconnects)"
-            self.app.refresh_bindings()
+    def on_meter_link_problem(self, message: MeterLink.Problem) -> None:
+        """A lost meter leaves no meter connected."""
+        if message.link is not self.link:
+            message.stop()
+        elif message.lost:
+            self.stopped(message.error)
 
-    def _connected(self, identity: str) -> None:
-        self.identity = identity
-        self.connected = True
-        self.status = identity
-        self.post_message(self.Connected(identity))
+    def stopped(self, error: FieldtoolError | None = None) -> None:
+        """The meter loop ended (with the error that ended it, if one did)."""
+        self.live = False
+        reason = error.title.lower() if error else "it stopped unexpectedly"
+        self.status = f"no meter: {reason} (m reconnects)"
 
-    def _lost(self, error: FieldtoolError, lost: bool) -> None:
-        if lost:
-            self.connected = False
-            self.status = f"no meter: {error.title.lower()} (m reconnects)"
-        self.post_message(self.Problem(error, lost))
-
-    def _value(self, reading: Reading, node: str | None) -> None:
-        if node != self.probe_node:
-            return  # read before the probe moved
-        self.window.append(reading)
+    def add(self, sample: Measurement) -> None:
+        """A sample at the probed node."""
+        self.window.append(sample)
         del self.window[: -max(self.rule.count * 4, 8)]
-        if reading.volts is not None:
-            self.history.append(reading.volts)
+        if sample.value is not None:
+            self.history.append(sample.value)
         self._show()
 
     def reset_window(self) -> None:
-        """Forget the settle window (after a value was accepted)."""
+        """Forget the samples so far (the probe moved, or a value was taken)."""
         self.window = []
+        self._show()
+
+    def watch_probe_node(self) -> None:
+        """The probe moved: the value must settle again."""
+        self.reset_window()
+
+    def watch_status(self) -> None:
         self._show()
 
     def _show(self) -> None:
@@ -263,7 +213,7 @@ class MeterStrip(Horizontal):
             first = Content.assemble(("—", "bold"), f" · {where}")
             keys = "waiting for the meter"
         else:
-            value = "OL" if s.overload else f"{volts_text(s.volts)} V"
+            value = "OL" if s.overload else f"{volts_text(s.value)} {s.unit}"
             if s.settled:
                 mark = ("● settled", "bold $text-success")
                 keys = "a takes it"

@@ -1,21 +1,34 @@
-"""The probing screen: ladder, node table, suspects, meter and safety strips."""
+"""The probing screen: ladder, node table, suspects, meter and safety strips.
+
+It runs one ``core.session.BoardSession`` and the meter's reading loop (a thread worker; what
+the loop tells comes back as ``MeterLink`` messages), and posts ``SessionEnded`` when the
+session is closed.
+"""
 
 from __future__ import annotations
 
 from dataclasses import replace
+from functools import partial
+from pathlib import Path
 
 from textual import on, work
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal
 from textual.content import Content
+from textual.message import Message
 from textual.screen import Screen
 from textual.widgets import Footer, Input, Static
+from textual.worker import Worker, WorkerState
 
 from fieldtool.core.circuit.safety import node_hazard, safety_figures
 from fieldtool.core.circuit.spec import display_name
-from fieldtool.core.diagnosis.faults import describe
 from fieldtool.core.errors import FieldtoolError
+from fieldtool.core.history import Action
+from fieldtool.core.measurement import Measurement
+from fieldtool.core.session import BoardSession
+from fieldtool.core.times import now_utc
+from fieldtool.meters.loop import MeterLoop
 from fieldtool.meters.parse import parse_typed
 from fieldtool.tui.dialogs import (
     ActionDialog,
@@ -25,12 +38,13 @@ from fieldtool.tui.dialogs import (
     SafetyDetails,
     part_choices,
 )
+from fieldtool.tui.history import FleetScreen, HistoryScreen
 from fieldtool.tui.ladder import LadderView
-from fieldtool.tui.meter_strip import MeterChoice, MeterStrip
+from fieldtool.tui.meter_strip import MeterChoice, MeterLink, MeterStrip, open_meter
 from fieldtool.tui.node_table import NodeTable
+from fieldtool.tui.palette import Commands
 from fieldtool.tui.panels import SafetyStrip, SuspectsPanel
-from fieldtool.tui.session import BoardSession
-from fieldtool.tui.view import volts_text
+from fieldtool.tui.view import count_text, entry_hint, ladder_ranks, reveal_text, suspect_ref
 
 TYPING_KEYS = set("0123456789-.+,")
 ACCEPT_LIVE = "Take the live value now, marked unsettled in the history"
@@ -39,13 +53,27 @@ REPAIR_WORDS = "Record a repair: part, fault mode found, what was done, part use
 SAFETY_DELAY_S = 0.15  # let the panels repaint before the safety figures are recomputed
 
 
-def suspect_ref(key: str) -> str | None:
-    """The default designator or board target a hypothesis key names (None for healthy)."""
-    return None if key == "healthy" else key.split(":", 1)[0]
-
-
-class ProbingScreen(Screen):
+class ProbingScreen(Commands, Screen):
     """Guided probing of one board, then repair and verification."""
+
+    PALETTE = (
+        ("Jump to the next probe", "Select the node the diagnosis suggests", "next_probe"),
+        ("Accept the settled reading", "Take the meter's settled value at this node", "accept"),
+        ("Type a reading", "Enter a value by hand", "type_reading"),
+        ("Record a repair", "Designator, what was done, part used, note", "repair"),
+        ("Close the session", "Fixed, not fixed or escalated", "close_session"),
+        ("Safety details", "Each capacitor's voltage and stored energy", "safety"),
+        ("Board history", "This board's timeline", "history"),
+        ("Fleet failures", "Confirmed failures on this board type", "fleet"),
+        ("Reconnect the meter", "Open the meter's port again", "reconnect"),
+    )
+
+    class SessionEnded(Message):
+        """The session is closed and saved; ``reveal`` tells the demo's hidden fault, if any."""
+
+        def __init__(self, reveal: str | None) -> None:
+            super().__init__()
+            self.reveal = reveal
 
     BINDINGS = [
         Binding("n", "next_probe", "Next node", tooltip="Jump to the node worth probing next"),
@@ -64,11 +92,18 @@ class ProbingScreen(Screen):
         Binding("m", "reconnect", "Reconnect", tooltip="Open the meter's port again after a loss"),
     ]
 
-    def __init__(self, session: BoardSession, choice: MeterChoice, demo_fault=None) -> None:
+    def __init__(
+        self, session: BoardSession, choice: MeterChoice, logs_dir: Path, demo_fault=None
+    ) -> None:
         super().__init__()
         self.session = session
         self.choice = choice
+        self.logs_dir = Path(logs_dir)
         self.demo_fault = demo_fault
+        self.unsaved = 0  # records handed to the history writer and not saved yet
+        self._meter: MeterLoop | None = None
+        self._link: MeterLink | None = None
+        self._meter_worker: Worker | None = None
         # Unread nodes count at their healthy expected value (the band's centre) for safety.
         d = session.dictionary
         self.expected = {n: d.band(n).expected for n in d.nodes}
@@ -93,7 +128,7 @@ class ProbingScreen(Screen):
             select_on_focus=False,
             placeholder="type a reading, e.g. 12.9 or 890mV or OL",
         )
-        yield MeterStrip(self.choice, p, id="meter")
+        yield MeterStrip(self.choice, id="meter")
         yield SafetyStrip(id="safety")
         yield Footer()
 
@@ -102,9 +137,16 @@ class ProbingScreen(Screen):
         self.set_class(self.size.height >= 34, "-tall")
 
     def on_mount(self) -> None:
-        """Show the session and start the safety computation."""
+        """Show the session, follow the history writer, start the meter."""
         self.refresh_all()
         self.query_one(NodeTable).focus()
+        self.watch(self.app, "unsaved_count", self._unsaved_changed)
+        self.start_meter()
+
+    def on_unmount(self) -> None:
+        """Let the meter loop end."""
+        if self._meter is not None:
+            self._meter.stop()
 
     # --- state to widgets ----------------------------------------------------------------
 
@@ -116,10 +158,10 @@ class ProbingScreen(Screen):
     def title_text(self) -> Content:
         """Board, phase, meter and history state in one line."""
         s = self.session
-        read = len(s.taken)
+        read = len({at for at, _ in s.taken})  # nodes measured in this phase
         total = len(s.dictionary.nodes)
         phase = "VERIFYING" if s.phase == "verifying" else "probing"
-        unsaved = getattr(self.app, "unsaved_count", 0)
+        unsaved = self.unsaved
         saved = Content.styled(f" · ⚠ {unsaved} unsaved", "bold $text-error") if unsaved else ""
         return Content.assemble(
             (s.serial, "bold"),
@@ -129,8 +171,9 @@ class ProbingScreen(Screen):
             saved,
         )
 
-    def refresh_title(self) -> None:
-        """Redraw the title line (the history writer's state changed)."""
+    def _unsaved_changed(self, count: int) -> None:
+        """The history writer's backlog changed: redraw the title line."""
+        self.unsaved = count
         self.query_one("#title", Static).update(self.title_text())
 
     def refresh_all(self) -> None:
@@ -142,24 +185,11 @@ class ProbingScreen(Screen):
         self.query_one(SuspectsPanel).show(s.diagnosis)
         ladder = self.query_one(LadderView)
         ladder.states = {n: table.verdict_for(n).state for n in s.dictionary.nodes}
-        ladder.ranks = self._ranks()
+        ladder.ranks = ladder_ranks(self.session.diagnosis)
         ladder.selected = self.selected
         self.query_one("#title", Static).update(self.title_text())
-        self.query_one(
-            "#entry", Input
-        ).placeholder = f"volts at {self.selected}: 12.9, 890mV, 1.2kV or OL, then Enter"
+        self.query_one("#entry", Input).placeholder = entry_hint(self.selected)
         self._update_safety()
-
-    def _ranks(self) -> dict[str, int]:
-        ranks: dict[str, int] = {}
-        for s in self.session.diagnosis.suspects:
-            ref = suspect_ref(s.key)
-            if ref is None or ref in ranks or s.probability < 0.05:
-                continue
-            ranks[ref] = len(ranks) + 1
-            if len(ranks) == 3:
-                break
-        return ranks
 
     def _hazard(self, node: str | None) -> bool:
         values = self.session.volts_by_node()
@@ -199,9 +229,9 @@ class ProbingScreen(Screen):
         node = message.node
         self.query_one(LadderView).selected = node
         self.query_one(MeterStrip).probe_node = node
-        self.query_one(
-            "#entry", Input
-        ).placeholder = f"volts at {node}: 12.9, 890mV, 1.2kV or OL, then Enter"
+        if self._meter is not None:
+            self._meter.place_probe(node)
+        self.query_one("#entry", Input).placeholder = entry_hint(node)
         self.query_one(SafetyStrip).show(self.figures, node, self._hazard(node))
 
     def on_key(self, event) -> None:
@@ -221,15 +251,43 @@ class ProbingScreen(Screen):
         if node is None:
             return
         try:
-            reading = parse_typed(event.value)
+            typed = parse_typed(event.value)
         except FieldtoolError as exc:
             self.app.push_screen(ErrorDialog(exc))
             return  # the text stays in the entry to be corrected
         event.input.value = ""
-        self.take(node, reading.volts, "typed", None)
+        self.take(replace(typed, at=node, taken=now_utc()))
         self.query_one(NodeTable).focus()
 
-    def on_meter_strip_problem(self, message: MeterStrip.Problem) -> None:
+    # --- the meter ---------------------------------------------------------------------
+
+    def start_meter(self) -> None:
+        """(Re)connect the meter the session reads (nothing to do when readings are typed)."""
+        if self.choice.kind == "typed":
+            return
+        if self._meter is not None:
+            self._meter.stop()
+        self._link = MeterLink(self.query_one(MeterStrip))
+        self._meter = MeterLoop(partial(open_meter, self.choice, self.session.profile), self._link)
+        self._meter.place_probe(self.selected)
+        self.query_one(MeterStrip).follow(self._link, self.choice)
+        self._meter_worker = self.run_worker(
+            self._meter.run, thread=True, exclusive=True, group="meter", exit_on_error=False
+        )
+
+    def on_worker_state_changed(self, event: Worker.StateChanged) -> None:
+        """A meter loop that failed unexpectedly leaves no meter (the app shows the error)."""
+        if event.worker is self._meter_worker and event.state == WorkerState.ERROR:
+            self.query_one(MeterStrip).stopped()
+            self.refresh_bindings()
+
+    def on_meter_link_connected(self, message: MeterLink.Connected) -> None:
+        """The meter is there (again, or for the first time)."""
+        self.last_problem = ""
+        self.query_one(MeterStrip).probe_node = self.selected
+        self.refresh_bindings()
+
+    def on_meter_link_problem(self, message: MeterLink.Problem) -> None:
         """Say what happened to the meter, once; readings already taken stay."""
         text = f"{message.error.title}: {message.error.message}"
         if text != self.last_problem:
@@ -243,15 +301,9 @@ class ProbingScreen(Screen):
             )
         self.refresh_bindings()
 
-    def on_meter_strip_connected(self, message: MeterStrip.Connected) -> None:
-        """The meter is back (or there for the first time)."""
-        self.last_problem = ""
-        self.query_one(MeterStrip).probe_node = self.selected
-        self.refresh_bindings()
-
-    def take(self, node: str, volts: float | None, source: str, spread: float | None) -> None:
-        """Accept a reading: saved at once, the diagnosis and every panel updated."""
-        self.session.accept(node, volts, source, spread)
+    def take(self, measurement: Measurement) -> None:
+        """Accept a measurement: saved at once, the diagnosis and every panel updated."""
+        self.session.take(measurement)
         self.refresh_all()
 
     # --- actions -------------------------------------------------------------------------
@@ -289,10 +341,7 @@ class ProbingScreen(Screen):
         if settled_only and not s.settled:
             self.notify("Not settled yet; wait for ● settled, or press A to take it anyway.")
             return
-        source = strip.identity or self.choice.words
-        if not s.settled:
-            source += " (unsettled)"
-        self.take(strip.probe_node or self.selected, s.volts, source, s.spread)
+        self.take(s.placed(strip.probe_node or self.selected))
         strip.reset_window()
 
     def action_type_reading(self) -> None:
@@ -301,7 +350,7 @@ class ProbingScreen(Screen):
 
     def action_reconnect(self) -> None:
         """Try the meter again."""
-        self.query_one(MeterStrip).start()
+        self.start_meter()
 
     def action_safety(self) -> None:
         """Each capacitor's charge."""
@@ -312,11 +361,11 @@ class ProbingScreen(Screen):
 
     def action_history(self) -> None:
         """The board's timeline."""
-        self.app.action_history(self.session.serial)
+        self.app.push_screen(HistoryScreen(self.logs_dir, self.session.serial))
 
     def action_fleet(self) -> None:
         """Failure counts for this board type."""
-        self.app.action_fleet(self.session.profile.name)
+        self.app.push_screen(FleetScreen(self.logs_dir, self.session.profile.name))
 
     def action_repair(self) -> None:
         """Record what was done to which part."""
@@ -332,12 +381,12 @@ class ProbingScreen(Screen):
         if form is None:
             return
         shown = display_name(self.session.profile, form.designator)
-        self.session.record_action(shown, form.done, form.mode, form.part_used, form.note)
+        action = Action(shown, form.done, form.mode, form.part_used or None, form.note)
+        self.session.record_repair(action)
         if self.demo_fault is not None and form.designator == self.demo_fault.target:
             if form.done != "inspected only":
-                strip = self.query_one(MeterStrip)
-                strip.choice = self.choice = replace(self.choice, fault=None)
-                strip.start()
+                self.choice = replace(self.choice, fault=None)  # the simulated board is mended
+                self.start_meter()
         self.notify(f"Saved: {shown} {form.done}. Take verification readings now.")
         self.refresh_all()
 
@@ -346,8 +395,8 @@ class ProbingScreen(Screen):
         s = self.session
         top = s.diagnosis.suspects[0] if s.diagnosis.suspects else None
         lines = [
-            f"{_count(len(s.taken), 'reading')} in this phase, "
-            f"{_count(len(s.actions), 'repair')} recorded."
+            f"{count_text(len(s.taken), 'reading')} in this phase, "
+            f"{count_text(len(s.actions), 'repair')} recorded."
         ]
         if top is not None:
             lines.append(f"Top suspect now: {top.words} ({top.probability:.0%}).")
@@ -357,32 +406,5 @@ class ProbingScreen(Screen):
         if outcome is None:
             return
         self.session.close(outcome)
-        reveal = self.reveal() if self.demo_fault is not None else None
-        # Leave the dialog's dismissal to finish before this screen is replaced.
-        self.app.call_later(self.app.session_finished, reveal)
-
-    def reveal(self) -> str:
-        """Whether the tool (and the technician) found the demo's hidden fault."""
-        fault = self.demo_fault
-        p = self.session.profile
-        hidden = describe(fault, p)
-        target = display_name(p, fault.target)
-        repaired = [a for a in self.session.actions if a.designator == target]
-        if repaired:
-            verdict = f"Found: you worked on {target}."
-        else:
-            done = ", ".join(a.designator for a in self.session.actions) or "no part"
-            verdict = f"Not found: you worked on {done}."
-        tool = "; ".join(f"{w} ({p:.0%})" for w, p in self.session.at_repairs)
-        ranked = f" The tool's top suspect when you repaired: {tool}." if tool else ""
-        v = self.session.volts_by_node()
-        read = ", ".join(f"{n} {volts_text(x)} V" for n, x in v.items())
-        return (
-            f"The hidden fault was {hidden}. {verdict}{ranked} "
-            f"Readings after the last repair: {read or 'none'}."
-        )
-
-
-def _count(n: int, word: str) -> str:
-    """``1 reading``, ``2 readings``."""
-    return f"{n} {word}{'' if n == 1 else 's'}"
+        reveal = reveal_text(self.session, self.demo_fault) if self.demo_fault else None
+        self.post_message(self.SessionEnded(reveal))

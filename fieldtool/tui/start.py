@@ -1,4 +1,7 @@
-"""The start screen: choose the profile, the board serial (past boards shown), and the meter."""
+"""The start screen: choose the profile, the board serial (past boards shown), and the meter.
+
+It posts ``Chosen`` with the ``SessionRequest`` for the app to open.
+"""
 
 from __future__ import annotations
 
@@ -8,6 +11,7 @@ from textual import on, work
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal, Vertical
+from textual.message import Message
 from textual.screen import Screen
 from textual.widgets import (
     Button,
@@ -26,7 +30,12 @@ from fieldtool.core import history as hist
 from fieldtool.core.circuit.library import ProfileEntry, available
 from fieldtool.core.circuit.safety import CAUTION
 from fieldtool.core.errors import FieldtoolError, InputError
+from fieldtool.core.history.sessions import group_sessions, open_session
+from fieldtool.tui.config import AppConfig, SessionRequest
+from fieldtool.tui.dialogs import ErrorDialog
+from fieldtool.tui.history import HistoryScreen
 from fieldtool.tui.meter_strip import MeterChoice
+from fieldtool.tui.palette import Commands
 
 METER_KINDS = ("typed", "port", "simulated")
 
@@ -62,20 +71,29 @@ def board_summary(logs_dir: Path, serial: str) -> str:
         return f"{serial}: new board, no history yet."
     except FieldtoolError as exc:
         return f"{serial}: history unreadable ({exc.message})"
-    sessions = sum(r.kind == "session-opened" for r in h.events)
-    outcomes = [r.fields.get("outcome") for r in h.events if r.kind == "session-closed"]
+    sessions = [s for s in group_sessions(h.events) if s.id is not None]
+    outcomes = [s.outcome for s in sessions if s.outcome]
     last = f", last outcome {outcomes[-1]}" if outcomes else ""
-    open_note = "; last session unfinished (you can resume it)" if hist.last_session_open(h) else ""
+    unfinished = open_session(sessions) is not None
+    open_note = "; last session unfinished (you can resume it)" if unfinished else ""
     damaged = f"; {len(h.damaged)} damaged lines" if h.damaged else ""
-    return f"{serial}: {sessions} sessions{last}{open_note}{damaged}."
+    return f"{serial}: {len(sessions)} sessions{last}{open_note}{damaged}."
 
 
-class StartScreen(Screen):
+class StartScreen(Commands, Screen):
     """Pick what to work on."""
 
     BINDINGS = [Binding("ctrl+s", "start", "Start"), Binding("ctrl+r", "board_history", "History")]
+    PALETTE = (("Start a session", "Open the board chosen on the start screen", "start"),)
 
-    def __init__(self, config) -> None:
+    class Chosen(Message):
+        """The technician chose a board to work on."""
+
+        def __init__(self, request: SessionRequest) -> None:
+            super().__init__()
+            self.request = request
+
+    def __init__(self, config: AppConfig) -> None:
         super().__init__()
         self.config = config
         self.profiles = list_profiles(config.profiles_dir)
@@ -189,8 +207,6 @@ class StartScreen(Screen):
 
     def action_start(self) -> None:
         """Open the chosen board."""
-        from fieldtool.tui.app import SessionRequest
-
         try:
             entry = self.chosen_entry()
             if entry is None:
@@ -199,14 +215,16 @@ class StartScreen(Screen):
             serial = hist.check_name(self.query_one("#serial", Input).value.strip())
             request = SessionRequest(profile, serial, self.meter_choice(profile))
         except FieldtoolError as exc:
-            self.app.show_error(exc)
+            self.app.push_screen(ErrorDialog(exc))
             return
-        self.app.begin(request)
+        self.post_message(self.Chosen(request))
 
     def action_board_history(self) -> None:
         """The typed board's history."""
         serial = self.query_one("#serial", Input).value.strip()
         try:
-            self.app.action_history(hist.check_name(serial))
+            screen = HistoryScreen(self.config.logs_dir, hist.check_name(serial))
         except FieldtoolError as exc:
-            self.app.show_error(exc)
+            self.app.push_screen(ErrorDialog(exc))
+            return
+        self.app.push_screen(screen)

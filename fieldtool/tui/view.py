@@ -1,9 +1,14 @@
-"""Pure helpers the widgets share: node verdicts, number formatting, probability bars."""
+"""Pure helpers the screens share: node verdicts, number formats, bars, words for people."""
 
 from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+
+from fieldtool.core.circuit.spec import display_name
+from fieldtool.core.diagnosis.faults import Fault, describe
+from fieldtool.core.diagnosis.ranking import Diagnosis
+from fieldtool.core.session import BoardSession
 
 # Each state has a symbol and a word, so it never rests on colour alone.
 UNREAD, IN_BAND, HIGH, LOW, OVERLOAD = "unread", "in band", "high", "low", "over range"
@@ -91,3 +96,51 @@ def percent_text(p: float) -> str:
     if 0 < p < 0.005:
         return "<1%"
     return f"{p:.0%}"
+
+
+def suspect_ref(key: str) -> str | None:
+    """The default designator or board target a hypothesis key names (None for healthy)."""
+    return None if key == "healthy" else key.split(":", 1)[0]
+
+
+def ladder_ranks(diagnosis: Diagnosis) -> dict[str, int]:
+    """The parts of the top three suspects (5 % or more) and their rank, for the ladder."""
+    ranks: dict[str, int] = {}
+    for s in diagnosis.suspects:
+        ref = suspect_ref(s.key)
+        if ref is None or ref in ranks or s.probability < 0.05:
+            continue
+        ranks[ref] = len(ranks) + 1
+        if len(ranks) == 3:
+            break
+    return ranks
+
+
+def entry_hint(node: str | None) -> str:
+    """What to type into the reading entry at ``node``."""
+    return f"volts at {node}: 12.9, 890mV, 1.2kV or OL, then Enter"
+
+
+def count_text(n: int, word: str) -> str:
+    """``1 reading``, ``2 readings``."""
+    return f"{n} {word}{'' if n == 1 else 's'}"
+
+
+def reveal_text(session: BoardSession, fault: Fault) -> str:
+    """Whether the tool (and the technician) found the demo's hidden fault."""
+    p = session.profile
+    hidden = describe(fault, p)
+    target = display_name(p, fault.target)
+    repaired = [a for a in session.actions if a.designator == target]
+    if repaired:
+        verdict = f"Found: you worked on {target}."
+    else:
+        done = ", ".join(a.designator for a in session.actions) or "no part"
+        verdict = f"Not found: you worked on {done}."
+    tool = "; ".join(f"{w} ({odds:.0%})" for w, odds in session.at_repairs)
+    ranked = f" The tool's top suspect when you repaired: {tool}." if tool else ""
+    read = ", ".join(f"{n} {volts_text(x)} V" for n, x in session.volts_by_node().items())
+    return (
+        f"The hidden fault was {hidden}. {verdict}{ranked} "
+        f"Readings after the last repair: {read or 'none'}."
+    )

@@ -16,8 +16,11 @@ from fieldtool.core.diagnosis.faults import Fault
 from fieldtool.core.diagnosis.priors import fleet_priors, published_priors
 from fieldtool.core.errors import InputError
 from fieldtool.core.history.fleet import confirmed_failures
-from fieldtool.core.readings import NodeReading, readings_csv
+from fieldtool.core.measurement import Source
+from fieldtool.core.readings import readings_csv
+from fieldtool.core.session import unfinished_session
 from tests.conftest import ROOT
+from tests.readings import dc
 
 PROFILE_PATH = ROOT / "fieldtool" / "profiles" / "datalogger-eeprom-dickson.toml"
 
@@ -38,7 +41,7 @@ def d3_open_csv(profile, tmp_path_factory):
     """What a meter reads on this board with D3 open (the solver's as-read values)."""
     e = expect(profile, fault=Fault("D3", "open"))
     path = tmp_path_factory.mktemp("readings") / "d3-open.csv"
-    path.write_text(readings_csv(NodeReading(n.node, round(n.volts, 3)) for n in e.nodes))
+    path.write_text(readings_csv(dc(n.node, round(n.volts, 3)) for n in e.nodes))
     return path
 
 
@@ -46,7 +49,7 @@ def d3_open_csv(profile, tmp_path_factory):
 def healthy_csv(profile, tmp_path_factory):
     e = expect(profile)
     path = tmp_path_factory.mktemp("readings") / "healthy.csv"
-    path.write_text(readings_csv(NodeReading(n.node, round(n.volts, 3)) for n in e.nodes))
+    path.write_text(readings_csv(dc(n.node, round(n.volts, 3)) for n in e.nodes))
     return path
 
 
@@ -72,10 +75,15 @@ def test_record_logs_a_whole_session(tmp_path, capsys, d3_open_csv, healthy_csv)
     assert (top["component"], top["mode"]) == ("D3", "open")  # the engine finds the fault
     history = h.read_board(logs, "DL-0100")
     kinds = [r.kind for r in history.events]
+    # the same records the terminal UI writes: the diagnosis that led to the repair, and the
+    # one the verification readings give, saved with the outcome
     assert kinds == ["session-opened"] + ["reading"] * 6 + ["diagnosis", "action"] + [
         "verification"
-    ] * 6 + ["session-closed"]
+    ] * 6 + ["diagnosis", "session-closed"]
     assert {r.session for r in history.events} == {data["session"]}
+    readings = [r.event.measurement for r in history.events if r.kind == "reading"]
+    assert {m.source for m in readings} == {Source("file", d3_open_csv.name)}
+    assert all(m.settled for m in readings)
     action = history.events[8].event
     assert action == h.Action("D3", "replaced", "open", "BAT54 from stock", "cracked")
     assert history.events[0].fields["profile_hash"] == load_profile(PROFILE_PATH).digest
@@ -87,7 +95,9 @@ def test_record_text_output_and_a_session_left_open(tmp_path, capsys, d3_open_cs
     code, out, _ = _record(capsys, logs, "--board", "DL-0101", "--readings", str(d3_open_csv))
     assert code == 0 and "outcome none (session left open)" in out
     assert "D3 open" in out and "published priors" in out
-    assert h.last_session_open(h.read_board(logs, "DL-0101"))
+    assert unfinished_session(logs, "DL-0101") is not None
+    kinds = [r.kind for r in h.read_board(logs, "DL-0101").events]
+    assert kinds == ["session-opened"] + ["reading"] * 6 + ["diagnosis"]  # what it thought
 
 
 def test_fleet_counts_change_diagnosis_priors(tmp_path, capsys, profile, d3_open_csv):
@@ -178,6 +188,7 @@ def test_renamed_designators_are_stored_as_the_board_shows_them(tmp_path, capsys
         (["--board", "DL-1", "--readings", "{missing}"], "readings file not found"),
         (["--board", "DL-1", "--readings", "{bad}"], "is not on this board"),
         (["--board", "DL-1", "--logs", "{file}"], "is not a folder"),
+        (["--board", "DL-1", "--verify", "{bad}"], "--verify takes readings after a repair"),
     ],
 )
 def test_record_errors_write_nothing(tmp_path, capsys, d3_open_csv, extra, words):

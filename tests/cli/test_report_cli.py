@@ -13,6 +13,7 @@ from fieldtool.core.circuit.profile import load_profile
 from fieldtool.core.report.content import expectations_for
 from tests.conftest import ROOT
 from tests.history.helpers import day
+from tests.readings import reading, verification
 
 PROFILE = "datalogger-eeprom-dickson"
 HOSTILE_NOTE = '<script>alert("x")</script> <img src=x onerror=alert(1)> | *b* [l](javascript:x)'
@@ -35,12 +36,14 @@ def _write_session(logs, serial, expected, when, outcome="fixed", note=HOSTILE_N
     out = expected.get("OUT")
     events = [
         opened,
-        h.Reading(node="S0", volts=expected.get("S0").volts),  # right on the expectation
-        h.Reading(node="OUT", volts=out.volts * 0.5),  # far below the band
-        h.Reading(node="P2", volts=None, overload=True),
-        h.Diagnosis(suspects=(h.Suspect("D3", "open", 0.61), h.Suspect("C2", "short", 0.2))),
+        reading("S0", expected.get("S0").volts),  # right on the expectation
+        reading("OUT", out.volts * 0.5),  # far below the band
+        reading("P2", None),
+        h.DiagnosisSnapshot(
+            suspects=(h.SnapshotSuspect("D3", "open", 0.61), h.SnapshotSuspect("C2", "short", 0.2))
+        ),
         h.Action(designator="D3", done="replaced", mode="open", part_used="1N4148", note=note),
-        h.Verification(node="OUT", volts=out.volts),
+        verification("OUT", out.volts),
         h.SessionClosed(outcome=outcome),
     ]
     h.append_many(logs, PROFILE, serial, events, time=when)
@@ -119,7 +122,7 @@ def test_one_session_by_id_prefix(tmp_path, capsys, expected):
 
 def test_history_of_an_unknown_profile_still_gives_a_report(tmp_path, capsys):
     logs = tmp_path / "logs"
-    h.append(logs, "retired-board", "RB-1", h.Reading(node="S3", volts=4.0), session="s1")
+    h.append(logs, "retired-board", "RB-1", reading("S3", 4.0), session="s1")
     out = tmp_path / "r.md"
     code, _, _ = _report(capsys, "RB-1", "--logs", str(logs), "--out", str(out))
     text = out.read_text()

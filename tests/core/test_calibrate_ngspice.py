@@ -27,9 +27,9 @@ import pytest
 from fieldtool.core.circuit.expect import expect
 from fieldtool.core.circuit.netlist import build_circuit
 from fieldtool.core.diagnosis.calibrate import calibrate
-from fieldtool.core.readings import NodeReading
 from tests.conftest import BASE, make_profile, needs_ngspice
 from tests.ngspice_probe import metered_reading
+from tests.readings import dc
 
 IS = BASE["diode"]["saturation_current_a"]
 VOLTS = BASE["drive"]["volts"]
@@ -62,7 +62,7 @@ def _golden(profile, drive_factor, is_factor, tmp_path):
     circuit, params = build_circuit(real)
     nodes = [circuit.name(i) for i in circuit.probe_nodes]
     got = [metered_reading(circuit, params, n, real.meter_ohms, tmp_path) for n in nodes]
-    return real, [NodeReading(g.node, g.volts) for g in got]
+    return real, [dc(g.node, g.volts) for g in got]
 
 
 def _accuracy(profile, volts):
@@ -84,9 +84,9 @@ def test_calibrate_recovers_drive_and_diodes_from_ngspice(case, tmp_path):
     result = calibrate(profile, readings)
 
     for r in readings:
-        assert abs(result.residuals[r.node]) <= _accuracy(profile, r.volts), (
-            f"{r.node}: residual {result.residuals[r.node] * 1000:.1f} mV exceeds the meter "
-            f"accuracy {_accuracy(profile, r.volts) * 1000:.0f} mV"
+        assert abs(result.residuals[r.at]) <= _accuracy(profile, r.value), (
+            f"{r.at}: residual {result.residuals[r.at] * 1000:.1f} mV exceeds the meter "
+            f"accuracy {_accuracy(profile, r.value) * 1000:.0f} mV"
         )
     assert result.notes == ()
     assert result.drive_scale == pytest.approx(drive_factor, abs=0.005)
@@ -102,7 +102,7 @@ def test_uncalibrated_profile_misses_the_golden_readings(tmp_path):
     profile = make_profile(**sections)
     _, readings = _golden(sections, drive_factor, is_factor, tmp_path)
     e = expect(profile)
-    worst = max(abs(e.node(r.node).volts - r.volts) / _accuracy(profile, r.volts) for r in readings)
+    worst = max(abs(e.node(r.at).volts - r.value) / _accuracy(profile, r.value) for r in readings)
     assert worst > 3.0
 
 
@@ -114,7 +114,7 @@ def test_dc_ladder_fixes_only_drive_less_two_drops(tmp_path):
     result = calibrate(profile, readings)
 
     for r in readings:
-        assert abs(result.residuals[r.node]) <= _accuracy(profile, r.volts)
+        assert abs(result.residuals[r.at]) <= _accuracy(profile, r.value)
     assert result.notes and "drive swing less the diode drops" in result.notes[0]
     true_gain = VOLTS * drive_factor - 2 * _shift(real, is_factor)
     fitted_gain = result.profile.drive_volts - 2 * result.diode_shift_v

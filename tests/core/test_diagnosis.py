@@ -19,8 +19,9 @@ from fieldtool.core.diagnosis.dictionary import build
 from fieldtool.core.diagnosis.faults import parse_fault
 from fieldtool.core.diagnosis.ranking import chi2_sf, diagnose
 from fieldtool.core.errors import InputError
-from fieldtool.core.readings import NodeReading
+from fieldtool.core.measurement import Measurement
 from tests.conftest import make_profile
+from tests.readings import dc
 
 PROFILE = make_profile(load={"ohms": 10000.0})
 
@@ -35,8 +36,8 @@ def d():
     return _dictionary()
 
 
-def _readings(d, values: dict) -> list[NodeReading]:
-    return [NodeReading(n, v) for n, v in values.items()]
+def _readings(d, values: dict) -> list[Measurement]:
+    return [dc(n, v) for n, v in values.items()]
 
 
 SETTINGS = settings(max_examples=25, deadline=None)
@@ -89,7 +90,7 @@ def test_expected_entropy_never_exceeds_current(picks, volts, probe):
 def test_healthy_readings_never_favour_a_fault(nodes):
     d = _dictionary()
     healthy = d.rows_of("healthy")[0]
-    readings = [NodeReading(d.nodes[j], float(d.mean[healthy, j])) for j in nodes]
+    readings = [dc(d.nodes[j], float(d.mean[healthy, j])) for j in nodes]
     prior = diagnose(d, [])
     after = diagnose(d, readings)
     p0 = {s.key: s.probability for s in prior.suspects}
@@ -106,7 +107,7 @@ def test_guided_probing_finds_hard_faults_from_the_engine_s_own_readings(d, spec
     truth = {n.node: n.volts for n in expect(PROFILE, fault=parse_fault(spec, PROFILE)).nodes}
     readings = []
     while (result := diagnose(d, readings)).next_probe and len(readings) < 7:
-        readings.append(NodeReading(result.next_probe, truth[result.next_probe]))
+        readings.append(dc(result.next_probe, truth[result.next_probe]))
     members = {m for a in result.ambiguity for m in a.members}
     assert result.top.key == spec or spec in members
     assert result.top.probability > 0.45
@@ -121,16 +122,16 @@ def test_readings_no_hypothesis_explains_are_flagged(d):
 
 
 def test_overload_is_noted_not_used(d):
-    result = diagnose(d, [NodeReading("S3", None)])
+    result = diagnose(d, [dc("S3", None)])
     assert result.ignored == ("S3: OL (over range) carries no value; set a higher range",)
     assert result.top.key == "healthy"
 
 
 def test_unknown_or_repeated_nodes_are_refused(d):
     with pytest.raises(InputError, match="node 'S9' is not on"):
-        diagnose(d, [NodeReading("S9", 1.0)])
+        diagnose(d, [dc("S9", 1.0)])
     with pytest.raises(InputError, match="read twice"):
-        diagnose(d, [NodeReading("S1", 1.0), NodeReading("S1", 1.1)])
+        diagnose(d, [dc("S1", 1.0), dc("S1", 1.1)])
 
 
 def test_json_shape(d):

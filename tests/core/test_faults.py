@@ -30,6 +30,8 @@ AC = make_profile(board={"topology": "ac-ladder"}, supply=None, drive={"volts": 
         ("D5:open", Fault("D5", "open")),
         ("C4:short", Fault("C4", "short")),
         ("c4:SHORT", Fault("C4", "short")),
+        ("D5:short=50m", Fault("D5", "short", 0.05)),
+        ("C4:short=20mΩ", Fault("C4", "short", 0.02)),
         (" C3:lowcap=0.3 ", Fault("C3", "lowcap", 0.3)),
         ("C3:lowcap=30%", Fault("C3", "lowcap", 0.3)),
         ("D2:leaky=47k", Fault("D2", "leaky", 47e3)),
@@ -61,6 +63,8 @@ def test_specs_parse(spec, fault):
         ("C3:lowcap=1.5", "lowcap needs the fraction left, between 0 and 1"),
         ("C3:lowcap=abc", "severity 'abc' is not a number"),
         ("D2:leaky=-5", "leaky needs a resistance above 0 ohms"),
+        ("D5:short=0", "short needs a resistance above 0 and at most 100 ohms"),
+        ("C4:short=47k", "a higher one is a leak: use leaky"),
         ("load:heavy=0.5", "heavy needs a factor above 1"),
         ("drive:missing", "drive drive has no mode 'missing'"),
     ],
@@ -111,6 +115,7 @@ def test_each_mode_changes_exactly_its_part():
     cases = {
         "D5:open": ({"d_rs": [(0, d5)]}, lambda p: p.d_rs[0, d5] == OPEN_OHMS),
         "D5:short": ({"d_gp": [(0, d5)]}, lambda p: p.d_gp[0, d5] == 1 / SHORT_OHMS),
+        "D5:short=40m": ({"d_gp": [(0, d5)]}, lambda p: math.isclose(p.d_gp[0, d5], 25.0)),
         "D5:leaky=10k": ({"d_gp": [(0, d5)]}, lambda p: math.isclose(p.d_gp[0, d5], 1e-4 + 1e-12)),
         "D5:weak=100": ({"d_rs": [(0, d5)]}, lambda p: math.isclose(p.d_rs[0, d5], 100.568)),
         "C4:open": ({"c_f": [(0, c4)]}, lambda p: p.c_f[0, c4] == OPEN_FARADS),
@@ -153,6 +158,10 @@ def test_catalog_covers_every_part_and_mode():
     # Leak grid scaled to the 22 kΩ load; series grids to 1/(f·C) = 21.3 Ω.
     assert graded["D1:leaky"] == pytest.approx((220e3, 22e3, 2.2e3))
     assert graded["C1:esr"][0] == pytest.approx(0.5 / (1e4 * 4.7e-6))
+    # Shorts as a range, mild to gross, 10 Ω down to 10 mΩ.
+    for key in ("D1:short", "C1:short"):
+        assert graded[key][0] == 10.0 and graded[key][-1] == 0.01
+        assert all(a > b for a, b in zip(graded[key], graded[key][1:], strict=False))
 
 
 def test_words_use_board_designators():
@@ -160,3 +169,6 @@ def test_words_use_board_designators():
     assert describe(Fault("C2", "lowcap", 0.3), PROFILE) == "C2 lost capacitance (30% left)"
     assert describe(Fault("D1", "leaky", 47e3), PROFILE) == "D1 leaky (reverse leakage) (47kΩ)"
     assert Fault("D3", "weak", 220.0).spec(PROFILE) == "CR103:weak=220"
+    assert describe(Fault("C4", "short"), PROFILE) == "C4 shorted"
+    assert describe(Fault("C4", "short", 0.03), PROFILE) == "C4 shorted (30mΩ)"
+    assert Fault("D5", "short", 0.05).spec(PROFILE) == "D5:short=50m"

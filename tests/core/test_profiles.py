@@ -40,6 +40,19 @@ def test_shipped_profiles_load():
         ({"overrides": {"D99": {"series_ohms": 1.0}}}, "designator 'D99' is not on this board"),
         ({"diode": {"forward_volts": 0.6}}, "given together with forward_volts"),
         ({"meter": {"range_volts": 0}}, "[meter.range_volts] is 0, expected a number greater"),
+        ({"meter": {"diode_test_amps": 0.5}}, "[meter.diode_test_amps] is 0.5, expected less"),
+        ({"meter": {"burden_ohms": -1}}, "[meter.burden_ohms] is -1, expected at least 0"),
+        ({"meter": {"ac_bandwidth_hz": 0}}, "[meter.ac_bandwidth_hz] is 0, expected a number"),
+        ({"scope": {"probe_ohm": 1e6}}, "[scope.probe_ohm] is not a known key"),
+        ({"test_loads": {"ohms": 10e3}}, "[test_loads.ohms] is 10000.0, expected a list"),
+        ({"test_loads": {"ohms": []}}, "[test_loads.ohms] has 0 values, expected 1 to 8"),
+        ({"test_loads": {"ohms": [10e3, 0]}}, "[test_loads.ohms] holds 0, expected positive"),
+        ({"test_loads": {"ohms": [10e3, 10e3]}}, "[test_loads.ohms] lists a resistance twice"),
+        (
+            {"test_loads": {"ohms": [10e3], "rated_watts": [0.25, 1]}},
+            "[test_loads.rated_watts] has 2 values for 1 loads",
+        ),
+        ({"test_loads": {"rated_watts": [0.25]}}, "[test_loads.ohms] is missing"),
     ],
 )
 def test_profile_mistakes_have_clear_messages(sections, expected):
@@ -52,6 +65,21 @@ def test_profile_mistakes_have_clear_messages(sections, expected):
 def test_meter_range_is_optional():
     assert make_profile().meter_range_volts is None
     assert make_profile(meter={"range_volts": 1000}).meter_range_volts == 1000.0
+
+
+def test_instrument_settings_default_and_override():
+    default = make_profile()
+    assert default.test_loads == ()
+    assert default.instruments.probe_ohms == 10e6  # a 10× passive scope probe
+    p = make_profile(
+        meter={"burden_ohms": 0.5, "diode_test_volts": 2.5},
+        scope={"probe_farads": 15e-12},
+        test_loads={"ohms": [10e3, 100e3], "rated_watts": [0.5, 0.25]},
+    )
+    assert (p.instruments.burden_ohms, p.instruments.diode_test_volts) == (0.5, 2.5)
+    assert p.instruments.probe_farads == 15e-12
+    assert [(t.ohms, t.rated_watts) for t in p.test_loads] == [(10e3, 0.5), (100e3, 0.25)]
+    assert make_profile(test_loads={"ohms": [4.7e3]}).test_loads[0].rated_watts is None
 
 
 def test_missing_file_and_bad_toml(tmp_path: Path):

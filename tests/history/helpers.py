@@ -8,6 +8,7 @@ from datetime import UTC, datetime, timedelta
 from pathlib import Path
 
 from fieldtool.core import history as h
+from tests.readings import reading, verification
 
 T0 = datetime(2026, 1, 5, 9, 0, tzinfo=UTC)
 
@@ -30,11 +31,11 @@ def session(
 ) -> str:
     """Write one session; ``legacy`` writes records without a session id (old format)."""
     opened = h.SessionOpened(technician="ana", profile_hash="abc", tool_version="0.1.0")
-    events: list[h.Event] = [opened, h.Reading(node="S1", volts=3.0)]
-    events.append(h.Diagnosis(suspects=(h.Suspect("D5", "open", 0.7),)))
+    events: list[h.Event] = [opened, reading("S1", 3.0)]
+    events.append(h.DiagnosisSnapshot(suspects=(h.SnapshotSuspect("D5", "open", 0.7),)))
     events += [h.Action(designator=d, done="replaced", mode=m) for d, m in actions]
     if verify:
-        events.append(h.Verification(node="S1", volts=12.0))
+        events.append(verification("S1", 12.0))
     if outcome:
         events.append(h.SessionClosed(outcome=outcome))
     for i, event in enumerate(events):

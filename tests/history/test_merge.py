@@ -11,6 +11,7 @@ import pytest
 
 from fieldtool.core import history as h
 from fieldtool.core.history.merge import merge
+from tests.readings import reading
 
 T0 = datetime(2026, 3, 1, 8, 0, tzinfo=UTC)
 
@@ -20,7 +21,7 @@ def _at(hours: float) -> datetime:
 
 
 def _reading(logs: Path, serial: str, hours: float, volts: float, profile: str = "cw6") -> str:
-    return h.append(logs, profile, serial, h.Reading(node="S1", volts=volts), time=_at(hours)).id
+    return h.append(logs, profile, serial, reading("S1", volts), time=_at(hours)).id
 
 
 def _lines(path: Path) -> list[bytes]:
@@ -84,18 +85,18 @@ def test_records_all_later_are_appended_in_place(tmp_path):
     inode, head = path.stat().st_ino, path.read_bytes()
     merge(src, dst)
     assert path.stat().st_ino == inode and path.read_bytes().startswith(head)
-    assert [json.loads(line)["volts"] for line in _lines(path)] == [1.0, 3.0, 2.0]
+    assert [json.loads(line)["value"] for line in _lines(path)] == [1.0, 3.0, 2.0]
 
 
 def test_same_id_with_different_content_is_kept_twice_and_reported(tmp_path):
     src, dst = tmp_path / "laptop", tmp_path / "shop"
     rid = "c" * 32
-    h.append(dst, "cw6", "SN1", h.Reading(node="S1", volts=1.0), time=_at(0), record_id=rid)
-    h.append(src, "cw6", "SN1", h.Reading(node="S1", volts=9.0), time=_at(0), record_id=rid)
+    h.append(dst, "cw6", "SN1", reading("S1", 1.0), time=_at(0), record_id=rid)
+    h.append(src, "cw6", "SN1", reading("S1", 9.0), time=_at(0), record_id=rid)
     report = merge(src, dst)
     assert [(c.board, c.profile, c.id) for c in report.conflicts] == [("SN1", "cw6", rid)]
     assert report.added == 1
-    volts = sorted(e.event.volts for e in h.read_board(dst, "SN1").events)
+    volts = sorted(e.event.measurement.value for e in h.read_board(dst, "SN1").events)
     assert volts == [1.0, 9.0]
     again = merge(src, dst)  # both versions already there: nothing new, nothing lost
     assert (again.added, again.already_present, again.conflicts) == (0, 1, ())
@@ -104,7 +105,7 @@ def test_same_id_with_different_content_is_kept_twice_and_reported(tmp_path):
 
 def test_same_record_spelled_differently_is_not_a_conflict(tmp_path):
     src, dst = tmp_path / "laptop", tmp_path / "shop"
-    rec = h.append(dst, "cw6", "SN1", h.Reading(node="S1", volts=1.0), time=_at(0))
+    rec = h.append(dst, "cw6", "SN1", reading("S1", 1.0), time=_at(0))
     respelled = json.dumps(dict(reversed(list(rec.to_dict().items()))), indent=None)
     (src / "cw6").mkdir(parents=True)
     (src / "cw6" / "SN1.jsonl").write_text(respelled + "\n")
@@ -148,7 +149,7 @@ def test_damaged_destination_lines_survive_a_rewrite_byte_for_byte(tmp_path, bad
     lines = _lines(path)
     assert bad in lines
     assert lines.index(bad) == 2  # still right after the record it followed
-    assert [json.loads(line)["volts"] for line in lines if line != bad] == [3.0, 1.0, 2.0]
+    assert [json.loads(line)["value"] for line in lines if line != bad] == [3.0, 1.0, 2.0]
 
 
 def test_torn_tail_in_the_destination_is_kept_and_not_glued_to_new_records(tmp_path):
@@ -161,7 +162,7 @@ def test_torn_tail_in_the_destination_is_kept_and_not_glued_to_new_records(tmp_p
     _reading(src, "SN1", 3, 2.0)
     merge(src, dst)
     history = h.read_board(dst, "SN1")
-    assert [e.event.volts for e in history.events] == [1.0, 2.0]
+    assert [e.event.measurement.value for e in history.events] == [1.0, 2.0]
     assert [d.text for d in history.damaged] == [torn.decode()]
 
 
@@ -240,7 +241,7 @@ def test_concurrent_writer_during_merge_loses_nothing(tmp_path):
 
 def _append_many_readings(logs: str, count: int) -> None:
     for i in range(count):
-        h.append(logs, "cw6", "SN1", h.Reading(node="S2", volts=float(i)))
+        h.append(logs, "cw6", "SN1", reading("S2", float(i)))
 
 
 def test_cli_merge_into_a_read_only_folder_is_one_clear_line(tmp_path, capsys, read_only_dir):
@@ -283,11 +284,11 @@ def test_merge_by_worker_processes_matches_one_process(tmp_path):
         for i in range(6):
             _reading(src, serial, 2 * i, float(i))
     rid = "d" * 32
-    h.append(src, "cw6", "SN1", h.Reading(node="S9", volts=1.0), time=_at(50), record_id=rid)
+    h.append(src, "cw6", "SN1", reading("S9", 1.0), time=_at(50), record_id=rid)
     shop = tmp_path / "shop"
     for serial in ("SN1", "SN2", "SN3"):
         _reading(shop, serial, 3, 9.0)
-    h.append(shop, "cw6", "SN1", h.Reading(node="S9", volts=2.0), time=_at(50), record_id=rid)
+    h.append(shop, "cw6", "SN1", reading("S9", 2.0), time=_at(50), record_id=rid)
     results = {}
     for workers in (1, 2):
         dst = tmp_path / f"shop{workers}"

@@ -11,6 +11,7 @@ import pytest
 from fieldtool.core import history as h
 from fieldtool.core.history.sessions import confirmed_in, group_sessions, is_catalogued
 from tests.history.helpers import day, session
+from tests.readings import reading
 
 
 def _sessions(logs, serial="SN1"):
@@ -77,7 +78,7 @@ def test_session_field_of_an_unknown_shape_is_kept_not_trusted():
 
 def test_append_many_is_one_ordered_write_with_one_session(tmp_path):
     opened = h.SessionOpened(technician="ana", profile_hash="x", tool_version="0.1.0")
-    events = [opened, h.Reading(node="S1", volts=1.0), h.SessionClosed(outcome="fixed")]
+    events = [opened, reading("S1", 1.0), h.SessionClosed(outcome="fixed")]
     records = h.append_many(tmp_path, "cw6", "SN1", events, time=day(0))
     assert {r.session for r in records} == {opened.session_id}
     assert [r.time for r in records] == sorted({r.time for r in records})
@@ -89,7 +90,7 @@ def test_append_many_to_a_full_disk_writes_nothing(tmp_path):
         pytest.skip("/dev/full is not available on this system")
     (tmp_path / "cw6").mkdir()
     (tmp_path / "cw6" / "SN1.jsonl").symlink_to("/dev/full")
-    events = [h.Reading(node="S1", volts=1.0), h.Reading(node="S2", volts=2.0)]
+    events = [reading("S1", 1.0), reading("S2", 2.0)]
     with pytest.raises(h.SaveError, match="could not save 2 records .*disk full.*kept in memory"):
         h.append_many(tmp_path, "cw6", "SN1", events)
 

@@ -11,6 +11,10 @@ from pathlib import Path
 import pytest
 
 from fieldtool.core import history as h
+from fieldtool.core.errors import FieldtoolError
+from fieldtool.core.history.sessions import group_sessions, open_session
+from fieldtool.core.measurement import Source
+from tests.readings import dc, reading, verification
 
 
 def _opened(tech: str = "ana") -> h.SessionOpened:
@@ -20,11 +24,13 @@ def _opened(tech: str = "ana") -> h.SessionOpened:
 def test_append_then_read_round_trips_every_kind(tmp_path):
     events = [
         _opened(),
-        h.Reading(node="N3", volts=1234.5, spread=2.0),
-        h.Reading(node="N4", volts=None, overload=True, source="Fluke 87V #123"),
-        h.Diagnosis(suspects=(h.Suspect("C3", "short", 0.62), h.Suspect("D2", "open", 0.2))),
+        reading("N3", 1234.5, spread=2.0),
+        reading("N4", None, source=Source("meter", "Fluke 87V #123")),
+        h.DiagnosisSnapshot(
+            suspects=(h.SnapshotSuspect("C3", "short", 0.62), h.SnapshotSuspect("D2", "open", 0.2))
+        ),
         h.Action(designator="C3", done="replaced", mode="short", part_used="1uF 3kV"),
-        h.Verification(node="N3", volts=2480.0),
+        verification("N3", 2480.0),
         h.SessionClosed(outcome="fixed"),
     ]
     stored = [h.append(tmp_path, "cw6", "SN1", e) for e in events]
@@ -36,11 +42,15 @@ def test_append_then_read_round_trips_every_kind(tmp_path):
 
 
 def test_record_envelope(tmp_path):
-    rec = h.append(tmp_path, "cw6", "SN1", h.Reading(node="N1", volts=1.0))
+    rec = h.append(tmp_path, "cw6", "SN1", reading("N1", 1.0))
     line = json.loads((tmp_path / "cw6" / "SN1.jsonl").read_text())
-    assert line["schema"] == 1 and line["id"] == rec.id and len(rec.id) == 32
+    assert line["schema"] == 2 and line["id"] == rec.id and len(rec.id) == 32
     assert line["time"].endswith("Z") and line["board"] == "SN1" and line["profile"] == "cw6"
-    assert line["kind"] == "reading" and line["volts"] == 1.0
+    assert line["kind"] == "reading" and (line["at"], line["value"]) == ("N1", 1.0)
+    assert (line["quantity"], line["unit"], line["source"]) == ("dc", "V", {"kind": "typed"})
+    h.append(tmp_path, "cw6", "SN1", _opened())
+    opened = json.loads((tmp_path / "cw6" / "SN1.jsonl").read_text().splitlines()[1])
+    assert opened["schema"] == 1  # kinds that did not change keep the schema older tools read
 
 
 def test_read_finds_the_serial_across_profile_folders(tmp_path):
@@ -58,7 +68,7 @@ def test_unknown_board_is_a_clear_error(tmp_path):
 def _writer(args: tuple[str, int, int]) -> None:
     logs, worker, count = args
     for i in range(count):
-        h.append(logs, "cw6", "SHARED", h.Reading(node=f"W{worker}", volts=float(i)))
+        h.append(logs, "cw6", "SHARED", reading(f"W{worker}", float(i)))
 
 
 def test_concurrent_appends_from_processes_never_lose_or_interleave(tmp_path):
@@ -71,34 +81,34 @@ def test_concurrent_appends_from_processes_never_lose_or_interleave(tmp_path):
     assert lines[-1] == b"" and len(lines) - 1 == workers * count
     parsed = [json.loads(line) for line in lines[:-1]]
     for w in range(workers):
-        mine = [p["volts"] for p in parsed if p["node"] == f"W{w}"]
+        mine = [p["value"] for p in parsed if p["at"] == f"W{w}"]
         assert mine == [float(i) for i in range(count)]  # each writer's order kept
     assert len({p["id"] for p in parsed}) == workers * count
 
 
 def test_torn_tail_is_reported_kept_and_not_merged_into_the_next_record(tmp_path):
-    first = h.append(tmp_path, "cw6", "SN1", h.Reading(node="N1", volts=1.0))
+    first = h.append(tmp_path, "cw6", "SN1", reading("N1", 1.0))
     path = tmp_path / "cw6" / "SN1.jsonl"
     torn = b'{"schema":1,"id":"dead","time":"2026-'
     with open(path, "ab") as f:
         f.write(torn)
     before = h.read_board(tmp_path, "SN1")
     assert [d.reason for d in before.damaged] == ["torn last line (no newline)"]
-    second = h.append(tmp_path, "cw6", "SN1", h.Reading(node="N2", volts=2.0))
+    second = h.append(tmp_path, "cw6", "SN1", reading("N2", 2.0))
     after = h.read_board(tmp_path, "SN1")
     assert [r.id for r in after.events] == [first.id, second.id]
-    assert after.events[1].event == h.Reading(node="N2", volts=2.0)
+    assert after.events[1].event == reading("N2", 2.0)
     assert len(after.damaged) == 1 and after.damaged[0].text == torn.decode()
     assert after.damaged[0].line == 2
     assert torn + b"\n" in path.read_bytes()  # torn bytes left on disk, on their own line
 
 
 def test_garbage_line_in_the_middle_is_damaged_not_fatal(tmp_path):
-    h.append(tmp_path, "cw6", "SN1", h.Reading(node="N1", volts=1.0))
+    h.append(tmp_path, "cw6", "SN1", reading("N1", 1.0))
     path = tmp_path / "cw6" / "SN1.jsonl"
     with open(path, "ab") as f:
         f.write(b"\xff\xfe garbage\n[1, 2]\n")
-    h.append(tmp_path, "cw6", "SN1", h.Reading(node="N2", volts=2.0))
+    h.append(tmp_path, "cw6", "SN1", reading("N2", 2.0))
     history = h.read_board(tmp_path, "SN1")
     assert len(history.events) == 2
     assert [d.reason for d in history.damaged] == ["not UTF-8", "not a JSON object"]
@@ -108,7 +118,7 @@ def test_parent_is_a_file_gives_a_clear_save_error(tmp_path):
     blocker = tmp_path / "logs"
     blocker.write_text("I am a file")
     with pytest.raises(h.SaveError) as caught:
-        h.append(blocker, "cw6", "SN1", h.Reading(node="N1", volts=1.0))
+        h.append(blocker, "cw6", "SN1", reading("N1", 1.0))
     message = caught.value.message
     assert "could not save reading" in message and "read-only" in message
     assert "nothing was written, the reading is kept in memory" in message
@@ -119,7 +129,7 @@ def test_proc_is_refused_with_a_save_error():
     if not Path("/proc/self").is_dir():
         pytest.skip("no /proc on this system")
     with pytest.raises(h.SaveError, match="nothing was written"):
-        h.append("/proc/fieldtool-logs", "cw6", "SN1", h.Reading(node="N1", volts=1.0))
+        h.append("/proc/fieldtool-logs", "cw6", "SN1", reading("N1", 1.0))
 
 
 def test_full_disk_gives_a_clear_save_error(tmp_path):
@@ -128,7 +138,7 @@ def test_full_disk_gives_a_clear_save_error(tmp_path):
     (tmp_path / "cw6").mkdir()
     (tmp_path / "cw6" / "SN1.jsonl").symlink_to("/dev/full")
     with pytest.raises(h.SaveError) as caught:
-        h.append(tmp_path, "cw6", "SN1", h.Reading(node="N1", volts=1.0))
+        h.append(tmp_path, "cw6", "SN1", reading("N1", 1.0))
     assert "disk full" in caught.value.message
     assert "the reading is kept in memory" in caught.value.message
 
@@ -139,7 +149,7 @@ def test_full_disk_gives_a_clear_save_error(tmp_path):
 )
 def test_hostile_serials_are_refused(tmp_path, serial):
     with pytest.raises(h.BadNameError):
-        h.append(tmp_path, "cw6", serial, h.Reading(node="N1", volts=1.0))
+        h.append(tmp_path, "cw6", serial, reading("N1", 1.0))
     with pytest.raises(h.BadNameError):
         h.read_board(tmp_path, serial)
     assert list(tmp_path.iterdir()) == []
@@ -147,13 +157,13 @@ def test_hostile_serials_are_refused(tmp_path, serial):
 
 @pytest.mark.parametrize("serial", ["SN-0001", "A12_b", "板-7", "x.y"])
 def test_ordinary_serials_are_accepted(tmp_path, serial):
-    h.append(tmp_path, "cw6", serial, h.Reading(node="N1", volts=1.0))
+    h.append(tmp_path, "cw6", serial, reading("N1", 1.0))
     assert len(h.read_board(tmp_path, serial).events) == 1
 
 
 def test_hostile_profile_name_is_refused(tmp_path):
     with pytest.raises(h.BadNameError, match="profile name"):
-        h.append(tmp_path, "../up", "SN1", h.Reading(node="N1", volts=1.0))
+        h.append(tmp_path, "../up", "SN1", reading("N1", 1.0))
 
 
 def test_newer_schema_record_is_kept_flagged_and_preserved(tmp_path):
@@ -178,21 +188,29 @@ def test_newer_schema_record_is_kept_flagged_and_preserved(tmp_path):
 @pytest.mark.parametrize(
     "make",
     [
-        lambda: h.Reading(node="N1", volts=None),
-        lambda: h.Reading(node="N1", volts=float("nan")),
+        lambda: h.Reading(dc(None, 1.0)),  # a reading not placed at any node
+        lambda: reading("N1", float("nan")),
+        lambda: reading("N1", 1.0, spread=-0.1),
         lambda: h.SessionClosed(outcome="maybe"),
     ],
 )
 def test_invalid_events_are_refused(make):
-    with pytest.raises(h.HistoryError):
+    with pytest.raises(FieldtoolError):
         make()
 
 
-def test_last_session_open(tmp_path):
-    h.append(tmp_path, "cw6", "SN1", _opened())
-    assert h.last_session_open(h.read_board(tmp_path, "SN1"))
-    h.append(tmp_path, "cw6", "SN1", h.SessionClosed(outcome="escalated"))
-    assert not h.last_session_open(h.read_board(tmp_path, "SN1"))
+def test_the_open_session_is_found_by_its_records(tmp_path):
+    opened = _opened()
+    h.append(tmp_path, "cw6", "SN1", opened, session=opened.session_id)
+
+    def still_open():
+        return open_session(group_sessions(h.read_board(tmp_path, "SN1").events))
+
+    assert still_open().id == opened.session_id
+    h.append(
+        tmp_path, "cw6", "SN1", h.SessionClosed(outcome="escalated"), session=opened.session_id
+    )
+    assert still_open() is None
 
 
 def test_logs_dir_resolution(tmp_path, monkeypatch):

@@ -35,7 +35,7 @@ def test_hang_up_is_disconnected_every_time():
         meter = ScpiMeter(transport, settings)
         try:
             meter.connect()
-            assert meter.read().volts == 12.5
+            assert meter.read().value == 12.5
             hang_up.set()
             errors = []
             for _ in range(4):

@@ -2,8 +2,11 @@
 
 import pytest
 
+from fieldtool.core.measurement import TYPED, Source
 from fieldtool.meters.errors import MeterGarbage, ReadingParseError
 from fieldtool.meters.parse import parse_scpi_number, parse_stream_line, parse_typed
+
+METER = Source("meter", "ACME,DMM,1,1")
 
 
 @pytest.mark.parametrize(
@@ -31,15 +34,15 @@ from fieldtool.meters.parse import parse_scpi_number, parse_stream_line, parse_t
 )
 def test_typed_voltages(text, volts):
     reading = parse_typed(text)
-    assert reading.volts == pytest.approx(volts, rel=1e-12, abs=1e-15)
+    assert reading.value == pytest.approx(volts, rel=1e-12, abs=1e-15)
     assert reading.overload is False
-    assert reading.raw == text
+    assert (reading.source, reading.settled, reading.at) == (TYPED, True, None)
 
 
 @pytest.mark.parametrize("text", ["OL", "ol", "Overload", "OVERLOAD", " O.L. "])
 def test_typed_overload(text):
     reading = parse_typed(text)
-    assert reading.volts is None
+    assert reading.value is None
     assert reading.overload is True
 
 
@@ -78,22 +81,22 @@ def test_typed_refused(text, fragment):
     ],
 )
 def test_scpi_numbers(text, volts):
-    reading = parse_scpi_number(text)
-    assert reading.volts == pytest.approx(volts, rel=1e-12)
+    reading = parse_scpi_number(text, METER)
+    assert reading.value == pytest.approx(volts, rel=1e-12)
     assert reading.overload is False
 
 
 @pytest.mark.parametrize("text", ["+9.9E37", "-9.9E37", "9.91E37", "+9.90000000E+37\r\n", "1E38"])
 def test_scpi_overload_is_never_a_voltage(text):
-    reading = parse_scpi_number(text)
-    assert reading.volts is None
+    reading = parse_scpi_number(text, METER)
+    assert reading.value is None
     assert reading.overload is True
 
 
 @pytest.mark.parametrize("text", ["", "OK", "\x00\xff", "1.2.3", "12,5", "-", "nan", "inf"])
 def test_scpi_garbage(text):
     with pytest.raises(MeterGarbage, match="is not an IEEE 488.2 number"):
-        parse_scpi_number(text)
+        parse_scpi_number(text, METER)
 
 
 STREAM = r"(?P<value>[-+]?\d+(?:[.,]\d+)?|\bOL\b)\s*(?P<unit>[mkuµ]?V)?"
@@ -111,35 +114,35 @@ STREAM = r"(?P<value>[-+]?\d+(?:[.,]\d+)?|\bOL\b)\s*(?P<unit>[mkuµ]?V)?"
     ],
 )
 def test_stream_lines(line, volts, overload):
-    reading = parse_stream_line(line, STREAM)
+    reading = parse_stream_line(line, STREAM, METER)
     assert reading is not None
     assert reading.overload is overload
     if volts is None:
-        assert reading.volts is None
+        assert reading.value is None
     else:
-        assert reading.volts == pytest.approx(volts)
+        assert reading.value == pytest.approx(volts)
 
 
 def test_stream_line_without_unit_group():
-    reading = parse_stream_line("2024-01-01,3.30", r",(?P<value>[\d.]+)$")
-    assert reading is not None and reading.volts == pytest.approx(3.3)
+    reading = parse_stream_line("2024-01-01,3.30", r",(?P<value>[\d.]+)$", METER)
+    assert reading is not None and reading.value == pytest.approx(3.3)
 
 
 @pytest.mark.parametrize("line", ["", "HOLD", "---- ----"])
 def test_stream_non_matching_is_none(line):
-    assert parse_stream_line(line, STREAM) is None
+    assert parse_stream_line(line, STREAM, METER) is None
 
 
 def test_stream_bad_unit_is_garbage():
     with pytest.raises(MeterGarbage, match="'A' in line '3.3 A' is not a voltage unit"):
-        parse_stream_line("3.3 A", r"(?P<value>[\d.]+) (?P<unit>\w+)")
+        parse_stream_line("3.3 A", r"(?P<value>[\d.]+) (?P<unit>\w+)", METER)
 
 
 def test_stream_bad_value_is_garbage():
     with pytest.raises(MeterGarbage, match="streamed value 'x.y' in line"):
-        parse_stream_line("x.y V", r"(?P<value>\S+) V")
+        parse_stream_line("x.y V", r"(?P<value>\S+) V", METER)
 
 
 def test_stream_scpi_overload_number():
-    reading = parse_stream_line("+9.9E37 V", r"(?P<value>\S+) (?P<unit>V)")
-    assert reading is not None and reading.overload and reading.volts is None
+    reading = parse_stream_line("+9.9E37 V", r"(?P<value>\S+) (?P<unit>V)", METER)
+    assert reading is not None and reading.overload and reading.value is None

@@ -7,16 +7,19 @@ import time
 import pytest
 import serial
 
+from fieldtool.core.measurement import DC, RIPPLE_PP, Source
+from fieldtool.meters.connect import PROTOCOL_DRIVERS
 from fieldtool.meters.errors import (
     MeterDisconnected,
     MeterGarbage,
+    MeterSettingsError,
     MeterTimeout,
     PortMissing,
     permission_message,
 )
 from fieldtool.meters.scpi import ScpiMeter
-from fieldtool.meters.settings import MeterSettings, SettleRule
-from fieldtool.meters.settle import settle
+from fieldtool.meters.settings import PROTOCOLS, MeterSettings
+from fieldtool.meters.simulated import SimulatedMeter
 from fieldtool.meters.stream import StreamMeter
 from fieldtool.meters.transport import SerialTransport, open_port
 from tests.pty_lines import pty_lines
@@ -58,7 +61,7 @@ def test_scpi_dialogue(pty_pair):
     meter = ScpiMeter(transport, MeterSettings(timeout_s=2))
     assert meter.connect() == "ACME,DMM-1,123,1.0"
     reading = meter.read()
-    assert reading.volts == 12.3456789 and reading.overload is False
+    assert reading.value == 12.3456789 and reading.overload is False
     assert log == ["*IDN?", "CONF:VOLT:DC", "READ?"]
 
 
@@ -66,7 +69,7 @@ def test_scpi_overload(pty_pair):
     master, transport = pty_pair
     _start(play_scpi, master, {"READ?": [b"+9.9E37\r\n"]}, [])
     reading = ScpiMeter(transport, MeterSettings(timeout_s=2)).read()
-    assert reading.volts is None and reading.overload is True
+    assert reading.value is None and reading.overload is True
 
 
 def test_scpi_garbage_retried_once_then_raised(pty_pair):
@@ -81,7 +84,7 @@ def test_scpi_garbage_retried_once_then_raised(pty_pair):
 def test_scpi_garbage_then_good(pty_pair):
     master, transport = pty_pair
     _start(play_scpi, master, {"READ?": [b"#?\n", b"5.000\n"]}, [])
-    assert ScpiMeter(transport, MeterSettings(timeout_s=2)).read().volts == 5.0
+    assert ScpiMeter(transport, MeterSettings(timeout_s=2)).read().value == 5.0
 
 
 def test_slow_meter_times_out(pty_pair):
@@ -120,7 +123,7 @@ def test_stream_skips_stale_and_garbage(pty_pair):
 
     _start(play)
     reading = StreamMeter(transport, MeterSettings(protocol="stream", timeout_s=2)).read()
-    assert reading.volts == 12.5
+    assert reading.value == 12.5
 
 
 def test_stream_too_much_garbage(pty_pair):
@@ -158,31 +161,6 @@ def test_permission_message_names_group(tmp_path):
     )
 
 
-def test_settle_with_fake_clock():
-    values = iter([10.0, 12.0, 12.50, 12.51, 12.505, 99.0])
-    from fieldtool.meters.parse import Reading
-
-    shown = []
-    result = settle(
-        lambda: Reading(next(values)),
-        SettleRule(trend=False),
-        clock=lambda: 0.0,
-        on_value=shown.append,
-    )
-    assert (result.volts, result.count, result.settled) == (12.505, 5, True)
-    assert result.spread == pytest.approx(0.01)
-    assert len(shown) == 5
-
-
-def test_settle_timeout_is_honest():
-    from fieldtool.meters.parse import Reading
-
-    values = iter([1.0, 2.0, 3.0, 4.0])
-    ticks = iter([0.0, 1.0, 2.0, 11.0, 12.0])
-    result = settle(lambda: Reading(next(values)), SettleRule(), clock=lambda: next(ticks))
-    assert (result.volts, result.settled, result.count) == (3.0, False, 3)
-
-
 def test_busy_port_is_port_busy():
     from fieldtool.meters.errors import PortBusy
 
@@ -206,35 +184,7 @@ def test_stream_overload_line_is_overload_never_a_number(pty_pair, line):
     master, transport = pty_pair
     _start(lambda: (time.sleep(0.2), os.write(master, line)))
     reading = StreamMeter(transport, MeterSettings(protocol="stream", timeout_s=2)).read()
-    assert (reading.overload, reading.volts) == (True, None)
-
-
-def test_settle_percent_is_a_percentage():
-    # percent = 0.2 means 0.2 % of the reading: at 100 V a band of 0.2 V (+ volts = 0)
-    from fieldtool.meters.parse import Reading
-
-    rule = SettleRule(count=3, percent=0.2, volts=0.0, trend=False)
-    inside = iter([100.0, 100.1, 100.19])
-    assert settle(lambda: Reading(next(inside)), rule, clock=lambda: 0.0).settled is True
-    outside = iter([100.0, 100.1, 100.3, 100.6, 100.9])
-    ticks = iter([0.0, 1.0, 2.0, 3.0, 11.0])
-    result = settle(lambda: Reading(next(outside)), rule, clock=lambda: next(ticks))
-    assert (result.settled, result.count) == (False, 4)
-
-
-def test_settle_trend_refuses_a_slow_creep():
-    # Each three readings of a creep of 0.1 V a reading agree within 0.2 % of 100 V, but the
-    # mean keeps moving: with the trend check that is not settled; a flat run is.
-    from fieldtool.meters.parse import Reading
-
-    creep = iter([99.5 + 0.1 * i for i in range(40)])
-    ticks = iter([0.25 * i for i in range(80)])
-    rule = SettleRule(count=3, percent=0.2, volts=0.0, timeout_s=5.0)
-    result = settle(lambda: Reading(next(creep)), rule, clock=lambda: next(ticks))
-    assert result.settled is False
-    flat = iter([99.0, 100.0, 100.02, 100.01, 100.0, 100.02, 100.01, 100.0])
-    result = settle(lambda: Reading(next(flat)), rule, clock=lambda: 0.0)
-    assert (result.settled, result.count, result.volts) == (True, 7, 100.01)
+    assert (reading.overload, reading.value) == (True, None)
 
 
 def test_command_delay_spaces_out_scpi_commands():
@@ -270,3 +220,25 @@ def test_no_command_delay_by_default():
     finally:
         transport.close()
     assert waits == []
+
+
+def test_capabilities_are_flags_with_defaults():
+    """A serial meter's probe is in a person's hand: placing it does nothing (no byte is sent);
+    it can be set to DC volts and refuses other kinds, naming itself."""
+    transport = open_port("loop://", timeout=0.2)
+    meter = ScpiMeter(transport, MeterSettings())
+    try:
+        assert meter.places_probe is False and SimulatedMeter.places_probe is True
+        meter.place_probe("S3")
+        with pytest.raises(MeterTimeout):
+            transport.readline(0.2)  # loop:// would echo anything written
+        meter.set_quantity(DC)
+        with pytest.raises(MeterSettingsError, match="scpi meter on loop:// cannot measure ripple"):
+            meter.set_quantity(RIPPLE_PP)
+        assert meter.quantity == DC and meter.source == Source("meter", "scpi meter on loop://")
+    finally:
+        meter.close()
+
+
+def test_every_protocol_in_the_settings_has_a_driver():
+    assert set(PROTOCOL_DRIVERS) == set(PROTOCOLS)

@@ -16,7 +16,6 @@ import pytest
 
 from fieldtool.core.circuit.profile import profile_from_dict
 from fieldtool.meters.errors import MeterTimeout
-from fieldtool.meters.parse import Reading
 from fieldtool.meters.scpi import ScpiMeter
 from fieldtool.meters.settings import MeterSettings, SettleRule
 from fieldtool.meters.settle import settle
@@ -32,6 +31,7 @@ from fieldtool.meters.simulated import SimulatedMeter
 from fieldtool.meters.stream import StreamMeter
 from fieldtool.meters.transport import open_port
 from tests.meters.conftest import BOARD, accuracy
+from tests.readings import dc
 
 
 class Served:
@@ -95,7 +95,7 @@ def test_scpi_dialogue_reads_the_expected_node(scpi, board, healthy):
         assert scpi.type("TP5", "probe on") == "probe on S4 (TP5)"
         result = settle(meter.read, SettleRule())
         expected = healthy.node("S4").volts
-        assert result.settled and abs(result.volts - expected) <= accuracy(board, expected)
+        assert result.settled and abs(result.value - expected) <= accuracy(board, expected)
     finally:
         transport.close()
 
@@ -138,11 +138,11 @@ def test_stream_lines_and_a_lifted_probe(stream, board, healthy):
         stream.type("S8", "probe on")
         result = settle(meter.read, SettleRule())
         expected = healthy.node("S8").volts
-        assert result.settled and abs(result.volts - expected) <= accuracy(board, expected)
+        assert result.settled and abs(result.value - expected) <= accuracy(board, expected)
         assert stream.type("lift", "probe") == "probe lifted"
         result = settle(meter.read, SettleRule())
-        assert abs(result.volts) < accuracy(board, 0.0)
-        assert meter.read().unit == "mV"  # a lifted probe reads millivolts of noise
+        assert abs(result.value) < accuracy(board, 0.0)
+        assert abs(meter.read().value) < 0.1  # a lifted probe reads millivolts of noise
     finally:
         transport.close()
 
@@ -163,7 +163,7 @@ def test_over_range_node_reads_overload_never_a_number(protocol, healthy):
         meter.connect()
         served.type("HV-OUT", "probe on")
         result = settle(meter.read, SettleRule())
-        assert (result.overload, result.volts, result.settled) == (True, None, True)
+        assert (result.overload, result.value, result.settled) == (True, None, True)
     finally:
         transport.close()
         served.stop()
@@ -183,7 +183,7 @@ def test_slow_meter_loses_fast_commands_and_command_delay_fixes_it(board, health
         transport = open_port(served.server.port, timeout=2.0)
         patient = ScpiMeter(transport, MeterSettings(timeout_s=2, command_delay_s=0.35))
         assert patient.connect().startswith("FIELDTOOL,")
-        assert patient.read().volts == pytest.approx(0.0, abs=0.1)
+        assert patient.read().value == pytest.approx(0.0, abs=0.1)
         transport.close()
     finally:
         served.stop()
@@ -236,7 +236,7 @@ class Fixed:
         self.volts = volts
 
     def read(self):
-        return Reading(volts=self.volts)
+        return dc(None, self.volts)
 
 
 def test_responder_error_queue_fetch_and_reset():
@@ -260,12 +260,12 @@ def test_responder_error_queue_fetch_and_reset():
 @pytest.mark.parametrize(
     ("reading", "nr3", "line"),
     [
-        (Reading(125.7718), "+1.25771800E+02", "125.77 V"),
-        (Reading(-68.04), "-6.80400000E+01", "-68.040 V"),
-        (Reading(3.3), "+3.30000000E+00", "3.3000 V"),
-        (Reading(0.0123), "+1.23000000E-02", "12.300 mV"),
-        (Reading(-0.0009), "-9.00000000E-04", "-0.9000 mV"),
-        (Reading(None, overload=True), "+9.90000000E+37", "OL"),
+        (dc(None, 125.7718), "+1.25771800E+02", "125.77 V"),
+        (dc(None, -68.04), "-6.80400000E+01", "-68.040 V"),
+        (dc(None, 3.3), "+3.30000000E+00", "3.3000 V"),
+        (dc(None, 0.0123), "+1.23000000E-02", "12.300 mV"),
+        (dc(None, -0.0009), "-9.00000000E-04", "-0.9000 mV"),
+        (dc(None, None), "+9.90000000E+37", "OL"),
     ],
 )
 def test_number_and_line_formats(reading, nr3, line):

@@ -59,10 +59,10 @@ def meter_on(profile, expectation, fault=None, seed=0, **kw):
 @pytest.mark.parametrize("node", ["S0", "P1", "S2", "P5", "S8"])
 def test_settles_to_the_expectation_within_accuracy(board, healthy, node):
     meter, clock = meter_on(board, healthy)
-    meter.touch(node)
+    meter.place_probe(node)
     clock.sleep(10 * METER_TAU_S)
     expected = healthy.node(node).volts
-    readings = [meter.read().volts for _ in range(20)]
+    readings = [meter.read().value for _ in range(20)]
     assert all(abs(v - expected) <= accuracy(board, expected) for v in readings)
 
 
@@ -78,10 +78,10 @@ def test_own_solve_is_the_cores_expectation_with_the_fault(board, d5_open):
 @pytest.mark.parametrize("node", ["S2", "S3", "S4", "S8"])
 def test_fault_changes_readings_as_the_core_says(board, healthy, d5_open, node):
     meter, clock = meter_on(board, d5_open, fault="D5:open", seed=2)
-    meter.touch(node)
+    meter.place_probe(node)
     clock.sleep(20.0)  # well past the creep of a node stranded behind the open diode
     faulted = d5_open.node(node).volts
-    reading = meter.read().volts
+    reading = meter.read().value
     assert abs(reading - faulted) <= accuracy(board, faulted)
     # and the fault is visible: the reading is outside the healthy board's accuracy band
     ok = healthy.node(node).volts
@@ -93,12 +93,12 @@ def test_first_order_step_from_zero_and_from_the_previous_node(board, healthy):
     # of Electronics, 3rd ed., §1.4.2; from memory). On a healthy ladder τ_node is milliseconds,
     # so the meter's own τ dominates.
     meter, clock = meter_on(board, healthy, noise_fraction=0.0)
-    meter.touch("S8")
+    meter.place_probe("S8")
     clock.sleep(METER_TAU_S)
     v8 = healthy.node("S8").volts
     assert meter.display_volts() == pytest.approx(v8 * (1 - math.exp(-1)), rel=1e-3)
     clock.sleep(20 * METER_TAU_S)
-    meter.touch("S4")
+    meter.place_probe("S4")
     clock.sleep(2 * METER_TAU_S)
     v4 = healthy.node("S4").volts
     assert meter.display_volts() == pytest.approx(v4 + (v8 - v4) * math.exp(-2), rel=1e-3)
@@ -113,7 +113,7 @@ def test_stranded_node_creeps_with_meter_resistance_times_capacitance(board, d5_
     tau = board.meter_ohms * (1 - n.volts / n.unloaded_volts) * board.capacitor.farads
     assert METER_TAU_S * 3 < tau < NODE_TAU_CAP_S  # seconds: a creep a technician sees
     meter, clock = meter_on(board, d5_open, fault="D5:open", noise_fraction=0.0)
-    meter.touch("S3")
+    meter.place_probe("S3")
     clock.sleep(4.0)  # the meter's own lag is over (exp(-4/0.3) ≈ 2e-6)
     first = meter.display_volts() - n.volts
     clock.sleep(2.0)
@@ -145,9 +145,9 @@ def test_step_response_solves_the_lag_equation():
 
 def test_noise_statistics_match_the_configured_scale(board, healthy):
     meter, clock = meter_on(board, healthy, seed=7)
-    meter.touch("S8")
+    meter.place_probe("S8")
     clock.sleep(30.0)
-    v = np.array([meter.sample().volts for _ in range(4000)])
+    v = np.array([meter.sample().value for _ in range(4000)])
     expected = healthy.node("S8").volts
     sigma = 0.1 * accuracy(board, expected)  # NOISE_FRACTION of the stated accuracy
     assert meter.noise_sigma(expected) == pytest.approx(sigma)
@@ -158,12 +158,12 @@ def test_noise_statistics_match_the_configured_scale(board, healthy):
 
 def test_lifted_probe_reads_zero_with_offset_noise(board, healthy):
     meter, clock = meter_on(board, healthy, seed=8)
-    meter.touch("S8")
+    meter.place_probe("S8")
     clock.sleep(5.0)
-    meter.touch(None)
+    meter.place_probe(None)
     assert meter.probe is None
     clock.sleep(5.0)  # 126 V·exp(-5/0.3) ≈ 7 µV left of the previous node
-    v = np.array([meter.sample().volts for _ in range(2000)])
+    v = np.array([meter.sample().value for _ in range(2000)])
     sigma = 0.1 * board.meter_volts
     assert abs(v.mean()) < 4 * sigma / math.sqrt(len(v))
     assert v.std(ddof=1) == pytest.approx(sigma, rel=0.05)
@@ -174,8 +174,8 @@ def test_same_seed_same_readings_other_seed_others(board, healthy):
         meter, clock = meter_on(board, healthy, seed=seed)
         out = []
         for node in ["S2", "S8", None, "P3"]:
-            meter.touch(node)
-            out += [meter.read().volts for _ in range(5)]
+            meter.place_probe(node)
+            out += [meter.read().value for _ in range(5)]
         return out, clock.t
 
     first, t_end = script(3)
@@ -195,21 +195,21 @@ def with_range(volts: float):
 def test_beyond_the_range_reads_overload(board, healthy):
     ranged = with_range(100.0)
     meter, clock = meter_on(ranged, healthy)
-    meter.touch("S8")  # about 126 V
+    meter.place_probe("S8")  # about 126 V
     clock.sleep(0.05)
     rising = meter.read()
-    assert rising.overload is False and rising.volts < 100.0
+    assert rising.overload is False and rising.value < 100.0
     clock.sleep(5.0)
     over = meter.read()
-    assert over.overload is True and over.volts is None
-    meter.touch("S4")  # about 70 V
+    assert over.overload is True and over.value is None
+    meter.place_probe("S4")  # about 70 V
     clock.sleep(5.0)
-    assert meter.read().volts == pytest.approx(healthy.node("S4").volts, abs=0.5)
+    assert meter.read().value == pytest.approx(healthy.node("S4").volts, abs=0.5)
 
 
 def test_without_a_range_never_overload(board, healthy):
     meter, clock = meter_on(board, healthy)
-    meter.touch("S8")
+    meter.place_probe("S8")
     for _ in range(40):
         clock.sleep(0.1)
         assert meter.read().overload is False
@@ -217,15 +217,15 @@ def test_without_a_range_never_overload(board, healthy):
 
 def test_nodes_by_name_or_test_point_any_case(board, healthy):
     meter, clock = meter_on(board, healthy)
-    meter.touch("tp3")
+    meter.place_probe("tp3")
     assert meter.probe == "S2"
-    meter.touch("hv-out")
+    meter.place_probe("hv-out")
     assert meter.probe == "S8"
-    meter.touch("gnd")
+    meter.place_probe("gnd")
     clock.sleep(5.0)
-    assert abs(meter.read().volts) < accuracy(board, 0.0)
+    assert abs(meter.read().value) < accuracy(board, 0.0)
     with pytest.raises(UnknownNode) as info:
-        meter.touch("S99")
+        meter.place_probe("S99")
     assert info.value.message.startswith(
         "no node or test point 'S99' on this board; nodes: S0 (TP1), P1, S1, P2, S2 (TP3), P3"
     )

@@ -35,7 +35,7 @@ def run(capsys, *argv: str) -> tuple[int, str, str]:
 def raw_line(logs: Path, profile: str, serial: str, **fields) -> dict:
     """Append one line written by hand (any content the JSON allows) to a board's file."""
     record = {
-        "schema": h.SCHEMA,
+        "schema": h.schema_for(fields.get("kind", "")),
         "id": uuid.uuid4().hex,
         "time": h.now_utc(),
         "board": serial,
@@ -86,7 +86,7 @@ def odd_sessions(logs: Path, profile: str, serial: str, hostile: bool = False) -
     raw_line(logs, profile, serial, kind="session-opened", session_id=sid, technician="x",
              profile_hash="p", tool_version="0",
              time="2026-01-05T09:00:00+00:00", **common)  # fmt: skip  # not our spelling
-    raw_line(logs, profile, serial, kind="verification", node="S1", volts=1.0,
+    raw_line(logs, profile, serial, kind="verification", node="S1", volts=1.0, schema=1,
              time="2026-01-05T09:01:00.000000Z", **common)  # fmt: skip  # before the action
     raw_line(logs, profile, serial, kind="action", designator="D2", mode="open", done="r",
              time="2026-01-05T09:02:00.000000Z", **common)  # fmt: skip
@@ -102,7 +102,7 @@ def odd_sessions(logs: Path, profile: str, serial: str, hostile: bool = False) -
              time="2026-01-05T09:06:00.000000Z", **common)  # fmt: skip  # closed twice: later
     # A session of readings only (no opening): the fleet view never counts it.
     raw_line(logs, profile, serial, kind="reading", node="S1", volts=2.0, session="r-only",
-             time="2026-01-06T09:00:00.000000Z")  # fmt: skip
+             schema=1, time="2026-01-06T09:00:00.000000Z")  # fmt: skip
     # A session with no opening record, closed fixed: it starts at its first record.
     raw_line(logs, profile, serial, kind="action", designator="C4", mode="short", done="r",
              session="no-open", time="2026-01-07T09:00:00.000000Z")  # fmt: skip

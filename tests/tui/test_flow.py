@@ -11,6 +11,8 @@ import pytest
 from fieldtool.core import history as hist
 from fieldtool.core.circuit.expect import expect
 from fieldtool.core.diagnosis.faults import parse_fault
+from fieldtool.core.measurement import TYPED
+from fieldtool.core.session import unfinished_session
 from fieldtool.tui.dialogs import ActionDialog, OutcomeDialog
 from fieldtool.tui.node_table import NodeTable
 from fieldtool.tui.start import StartScreen
@@ -70,8 +72,9 @@ async def test_typed_readings_find_the_injected_fault(profile, cache_dir, tmp_pa
     records = hist.read_board(tmp_path, "TG-0042").events
     kinds = [r.kind for r in records]
     assert kinds[0] == "session-opened"
-    assert [r.fields["node"] for r in records if r.kind == "reading"] == probed
-    assert all(r.fields["source"] == "typed" for r in records if r.kind == "reading")
+    taken = [r.event.measurement for r in records if r.kind == "reading"]
+    assert [m.at for m in taken] == probed
+    assert all(m.source == TYPED and m.settled for m in taken)
 
 
 async def test_repair_and_verification_are_recorded(profile, cache_dir, tmp_path):
@@ -116,11 +119,11 @@ async def test_repair_and_verification_are_recorded(profile, cache_dir, tmp_path
     action = records[action_at].event
     assert (action.designator, action.done, action.mode) == ("C6", "replaced", "short")
     assert action.part_used == "2.2uF 250V X7R"
-    verifications = [r.event for r in records if r.kind == "verification"]
-    assert [v.node for v in verifications] == ["S6", "S8"]
-    assert verifications[1].volts == pytest.approx(healthy["S8"], rel=1e-3)
+    verifications = [r.event.measurement for r in records if r.kind == "verification"]
+    assert [v.at for v in verifications] == ["S6", "S8"]
+    assert verifications[1].value == pytest.approx(healthy["S8"], rel=1e-3)
     assert kinds[-1] == "session-closed" and records[-1].event.outcome == "fixed"
-    assert not hist.last_session_open(hist.read_board(tmp_path, "TG-0042"))
+    assert unfinished_session(tmp_path, "TG-0042") is None
 
 
 async def test_bad_typed_reading_shows_a_dialog_and_keeps_the_text(profile, cache_dir, tmp_path):

@@ -8,9 +8,9 @@ from fieldtool.cli import build_parser, main
 from fieldtool.commands import tui as tui_cmd
 from fieldtool.core.circuit.netlist import build_circuit
 from fieldtool.core.diagnosis.faults import catalog
-from fieldtool.tui.app import PALETTE, FieldtoolApp
+from fieldtool.tui.app import FieldtoolApp, help_text
 from fieldtool.tui.dialogs import ActionDialog, OutcomeDialog, ResumeDialog
-from fieldtool.tui.help import _key, help_text
+from fieldtool.tui.help import _key
 from fieldtool.tui.history import FleetScreen, HistoryScreen
 from fieldtool.tui.probing import ProbingScreen
 from fieldtool.tui.start import StartScreen
@@ -32,10 +32,10 @@ async def test_palette_offers_the_main_actions(profile, cache_dir, tmp_path):
     async with app.run_test(size=(80, 24)) as pilot:
         screen = await probing(pilot)
         titles = {c.title for c in app.get_system_commands(screen)}
-        for title, _, action in PALETTE:
-            if hasattr(screen, f"action_{action}"):
-                assert title in titles
+        for title, _, action in ProbingScreen.PALETTE:
+            assert title in titles and callable(getattr(screen, f"action_{action}"))
         assert "Jump to the next probe" in titles and "Record a repair" in titles
+        assert "Start a session" not in titles  # the start screen's own command
         # The footer shows only what works now: no meter, so no accept and no reconnect.
         assert screen.check_action("accept", ()) is False
         assert screen.check_action("reconnect", ()) is False

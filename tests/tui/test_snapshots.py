@@ -14,9 +14,11 @@ import pytest
 from fieldtool.core import history as hist
 from fieldtool.core.circuit.expect import expect
 from fieldtool.core.diagnosis.faults import parse_fault
+from fieldtool.core.measurement import Source
 from fieldtool.tui.app import make_app
 from fieldtool.tui.history import HistoryScreen
 from fieldtool.tui.node_table import NodeTable
+from tests.readings import reading, verification
 from tests.tui.conftest import probing, type_reading, typed_app, until
 
 SIZES = [pytest.param((80, 24), id="80x24"), pytest.param((120, 40), id="120x40")]
@@ -29,12 +31,12 @@ def board_history(logs, profile) -> None:
         hist.SessionOpened(
             technician="JM", profile_hash=profile.digest, tool_version="0.1.0", session_id="s-1"
         ),
-        hist.Reading(node="S0", volts=15.02),
-        hist.Reading(node="S4", volts=61.7, source="BENCH,DMM-9,0042,1.0", spread=0.004),
-        hist.Reading(node="S8", volts=None, overload=True),
-        hist.Diagnosis(suspects=(hist.Suspect("C6", "short", 0.82),)),
+        reading("S0", 15.02),
+        reading("S4", 61.7, source=Source("meter", "BENCH,DMM-9,0042,1.0"), spread=0.004),
+        reading("S8", None),
+        hist.DiagnosisSnapshot(suspects=(hist.SnapshotSuspect("C6", "short", 0.82),)),
         hist.Action(designator="C6", done="replaced", mode="short", part_used="2.2uF 250V"),
-        hist.Verification(node="S8", volts=125.6),
+        verification("S8", 125.6),
         hist.SessionClosed(outcome="fixed"),
     ]
     session = events[0].session_id
@@ -64,7 +66,7 @@ def test_probing_screen(snap_compare, profile, cache_dir, tmp_path, size):
         await until(pilot, lambda: screen.safety_current, what="safety figures")
         await pilot.app.workers.wait_for_complete()
         await pilot.pause()
-        assert screen.session.taken.keys() == {"S0", "S4", "S6"}
+        assert screen.session.volts_by_node().keys() == {"S0", "S4", "S6"}
 
     assert snap_compare(app, terminal_size=size, run_before=readings)
 
@@ -94,12 +96,14 @@ def test_help_screen(snap_compare, tmp_path, size):
 async def test_fleet_screen_and_priors_follow_confirmed_repairs(profile, dictionary, tmp_path):
     """A repair confirmed in a session closed fixed counts on the fleet screen and feeds the
     priors (the history store's fleet view)."""
+    from fieldtool.core.session import choose_priors, history_failures
     from fieldtool.tui.history import FleetScreen
-    from fieldtool.tui.session import choose_priors
 
-    published = choose_priors(profile, dictionary, tmp_path)
+    hyps = dictionary.hypotheses
+    published = choose_priors(profile, hyps, history_failures(tmp_path))
     board_history(tmp_path, profile)
-    fleet = choose_priors(profile, dictionary, tmp_path)
+    fleet = choose_priors(profile, hyps, history_failures(tmp_path))
+    assert fleet.from_fleet and not published.from_fleet
     assert fleet.of("C6:short") > published.of("C6:short")
     app = make_app(logs_dir=tmp_path)
     async with app.run_test(size=(80, 24)) as pilot:

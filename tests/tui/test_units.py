@@ -1,13 +1,11 @@
-"""The UI's pure pieces: verdicts, number formats, bars, the settle judgement, the ladder."""
+"""The UI's pure pieces: verdicts, number formats, bars, the ladder (the settle judgement is
+the meter's own: tests/meters/test_settle.py)."""
 
 from __future__ import annotations
 
 import pytest
 
-from fieldtool.meters.parse import Reading
-from fieldtool.meters.settings import SettleRule
 from fieldtool.tui.ladder import ladder_cells
-from fieldtool.tui.meter_strip import settle_state
 from fieldtool.tui.view import bar, deviation_text, percent_text, verdict, volts_text
 from tests.conftest import make_profile
 
@@ -52,31 +50,6 @@ def test_bar_fills_in_eighths():
     assert bar(1.0, 4) == "████"
     assert bar(0.0, 4) == "····"
     assert bar(0.5, 3) == "█▌··"[:3]
-
-
-RULE = SettleRule(count=3, percent=0.2, volts=0.005, timeout_s=5.0)
-
-
-@pytest.mark.parametrize(
-    ("values", "settled"),
-    [
-        ([12.5] * 6, True),
-        ([12.5] * 3, False),  # the trend check needs the three before to agree too
-        ([12.0, 12.2, 12.4, 12.5, 12.5, 12.5], False),  # still rising before the window
-        ([10.0, 10.5, 11.0, 11.5, 12.0, 12.5], False),  # a creep is not settled
-        ([12.5, 12.5, 12.5, 12.5, 12.5, 13.5], False),
-    ],
-)
-def test_settle_judgement_follows_the_meter_rule(values, settled):
-    s = settle_state([Reading(v) for v in values], RULE)
-    assert s.settled is settled
-    assert s.volts == values[-1]
-
-
-def test_settle_overload_and_empty():
-    assert settle_state([], RULE) is None
-    s = settle_state([Reading(None, overload=True)] * 3, RULE)
-    assert s.overload and s.settled and s.volts is None
 
 
 @pytest.mark.parametrize(

@@ -32,7 +32,7 @@ from fieldtool.core.errors import SolverError
 
 
 @dataclass(frozen=True)
-class NodeReading:
+class NodeExpectation:
     """Expected reading at one node."""
 
     node: str
@@ -54,7 +54,7 @@ class Expectation:
     """The board's expected readings and figures at one operating point."""
 
     profile: Profile
-    nodes: tuple[NodeReading, ...]
+    nodes: tuple[NodeExpectation, ...]
     output_node: str
     output_volts: float
     output_ripple_vpp: float
@@ -73,14 +73,14 @@ class Expectation:
     residual_volts: float
     shooting_iterations: int
 
-    def node(self, name: str) -> NodeReading:
+    def node(self, name: str) -> NodeExpectation:
         """Expected reading at a node by name."""
         for n in self.nodes:
             if n.node == name:
                 return n
         raise KeyError(name)
 
-    def loading_matters(self, node: NodeReading) -> bool:
+    def loading_matters(self, node: NodeExpectation) -> bool:
         """True where the meter moves the reading by more than its own accuracy."""
         p = self.profile
         accuracy = abs(node.volts) * p.meter_percent / 100 + p.meter_volts
@@ -131,17 +131,17 @@ def expect(profile: Profile, steps: int = 80, fault: Change | None = None) -> Ex
     heavier = scaled_load(circuit, params, 1.25)
     metered = with_meter(circuit, params, profile.meter_ohms)
     batch = stack([params, heavier, metered])
-    if fault is None:
-        ss = steady_state(circuit, batch, steps_per_period=steps)
-    else:
-        # A faulted board can be far from any formula; start from the healthy one and fall
-        # back to slower, surer starts (fieldtool.core.circuit.staged).
+    # Row 0 (the board itself) is solved first; the heavier load and the meter on each node
+    # are small changes from it and start from its waveforms (fieldtool.core.circuit.staged).
+    start = None
+    if fault is not None:
+        # A faulted board can be far from any formula: start from the healthy board.
         healthy = steady_state(circuit, build_circuit(profile)[1], steps_per_period=steps)
         start = healthy.period if healthy.converged[0] else None
         alone = staged_steady_state(circuit, params, steps, start=start)
         if alone.converged[0]:
-            start = alone.period  # the meter and the heavier load are small changes from it
-        ss = staged_steady_state(circuit, batch, steps, start=start)
+            start = alone.period
+    ss = staged_steady_state(circuit, batch, steps, start=start)
     if not ss.converged.all():
         raise SolverError(
             f"{profile.path}: periodic steady state not reached (residual "
@@ -157,7 +157,7 @@ def expect(profile: Profile, steps: int = 80, fault: Change | None = None) -> Ex
     for j, i in enumerate(idx):
         wave = per.v[0, :, i]
         nodes.append(
-            NodeReading(
+            NodeExpectation(
                 node=circuit.node_names[i],
                 label=circuit.labels.get(circuit.node_names[i], ""),
                 volts=float(avg[2 + j, i]),

@@ -24,6 +24,8 @@ from fieldtool.core.circuit.spec import (
     WAVEFORMS,
     CapacitorSpec,
     DiodeSpec,
+    InstrumentSpec,
+    LoadResistor,
     Profile,
 )
 from fieldtool.core.circuit.topologies import TOPOLOGIES
@@ -178,6 +180,95 @@ def _capacitor(table: _Table, base: CapacitorSpec | None = None) -> CapacitorSpe
     return CapacitorSpec(farads, tol, esr, leak, dielectric)
 
 
+def _instruments(meter: _Table, scope: _Table) -> InstrumentSpec:
+    """The meter's AC, current and diode-test settings and the scope probe (defaults: spec)."""
+    d = InstrumentSpec()
+    m, s = meter, scope
+    spec = InstrumentSpec(
+        ac_input_ohms=m.number("ac_input_ohms", d.ac_input_ohms, positive=True),
+        ac_input_farads=m.number("ac_input_farads", d.ac_input_farads, minimum=0.0, below=1e-6),
+        ac_bandwidth_hz=m.number("ac_bandwidth_hz", d.ac_bandwidth_hz, positive=True),
+        ac_accuracy_percent=m.number(
+            "ac_accuracy_percent", d.ac_accuracy_percent, minimum=0.0, below=50.0
+        ),
+        ac_accuracy_volts=m.number("ac_accuracy_volts", d.ac_accuracy_volts, minimum=0.0),
+        burden_ohms=m.number(
+            "burden_ohms", d.burden_ohms, minimum=0.0, below=1e6, hint=" (current range shunt)"
+        ),
+        current_accuracy_percent=m.number(
+            "current_accuracy_percent", d.current_accuracy_percent, minimum=0.0, below=50.0
+        ),
+        current_accuracy_amps=m.number(
+            "current_accuracy_amps", d.current_accuracy_amps, minimum=0.0
+        ),
+        diode_test_amps=m.number(
+            "diode_test_amps", d.diode_test_amps, positive=True, below=0.1, hint=" (e.g. 1e-3)"
+        ),
+        diode_test_volts=m.number(
+            "diode_test_volts",
+            d.diode_test_volts,
+            positive=True,
+            below=20.0,
+            hint=" (the diode test's open-circuit voltage, e.g. 3.0)",
+        ),
+        diode_accuracy_percent=m.number(
+            "diode_accuracy_percent", d.diode_accuracy_percent, minimum=0.0, below=50.0
+        ),
+        diode_accuracy_volts=m.number("diode_accuracy_volts", d.diode_accuracy_volts, minimum=0.0),
+        diode_settle_s=m.number("diode_settle_s", d.diode_settle_s, positive=True),
+        probe_ohms=s.number("probe_ohms", d.probe_ohms, positive=True),
+        probe_farads=s.number("probe_farads", d.probe_farads, minimum=0.0, below=1e-6),
+        scope_accuracy_percent=s.number(
+            "accuracy_percent", d.scope_accuracy_percent, minimum=0.0, below=50.0
+        ),
+        scope_accuracy_volts=s.number("accuracy_volts", d.scope_accuracy_volts, minimum=0.0),
+    )
+    m.finish()
+    s.finish()
+    return spec
+
+
+MAX_TEST_LOADS = 8
+
+
+def _test_loads(path: str, data: Any) -> tuple[LoadResistor, ...]:
+    """``[test_loads] ohms = [...]`` and optionally ``rated_watts = [...]``, one per load."""
+    if data is None:
+        return ()
+    t = _Table(path, "test_loads", data)
+    example = "e.g. `ohms = [10e3, 100e3]`"
+    ohms = _number_list(t, "ohms", example)
+    if ohms is None:
+        t.fail("ohms", f"is missing: list the test load resistances, {example}")
+    if not 1 <= len(ohms) <= MAX_TEST_LOADS:
+        t.fail("ohms", f"has {len(ohms)} values, expected 1 to {MAX_TEST_LOADS}; {example}")
+    if len(set(ohms)) != len(ohms):
+        t.fail("ohms", "lists a resistance twice; list each test load once")
+    watts = _number_list(t, "rated_watts", "e.g. `rated_watts = [0.25, 0.5]`, one per load")
+    if watts is not None and len(watts) != len(ohms):
+        t.fail("rated_watts", f"has {len(watts)} values for {len(ohms)} loads: give one per load")
+    t.finish()
+    rated = watts if watts is not None else [None] * len(ohms)
+    return tuple(LoadResistor(o, w) for o, w in zip(ohms, rated, strict=True))
+
+
+def _number_list(t: _Table, key: str, example: str) -> list[float] | None:
+    """A list of positive finite numbers, or None when the key is absent."""
+    t.used.add(key)
+    if key not in t.data:
+        return None
+    values = t.data[key]
+    if not isinstance(values, list):
+        t.fail(key, f"is {values!r}, expected a list of numbers; {example}")
+    out = []
+    for v in values:
+        ok = not isinstance(v, bool) and isinstance(v, int | float)
+        if not ok or not math.isfinite(v) or v <= 0:
+            t.fail(key, f"holds {v!r}, expected positive numbers only; {example}")
+        out.append(float(v))
+    return out
+
+
 def _string_map(path: str, name: str, data: Any) -> dict[str, str]:
     if not isinstance(data, dict) or not all(isinstance(v, str) for v in data.values()):
         raise ProfileError(f'{path}: [{name}] expected a table of names = "text"')
@@ -219,6 +310,8 @@ _SECTIONS = (
     "capacitor",
     "load",
     "meter",
+    "scope",
+    "test_loads",
     "bleeder",
     "designators",
     "labels",
@@ -318,7 +411,8 @@ def profile_from_dict(data: dict[str, Any], path: str = "<profile>", digest: str
     meter_range = meter.number(
         "range_volts", required=False, positive=True, hint=" (the highest |V| it shows, or omit)"
     )
-    meter.finish()
+    instruments = _instruments(meter, _Table(path, "scope", data.get("scope", {})))
+    test_loads = _test_loads(path, data.get("test_loads"))
 
     designators = _string_map(path, "designators", data.get("designators", {}))
     labels = _string_map(path, "labels", data.get("labels", {}))
@@ -369,6 +463,8 @@ def profile_from_dict(data: dict[str, Any], path: str = "<profile>", digest: str
         labels=labels,
         digest=digest,
         meter_range_volts=meter_range,
+        instruments=instruments,
+        test_loads=test_loads,
     )
     _check_names(profile)
     return profile

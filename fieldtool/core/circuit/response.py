@@ -44,15 +44,14 @@ def linear_response(
     """Run one period from the steady state ``x0`` (B, m) with the variational equations."""
     net = Network(circuit, params)
     times = period_grid(circuit, steps_per_period)
-    B, m = x0.shape
-    n, k = circuit.n, len(circuit.diode_refs)
+    m = x0.shape[1]
+    k = len(circuit.diode_refs)
     c = m - circuit.stray_caps
     probe = np.array(circuit.probe_nodes) - 1
     P = len(probe)
     drive = [i for i, s in enumerate(circuit.sources) if s.kind != "dc"]
     supply = [i for i, s in enumerate(circuit.sources) if s.kind == "dc"]
     ac = any(s.kind == "sine" for s in circuit.sources) or not supply
-    q = c + k + 2 + P
     p = params
     src_all = net.sources_on(times[1:])  # (B, T, s)
     inj = net.injections(src_all)
@@ -66,6 +65,47 @@ def linear_response(
         d_sup[:, :, i] = src_all[:, :, i]
     inj_supply = (p.s_g[:, None, :] * d_sup) @ net.Es
 
+    steps = np.diff(times)
+    board = net.board()
+    if board is not None:
+        phi, avg, v_avg, v_min, v_max = board.response(
+            steps, inj, inj_drive, inj_supply, x0, c, probe
+        )
+    else:
+        phi, avg, v_avg, v_min, v_max = _variational(
+            net, x0, steps, inj, inj_drive, inj_supply, c, probe
+        )
+    M = phi[:, :, :m]
+    lift = np.linalg.solve(np.eye(m)[None] - M, phi[:, :, m:])  # δx0 per unit θ
+    total = avg[:, :, :m] @ lift + avg[:, :, m:]
+    th = total[:, :, c + k + 2 :]
+    return Response(
+        avg=v_avg,
+        ripple=v_max - v_min,
+        thevenin_ohms=th[:, np.arange(P), np.arange(P)],
+        d_cap=total[:, :, :c],
+        d_diode=total[:, :, c : c + k],
+        d_drive=total[:, :, c + k],
+        d_supply=total[:, :, c + k + 1],
+    )
+
+
+def _variational(
+    net: Network,
+    x0: np.ndarray,
+    steps: np.ndarray,
+    inj: np.ndarray,
+    inj_drive: np.ndarray,
+    inj_supply: np.ndarray,
+    c: int,
+    probe: np.ndarray,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """The numpy reference of the kernel's ``ft_response``: (phi, avg, v_avg, v_min, v_max)."""
+    p = net.params
+    B, m = x0.shape
+    n, k = net.circuit.n, len(net.circuit.diode_refs)
+    P = len(probe)
+    q = c + k + 2 + P
     state = StepState(np.zeros((B, n)), np.zeros((B, k)))
     phi = np.zeros((B, m, m + q))
     phi[:, np.arange(m), np.arange(m)] = 1.0
@@ -74,8 +114,7 @@ def linear_response(
     v_min = np.full((B, P), np.inf)
     v_max = np.full((B, P), -np.inf)
     x = x0.copy()
-    steps = np.diff(times)
-    period = times[-1]
+    period = steps.sum()
     unit = np.zeros((n, P))
     unit[probe, np.arange(P)] = 1.0
     for t, h in enumerate(steps):
@@ -110,16 +149,4 @@ def linear_response(
         new_phi[:, idx, m + idx] += (da * across)[:, :c]
         phi = new_phi
         x = x + a * across
-    M = phi[:, :, :m]
-    lift = np.linalg.solve(np.eye(m)[None] - M, phi[:, :, m:])  # δx0 per unit θ
-    total = avg[:, :, :m] @ lift + avg[:, :, m:]
-    th = total[:, :, c + k + 2 :]
-    return Response(
-        avg=v_avg,
-        ripple=v_max - v_min,
-        thevenin_ohms=th[:, np.arange(P), np.arange(P)],
-        d_cap=total[:, :, :c],
-        d_diode=total[:, :, c : c + k],
-        d_drive=total[:, :, c + k],
-        d_supply=total[:, :, c + k + 1],
-    )
+    return phi, avg, v_avg, v_min, v_max

@@ -36,6 +36,18 @@ CAUTION = (
     "Estimates only: local codes and licensed practice come first."
 )
 
+TEST_LOAD_CAUTION = (
+    "Clip a test load on only with the board off and discharged, then power up; use a resistor "
+    "rated for the output voltage and for the power shown, keep clear of it while powered, and "
+    "discharge again before unclipping it. Local codes and licensed practice come first."
+)
+POWER_OFF_CAUTION = (
+    "Diode tests need the board off: disconnect the supply, discharge every capacitor through a "
+    "rated resistor, verify every node reads below {safe:g} V with the meter on DC volts, then "
+    "switch to diode test. Re-measure before touching: dielectric absorption can bring back "
+    "several percent. Local codes and licensed practice come first."
+)
+
 
 @dataclass(frozen=True)
 class CapacitorCharge:

@@ -18,6 +18,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from fieldtool.core.circuit import kernel
 from fieldtool.core.circuit.netlist import Circuit, Params
 from fieldtool.core.circuit.topologies import topology_named
 from fieldtool.core.circuit.topologies.base import StartCharge
@@ -64,7 +65,11 @@ def waveform_shape(kind: str, times: np.ndarray, circuit: Circuit) -> np.ndarray
 
 
 class Network:
-    """Matrices of one circuit for a batch of variants, reused across every time step."""
+    """Matrices of one circuit for a batch of variants, reused across every time step.
+
+    The dense per-variant matrices are built only when the numpy reference needs them; the
+    compiled kernel takes the element values as they are (``board()``).
+    """
 
     def __init__(self, circuit: Circuit, params: Params, reltol: float = RELTOL) -> None:
         self.circuit, self.params, self.reltol = circuit, params, reltol
@@ -74,19 +79,51 @@ class Network:
         self.Es = np.zeros((len(circuit.sources), n))
         for i, s in enumerate(circuit.sources):
             self.Es[i, s.node - 1] = 1.0
-        self.Pd = _outer(self.Ad)
-        self.Pc = _outer(self.Ac)
-        b = params.batch
-        g = params.d_gp @ self.Pd + params.c_gl @ self.Pc + params.s_g @ _outer(self.Es)
-        self.G_lin = g.reshape(b, n, n) + GMIN * np.eye(n)
-        idx = np.arange(n)
-        self.G_lin[:, idx, idx] += params.g_shunt
         self.vcrit = params.d_nvt * np.log(
             params.d_nvt / (np.sqrt(2.0) * np.maximum(params.d_is, 1e-300))
         )
         self._h_cache: dict[float, tuple[np.ndarray, np.ndarray, np.ndarray]] = {}
         self.kinds = [s.kind for s in circuit.sources]
         self.has_sink = bool(np.any(params.i_load != 0))
+        self._dense: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
+        self._board: kernel.Board | None = None
+
+    def _matrices(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        if self._dense is None:
+            n, p = self.circuit.n, self.params
+            Pd, Pc = _outer(self.Ad), _outer(self.Ac)
+            g = p.d_gp @ Pd + p.c_gl @ Pc + p.s_g @ _outer(self.Es)
+            G = g.reshape(p.batch, n, n) + GMIN * np.eye(n)
+            idx = np.arange(n)
+            G[:, idx, idx] += p.g_shunt
+            self._dense = (Pd, Pc, G)
+        return self._dense
+
+    @property
+    def Pd(self) -> np.ndarray:
+        """Diode stamps: row i is the flattened outer product of diode i's incidence."""
+        return self._matrices()[0]
+
+    @property
+    def Pc(self) -> np.ndarray:
+        """Capacitor stamps, as ``Pd``."""
+        return self._matrices()[1]
+
+    @property
+    def G_lin(self) -> np.ndarray:
+        """(B, n, n) conductances that do not change with the step or the diodes."""
+        return self._matrices()[2]
+
+    def board(self) -> kernel.Board | None:
+        """The batch laid out for the compiled kernel, or None where it is not in use."""
+        if not kernel.available():
+            return None
+        if self._board is None:
+            p = self.params
+            self._board = kernel.Board(
+                self.circuit, p, p.s_g @ self.Es, self.vcrit, GMIN, VNTOL, self.reltol, MAX_NEWTON
+            )
+        return self._board
 
     def sources_on(self, times: np.ndarray) -> np.ndarray:
         """Source voltages (B, T, s) at the given times."""
@@ -222,6 +259,13 @@ def step(
     Returns the new capacitor voltages, their sensitivity to the old ones (or None) and the
     number of Newton iterations.
     """
+    board = net.board()
+    if board is not None:
+        _own_state(state)
+        _, X, _, S, its = board.period(
+            np.array([h]), b_src[:, None, :], x_prev, state.v, state.vj, None, sens
+        )
+        return X[:, 0], S, int(its.max())
     _, gc, a = net.for_step(h)
     J, it = newton(net, x_prev, state, b_src, h)
     v = state.v
@@ -233,6 +277,12 @@ def step(
     m = S.shape[1]
     S[:, np.arange(m), np.arange(m)] += 1.0 - a
     return x_new, S, it
+
+
+def _own_state(state: StepState) -> None:
+    """Give ``state`` contiguous arrays of its own, which the kernel updates in place."""
+    state.v = np.array(state.v, dtype=np.float64, order="C")
+    state.vj = np.array(state.vj, dtype=np.float64, order="C")
 
 
 @dataclass(frozen=True)
@@ -263,6 +313,16 @@ def run_period(
     With ``guess`` (an earlier period on the same grid), each step's Newton iteration starts
     from that period's solution at the same instant instead of from the previous step.
     """
+    SRC = net.sources_on(times[1:])
+    inj = net.injections(SRC)
+    steps = np.diff(times)
+    board = net.board()
+    if board is not None:
+        _own_state(state)
+        V, X, VJ, M, its = board.period(
+            steps, inj, x0, state.v, state.vj, None if guess is None else (guess.v, guess.vj), sens
+        )
+        return Period(times, x0, X[:, -1], V, X, SRC, M, int(its.max(initial=0)), VJ)
     B, m = x0.shape
     T = len(times) - 1
     n = net.circuit.n
@@ -270,9 +330,6 @@ def run_period(
     VJ = np.empty((B, T, state.vj.shape[1]))
     X = np.empty((B, T, m))
     M = np.broadcast_to(np.eye(m), (B, m, m)).copy() if sens else None
-    SRC = net.sources_on(times[1:])
-    inj = net.injections(SRC)
-    steps = np.diff(times)
     x = x0
     total = 0
     for k in range(T):

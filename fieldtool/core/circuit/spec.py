@@ -42,6 +42,42 @@ class CapacitorSpec:
 
 
 @dataclass(frozen=True)
+class InstrumentSpec:
+    """The instruments beyond the DC voltmeter: AC volts, current, diode test, the scope.
+
+    Defaults are common practice for a handheld true-RMS meter and a 10× passive scope probe
+    (no source; values from memory, each overridable in the profile's ``[meter]`` and
+    ``[scope]`` tables).
+    """
+
+    ac_input_ohms: float = 1e6  # AC volts input resistance, after its DC-blocking capacitor
+    ac_input_farads: float = 100e-12  # in parallel with the input resistance
+    ac_bandwidth_hz: float = 100e3  # −3 dB frequency of a first-order roll-off
+    ac_accuracy_percent: float = 1.0
+    ac_accuracy_volts: float = 0.003
+    burden_ohms: float = 2.0  # current range shunt and fuse: about 1–2 mV per mA
+    current_accuracy_percent: float = 1.0
+    current_accuracy_amps: float = 1e-6
+    diode_test_amps: float = 1e-3  # test current of the diode-test mode
+    diode_test_volts: float = 3.0  # its open-circuit voltage: above it the meter shows OL
+    diode_accuracy_percent: float = 1.0
+    diode_accuracy_volts: float = 0.002
+    diode_settle_s: float = 3.0  # longer than this to settle: "lift one leg"
+    probe_ohms: float = 10e6  # scope probe, 10× passive
+    probe_farads: float = 12e-12
+    scope_accuracy_percent: float = 3.0  # vertical gain accuracy
+    scope_accuracy_volts: float = 0.001  # a fraction of a division on the most sensitive range
+
+
+@dataclass(frozen=True)
+class LoadResistor:
+    """A test load resistor kept for the board: its resistance and power rating."""
+
+    ohms: float
+    rated_watts: float | None = None
+
+
+@dataclass(frozen=True)
 class Profile:
     """Everything the tool knows about one board type."""
 
@@ -77,6 +113,8 @@ class Profile:
     labels: dict[str, str] = field(default_factory=dict)
     digest: str = ""
     meter_range_volts: float | None = None  # beyond it the meter shows overload; None: no limit
+    instruments: InstrumentSpec = field(default_factory=InstrumentSpec)
+    test_loads: tuple[LoadResistor, ...] = ()  # resistors kept for clipping on the output
 
     @property
     def thermal_volts(self) -> float:

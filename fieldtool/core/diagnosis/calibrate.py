@@ -22,7 +22,7 @@ from fieldtool.core.circuit.response import linear_response
 from fieldtool.core.circuit.solver import steady_state
 from fieldtool.core.circuit.topologies import topology_of
 from fieldtool.core.errors import InputError, SolverError
-from fieldtool.core.readings import NodeReading
+from fieldtool.core.measurement import DC, Measurement
 
 MAX_ITERATIONS = 12
 BACKTRACK_STEPS = 6
@@ -84,7 +84,7 @@ def _predict(profile: Profile, nodes: list[int]) -> tuple[np.ndarray, np.ndarray
     return v, jac[nodes]
 
 
-def calibrate(profile: Profile, readings: Sequence[NodeReading]) -> Calibration:
+def calibrate(profile: Profile, readings: Sequence[Measurement]) -> Calibration:
     """Least-squares fit of drive swing, diode drop (and supply) to a known-good board.
 
     Gauss–Newton with a rank-revealing step: directions of the parameter space that the
@@ -98,13 +98,13 @@ def calibrate(profile: Profile, readings: Sequence[NodeReading]) -> Calibration:
     """
     circuit, _ = build_circuit(profile)
     names = [circuit.name(i) for i in circuit.probe_nodes]
-    used = [r for r in readings if r.volts is not None]
+    used = [r for r in readings if r.quantity == DC and r.value is not None]
     if len(used) < 2:
         raise InputError("calibration needs readings at two or more nodes (OL rows do not count)")
-    cols = [names.index(r.node) for r in used]
-    y = np.array([r.volts for r in used], dtype=float)
+    cols = [names.index(r.at) for r in used]
+    y = np.array([r.value for r in used], dtype=float)
     sigma = (np.abs(y) * profile.meter_percent / 100 + profile.meter_volts) * RECT
-    with_supply = topology_of(profile).dc_input and "S0" in [r.node for r in used]
+    with_supply = topology_of(profile).dc_input and "S0" in [r.at for r in used]
     theta = np.zeros(3 if with_supply else 2)
 
     def misfit(v: np.ndarray) -> float:
@@ -151,7 +151,7 @@ def calibrate(profile: Profile, readings: Sequence[NodeReading]) -> Calibration:
         drive_scale=float(np.exp(theta[0])),
         diode_shift_v=float(theta[1]),
         supply_scale=float(np.exp(theta[2])) if with_supply else None,
-        residuals={r.node: float(e) for r, e in zip(used, res, strict=True)},
+        residuals={r.at: float(e) for r, e in zip(used, res, strict=True)},
         rms_volts=float(np.sqrt(np.mean(res**2))),
         chi2=float(((res / sigma) ** 2).sum()),
         iterations=iterations,

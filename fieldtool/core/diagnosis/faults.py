@@ -102,6 +102,8 @@ def parse_fault(spec: str, profile: Profile) -> Fault:
         if has_value:
             raise InputError(f"fault {spec!r}: mode {mode.name} takes no severity; drop '='")
         return Fault(target, mode.name)
+    if not has_value and mode.default_severity is not None:
+        return Fault(target, mode.name)  # the mode's typical severity (a short's ohm)
     if not has_value:
         raise InputError(
             f"fault {spec!r}: mode {mode.name} needs a severity in {mode.unit}, "

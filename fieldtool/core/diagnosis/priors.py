@@ -70,6 +70,11 @@ class Priors:
         """Prior probability of one hypothesis by key."""
         return float(self.probability[self.keys.index(key)])
 
+    @property
+    def from_fleet(self) -> bool:
+        """True when confirmed failures of the fleet changed any of them."""
+        return any(s.startswith("fleet:") for s in self.source)
+
 
 def _shares(profile: Profile, hyp: Hypothesis) -> float:
     if hyp.kind == "diode":

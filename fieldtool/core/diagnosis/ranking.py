@@ -27,7 +27,7 @@ from fieldtool.core.diagnosis.dictionary import RIPPLE_SHARE, FaultDictionary
 from fieldtool.core.diagnosis.faults import Fault, describe
 from fieldtool.core.diagnosis.priors import Priors, published_priors
 from fieldtool.core.errors import InputError
-from fieldtool.core.readings import NodeReading
+from fieldtool.core.measurement import DC, RIPPLE_PP, Measurement
 
 CONFIDENT = 0.9  # stop suggesting probes once the top hypothesis passes this
 NO_FIT_P = 1e-3  # below this the best hypothesis does not explain the readings
@@ -120,31 +120,39 @@ class Diagnosis:
 # --- likelihood ---------------------------------------------------------------------------
 
 
-def _columns(d: FaultDictionary, readings: Sequence[NodeReading]):
-    """Measured columns, values, predicted means and spreads (rows × readings)."""
+def _columns(d: FaultDictionary, readings: Sequence[Measurement]):
+    """Measured columns, values, predicted means and spreads (rows × readings).
+
+    A ``dc`` reading is a node's column of the dictionary; a ``ripple-pp`` reading is
+    compared with the dictionary's ripple at that node. Other kinds are noted and left out
+    until the dictionary predicts them.
+    """
     cols, ys, mus, sds, names, ignored = [], [], [], [], [], []
     seen = set()
     for r in readings:
-        if r.node not in d.nodes:
-            raise InputError(f"node {r.node!r} is not on {d.profile.name} ({', '.join(d.nodes)})")
-        if r.node in seen:
-            raise InputError(f"node {r.node} is read twice; keep one reading a node")
-        seen.add(r.node)
-        j = d.node_index(r.node)
-        if r.volts is None:
-            ignored.append(f"{r.node}: OL (over range) carries no value; set a higher range")
+        if r.at not in d.nodes:
+            raise InputError(f"node {r.at!r} is not on {d.profile.name} ({', '.join(d.nodes)})")
+        if (r.at, r.quantity) in seen:
+            raise InputError(f"node {r.at} is read twice; keep one reading a node")
+        seen.add((r.at, r.quantity))
+        j = d.node_index(r.at)
+        if r.quantity not in (DC, RIPPLE_PP):
+            ignored.append(f"{r.at}: {r.quantity.words} readings are not used by the diagnosis")
             continue
-        cols.append(j)
-        names.append(r.node)
-        ys.append(r.volts)
-        mus.append(d.mean[:, j])
-        sds.append(np.sqrt(d.sigma[:, j] ** 2 + d.meter_sigma(r.volts) ** 2))
-        if r.ripple_vpp is not None:
-            names.append(f"{r.node} ripple")
-            ys.append(r.ripple_vpp)
+        if r.value is None:
+            ignored.append(f"{r.at}: OL (over range) carries no value; set a higher range")
+            continue
+        ys.append(r.value)
+        if r.quantity == DC:
+            cols.append(j)
+            names.append(r.at)
+            mus.append(d.mean[:, j])
+            sds.append(np.sqrt(d.sigma[:, j] ** 2 + d.meter_sigma(r.value) ** 2))
+        else:
+            names.append(f"{r.at} ripple")
             rip = d.ripple[:, j]
             mus.append(rip)
-            sds.append(RIPPLE_SHARE * rip + RIPPLE_FLOOR_V + 0.02 * abs(r.ripple_vpp))
+            sds.append(RIPPLE_SHARE * rip + RIPPLE_FLOOR_V + 0.02 * abs(r.value))
     if not ys:
         R = len(d.mean)
         return cols, np.zeros(0), np.zeros((R, 0)), np.ones((R, 0)), names, ignored
@@ -184,9 +192,9 @@ def _entropy(p: np.ndarray) -> np.ndarray:
 
 
 def diagnose(
-    d: FaultDictionary, readings: Sequence[NodeReading], priors: Priors | None = None
+    d: FaultDictionary, readings: Sequence[Measurement], priors: Priors | None = None
 ) -> Diagnosis:
-    """Rank every hypothesis from the readings taken; suggest the next node to probe."""
+    """Rank every hypothesis from the measurements taken; suggest the next node to probe."""
     profile = d.profile
     priors = priors or published_priors(profile, d.hypotheses)
     cols, y, mu, sd, names, ignored = _columns(d, readings)

@@ -6,13 +6,13 @@ Re-exported by ``fieldtool.core.history``; import them from there.
 from __future__ import annotations
 
 import dataclasses
-import math
 import uuid
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any, ClassVar
 
 from fieldtool.core.errors import FieldtoolError
+from fieldtool.core.measurement import DC, Measurement, Source
 
 OUTCOMES = ("fixed", "not-fixed", "escalated")
 
@@ -58,31 +58,26 @@ class SessionOpened:
 
 @dataclass(frozen=True)
 class Reading:
-    """A node voltage measured during diagnosis; ``volts`` is None on overload."""
+    """A measurement taken while finding the fault."""
 
     kind: ClassVar[str] = "reading"
-    node: str
-    volts: float | None
-    unit: str = "V"
-    source: str = "typed"
-    spread: float | None = None
-    overload: bool = False
-    ripple_vpp: float | None = None
+    measurement: Measurement
 
     def __post_init__(self) -> None:
-        _check_measurement(self)
+        if self.measurement.at is None:
+            raise HistoryError(f"a {self.kind} record needs the place it was taken at")
 
 
 @dataclass(frozen=True)
 class Verification(Reading):
-    """A node voltage measured after a repair to confirm it (same fields as a reading)."""
+    """A measurement taken after a repair to confirm it (same fields as a reading)."""
 
     kind: ClassVar[str] = "verification"
 
 
 @dataclass(frozen=True)
-class Suspect:
-    """One ranked suspect: a part, how it failed, and its probability."""
+class SnapshotSuspect:
+    """One suspect as a diagnosis snapshot keeps it: the part ("" for none), mode, odds."""
 
     designator: str
     mode: str
@@ -90,11 +85,11 @@ class Suspect:
 
 
 @dataclass(frozen=True)
-class Diagnosis:
-    """The top suspects the engine ranked from the readings so far."""
+class DiagnosisSnapshot:
+    """The top suspects the engine ranked from the readings so far, as saved with a repair."""
 
     kind: ClassVar[str] = "diagnosis"
-    suspects: tuple[Suspect, ...]
+    suspects: tuple[SnapshotSuspect, ...]
 
 
 @dataclass(frozen=True)
@@ -123,36 +118,76 @@ class SessionClosed:
             )
 
 
-Event = SessionOpened | Reading | Verification | Diagnosis | Action | SessionClosed
+Event = SessionOpened | Reading | Verification | DiagnosisSnapshot | Action | SessionClosed
 EVENT_TYPES: dict[str, type] = {
-    t.kind: t for t in (SessionOpened, Reading, Verification, Diagnosis, Action, SessionClosed)
+    t.kind: t
+    for t in (SessionOpened, Reading, Verification, DiagnosisSnapshot, Action, SessionClosed)
 }
+# The record schema each kind is written with (see records.py). Readings and verifications
+# carry a whole Measurement since schema 2; the other kinds are unchanged since schema 1, so
+# older tools still read them.
+SCHEMAS: dict[str, int] = {Reading.kind: 2, Verification.kind: 2}
+UNSETTLED = " (unsettled)"  # how schema 1 marked a value taken before it settled
 
 
-def _check_measurement(m: Reading) -> None:
-    if m.volts is None and not m.overload:
-        raise HistoryError(f"{m.kind} at {m.node}: no volts given and not marked overload")
-    if m.volts is not None and not math.isfinite(m.volts):
-        raise HistoryError(f"{m.kind} at {m.node}: volts must be a finite number")
-    if m.ripple_vpp is not None and not (math.isfinite(m.ripple_vpp) and m.ripple_vpp >= 0):
-        raise HistoryError(f"{m.kind} at {m.node}: ripple must be a finite number of volts >= 0")
+def schema_for(kind: str) -> int:
+    """The schema this version writes (and reads up to) for records of one kind."""
+    return SCHEMAS.get(kind, 1)
+
+
+def measurement_from_v1(fields: Mapping[str, Any]) -> Measurement:
+    """A schema-1 reading's fields (node, volts, source, spread, overload) as a Measurement.
+
+    Schema 1 marked a value taken before it settled by appending " (unsettled)" to the
+    source, and named a source by text: ``typed``, ``file NAME`` or the meter's identity.
+    Its ``ripple_vpp`` is not part of the measurement (it stays in the record's fields).
+    """
+    node, volts, overload = fields.get("node"), fields.get("volts"), fields.get("overload")
+    if not isinstance(node, str) or not node:
+        raise HistoryError(f"a schema-1 reading names no node ({node!r})")
+    if volts is None and not overload:
+        raise HistoryError(f"reading at {node}: no volts given and not marked overload")
+    text = fields.get("source", "typed")
+    text = text if isinstance(text, str) else str(text)
+    settled = not text.endswith(UNSETTLED)
+    text = text.removesuffix(UNSETTLED)
+    if text == "typed":
+        source = Source("typed")
+    elif text.startswith("file "):
+        source = Source("file", text.removeprefix("file "))
+    else:
+        source = Source("meter", text)
+    return Measurement(
+        node,
+        DC,
+        None if overload else volts,
+        source,
+        spread=fields.get("spread"),
+        settled=settled,
+    )
 
 
 def event_fields(event: Event) -> dict[str, Any]:
     """The JSON fields an event contributes to its record."""
+    if isinstance(event, Reading):
+        return event.measurement.to_fields()
     return dataclasses.asdict(event)
 
 
-def event_from_fields(kind: str, fields: Mapping[str, Any]) -> Event | None:
+def event_from_fields(kind: str, fields: Mapping[str, Any], schema: int = 1) -> Event | None:
     """Rebuild an event from stored fields, or None if the kind or fields are unknown."""
     cls = EVENT_TYPES.get(kind)
     if cls is None:
         return None
-    names = {f.name for f in dataclasses.fields(cls)}
-    args = {k: v for k, v in fields.items() if k in names}
-    if cls is Diagnosis:
-        args["suspects"] = tuple(Suspect(**s) for s in args.get("suspects", ()))
     try:
+        if issubclass(cls, Reading):
+            if schema >= 2:
+                return cls(Measurement.from_fields(fields))
+            return cls(measurement_from_v1(fields))
+        names = {f.name for f in dataclasses.fields(cls)}
+        args = {k: v for k, v in fields.items() if k in names}
+        if cls is DiagnosisSnapshot:
+            args["suspects"] = tuple(SnapshotSuspect(**s) for s in args.get("suspects", ()))
         return cls(**args)
-    except (TypeError, HistoryError):
+    except (TypeError, FieldtoolError):
         return None

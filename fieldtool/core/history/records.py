@@ -1,6 +1,9 @@
-"""History records: the stored line's envelope, parsing a line, and UTC time stamps.
+"""History records: the stored line's envelope and parsing a line.
 
-Re-exported by ``fieldtool.core.history``; import them from there.
+Each record carries the ``schema`` its kind was written with (``events.schema_for``): a
+reading or verification is schema 2 (a whole ``Measurement``), every other kind schema 1. A
+record of a higher schema than this version knows for its kind is kept and shown as it is,
+never read as an event. Re-exported by ``fieldtool.core.history``; import them from there.
 """
 
 from __future__ import annotations
@@ -8,12 +11,10 @@ from __future__ import annotations
 import json
 from collections.abc import Callable
 from dataclasses import dataclass
-from datetime import UTC, datetime
 from typing import Any
 
-from fieldtool.core.history.events import Event, SessionOpened, event_from_fields
+from fieldtool.core.history.events import Event, SessionOpened, event_from_fields, schema_for
 
-SCHEMA = 1
 _BASE_KEYS = ("schema", "id", "time", "board", "profile", "kind")
 
 # --- records ------------------------------------------------------------------------------
@@ -53,7 +54,9 @@ class Record:
     @property
     def event(self) -> Event | None:
         """The typed event, or None for a kind or schema this tool does not know."""
-        return None if self.newer_schema else event_from_fields(self.kind, self.fields)
+        if self.newer_schema:
+            return None
+        return event_from_fields(self.kind, self.fields, self.schema)
 
 
 @dataclass(frozen=True)
@@ -73,28 +76,6 @@ class BoardHistory:
     board: str
     events: tuple[Record, ...]
     damaged: tuple[Damaged, ...]
-
-
-def now_utc() -> str:
-    """The current UTC time as ISO 8601 with a Z suffix."""
-    return format_time(datetime.now(UTC))
-
-
-def format_time(moment: datetime) -> str:
-    """A datetime as UTC ISO 8601 with microseconds and a Z suffix."""
-    if moment.tzinfo is None:
-        moment = moment.replace(tzinfo=UTC)
-    return moment.astimezone(UTC).strftime("%Y-%m-%dT%H:%M:%S.%fZ")
-
-
-def time_key(stamp: str) -> str:
-    """A sort key for a stored time; other ISO 8601 spellings are normalised to ours."""
-    if len(stamp) == 27 and stamp[-1] == "Z":
-        return stamp
-    try:
-        return format_time(datetime.fromisoformat(stamp))
-    except ValueError:
-        return stamp
 
 
 _DECODER = json.JSONDecoder()
@@ -161,7 +142,7 @@ def parse_record(text: str) -> Record | str:
         profile=profile if isinstance(profile, str) else str(profile),
         kind=kind,
         fields=obj,
-        newer_schema=schema > SCHEMA,
+        newer_schema=schema > schema_for(kind),
         session=session,
     )
 

@@ -34,18 +34,11 @@ from fieldtool.core.history.events import (
     SaveError,
     SessionOpened,
     event_fields,
+    schema_for,
 )
 from fieldtool.core.history.files import append_lines, fsync_dir, locked_file
-from fieldtool.core.history.records import (
-    SCHEMA,
-    BoardHistory,
-    Damaged,
-    Record,
-    format_time,
-    now_utc,
-    parse_lines,
-    time_key,
-)
+from fieldtool.core.history.records import BoardHistory, Damaged, Record, parse_lines
+from fieldtool.core.times import format_time, now_utc, time_key
 
 ENV_VAR = "FIELDTOOL_LOGS"
 
@@ -116,7 +109,7 @@ def _make_record(
     if isinstance(event, SessionOpened):
         session = event.session_id  # an opening record names its own session
     return Record(
-        schema=SCHEMA,
+        schema=schema_for(event.kind),
         id=record_id,
         time=stamp,
         board=serial,
@@ -243,13 +236,3 @@ def read_board(logs_dir: Path | str, serial: str) -> BoardHistory:
         damaged.extend(bad)
     records.sort(key=lambda r: time_key(r.time))
     return BoardHistory(board=serial, events=tuple(records), damaged=tuple(damaged))
-
-
-def last_session_open(history: BoardHistory) -> bool:
-    """True when the latest session on the board was opened and not yet closed."""
-    for record in reversed(history.events):
-        if record.kind == "session-closed":
-            return False
-        if record.kind == "session-opened":
-            return True
-    return False

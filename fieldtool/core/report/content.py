@@ -15,8 +15,9 @@ from typing import Any
 
 from fieldtool.core.circuit.profile import Profile
 from fieldtool.core.diagnosis.dictionary_cache import load_or_build
-from fieldtool.core.history import BoardHistory, HistoryError, Record, now_utc
+from fieldtool.core.history import BoardHistory, HistoryError, Reading, Record, now_utc
 from fieldtool.core.history.sessions import ConfirmedFailure, Session, confirmed_in
+from fieldtool.core.measurement import DC, Measurement
 
 CAUTIONS = (
     "A voltage multiplier stores charge and can hold a dangerous voltage long after "
@@ -112,11 +113,8 @@ def expectations_for(profile: Profile) -> Expectations:
     )
 
 
-def _row(record: Record, expectations: Expectations | None) -> Row:
-    f = record.fields
-    node = str(f.get("node", "?"))
-    volts = f.get("volts")
-    value = float(volts) if isinstance(volts, int | float) and not f.get("overload") else None
+def _row(measurement: Measurement, time: str, expectations: Expectations | None) -> Row:
+    node, value = str(measurement.at), measurement.value
     exp = expectations.get(node) if expectations else None
     if value is None:
         status = "over range"
@@ -129,16 +127,19 @@ def _row(record: Record, expectations: Expectations | None) -> Row:
     else:
         status = "in band"
     label = exp.label if exp else ""
-    return Row(node, label, value, exp, status, record.time)
+    return Row(node, label, value, exp, status, time)
 
 
 def _latest_per_node(records: list[Record], expectations: Expectations | None) -> tuple[Row, ...]:
-    latest: dict[str, Record] = {}
+    """The last DC reading at each node (records of any schema this version reads)."""
+    latest: dict[str, tuple[Measurement, str]] = {}
     for record in records:  # oldest first: a node probed again keeps its last reading
-        latest[str(record.fields.get("node", "?"))] = record
+        event = record.event
+        if isinstance(event, Reading) and event.measurement.quantity == DC:
+            latest[str(event.measurement.at)] = (event.measurement, record.time)
     order = [e.node for e in expectations.nodes] if expectations else []
     ranked = sorted(latest, key=lambda n: (order.index(n) if n in order else len(order), n))
-    return tuple(_row(latest[n], expectations) for n in ranked)
+    return tuple(_row(*latest[n], expectations) for n in ranked)
 
 
 def _suspects(session: Session) -> tuple[tuple[str, str, float], ...]:

@@ -23,6 +23,12 @@ PART_KINDS = ("diode", "capacitor")
 BOARD_TARGETS = ("drive", "supply", "load")
 NO_SEVERITY = (math.nan,)  # the grid of a mode without a severity
 IDEAL_DIODE_DROP = 0.6  # V, for scaling grids only (common practice, no source)
+SHORT_OHMS = 1.0  # a failed-short part reads about an ohm (common practice, no source)
+# Shorts from a burnt part (ohms) to a welded one (milliohms), mild to gross, five points
+# evenly spaced in log from 10 Ω to 10 mΩ (a factor of about 5.6 apart; common practice, no
+# source): each short costs five variants in the fault dictionary.
+SHORT_GRID_OHMS = (10.0, 1.78, 0.316, 0.0562, 0.01)
+SHORT_MAX_OHMS = 100.0  # above this a part is leaky, not shorted
 
 _EXAMPLES = {"ohms": "47k", "fraction": "0.3", "factor": "3"}
 
@@ -34,6 +40,7 @@ class FaultMode(ABC):
     applies_to: ClassVar[str]  # "diode" | "capacitor" | "drive" | "supply" | "load"
     unit: ClassVar[str | None]  # severity unit: "ohms" | "fraction" | "factor"; None: none
     words: ClassVar[str]  # plain words: "lost capacitance"
+    default_severity: ClassVar[float | None] = None  # used when a spec gives none (else needed)
 
     def available(self, profile: Profile) -> bool:
         """True when the mode can happen on this board (default: always)."""
@@ -78,6 +85,40 @@ class FaultMode(ABC):
         if self.unit == "factor":
             return f"(×{severity:g})"
         return ""
+
+
+class ShortMode(FaultMode):
+    """A part shorted: a low resistance across it, both ways.
+
+    How low varies from part to part and failure to failure (milliohms for a welded junction
+    or a metallised short, ohms for a burnt one), and what the board reads depends on it
+    wherever the short is comparable with the source resistances around it; so the dictionary
+    tries a range (``SHORT_GRID_OHMS``), marginalised like any other severity. A spec without
+    a value (``D5:short``) means a typical short of ``SHORT_OHMS``.
+    """
+
+    name = "short"
+    unit = "ohms"
+    words = "shorted"
+    default_severity = SHORT_OHMS
+
+    def grid(self, profile: Profile) -> tuple[float, ...]:
+        """10 Ω down to 10 mΩ, five points (mild to gross; ``SHORT_GRID_OHMS``)."""
+        return SHORT_GRID_OHMS
+
+    def severity_problem(self, value: float) -> str | None:
+        """A short is above 0 and at most 100 Ω; above that it is a leak."""
+        if not 0 < value <= SHORT_MAX_OHMS:
+            return (
+                f"{self.name} needs a resistance above 0 and at most {SHORT_MAX_OHMS:g} ohms "
+                f"(e.g. 50m); a higher one is a leak: use leaky"
+            )
+        return None
+
+    @staticmethod
+    def siemens(severity: float | None) -> float:
+        """The short's conductance: 1/``severity``, or 1/``SHORT_OHMS`` when none is given."""
+        return 1.0 / (SHORT_OHMS if severity is None else severity)
 
 
 def switching_ohms(profile: Profile) -> float:

@@ -1,27 +1,18 @@
-"""A shorted capacitor.
-
-The dielectric broken down: about an ohm across the capacitor.
-"""
+"""A shorted capacitor: the dielectric broken down (``base.ShortMode`` says how it is modelled)."""
 
 from __future__ import annotations
 
 from fieldtool.core.circuit.netlist import Circuit, Params
 from fieldtool.core.circuit.spec import Profile
-from fieldtool.core.diagnosis.modes.base import (
-    FaultMode,
-    capacitor_index,
-)
+from fieldtool.core.diagnosis.modes.base import SHORT_OHMS, ShortMode, capacitor_index
 
-SHORT_OHMS = 1.0  # a failed-short part reads about an ohm (common practice, no source)
+__all__ = ["SHORT_OHMS", "CapacitorShort"]
 
 
-class CapacitorShort(FaultMode):
+class CapacitorShort(ShortMode):
     """A shorted capacitor."""
 
-    name = "short"
     applies_to = "capacitor"
-    unit = None
-    words = "shorted"
 
     def apply(
         self,
@@ -31,5 +22,5 @@ class CapacitorShort(FaultMode):
         severity: float | None,
         profile: Profile,
     ) -> None:
-        """About an ohm across the capacitor."""
-        params.c_gl[:, capacitor_index(circuit, target)] = 1.0 / SHORT_OHMS
+        """``severity`` ohms (default ``SHORT_OHMS``) across the capacitor."""
+        params.c_gl[:, capacitor_index(circuit, target)] = self.siemens(severity)

@@ -1,27 +1,18 @@
-"""A shorted diode.
-
-The junction broken down: about an ohm across the diode, both ways.
-"""
+"""A shorted diode: the junction broken down (``base.ShortMode`` says how it is modelled)."""
 
 from __future__ import annotations
 
 from fieldtool.core.circuit.netlist import Circuit, Params
 from fieldtool.core.circuit.spec import Profile
-from fieldtool.core.diagnosis.modes.base import (
-    FaultMode,
-    diode_index,
-)
+from fieldtool.core.diagnosis.modes.base import SHORT_OHMS, ShortMode, diode_index
 
-SHORT_OHMS = 1.0  # a failed-short part reads about an ohm (common practice, no source)
+__all__ = ["SHORT_OHMS", "DiodeShort"]
 
 
-class DiodeShort(FaultMode):
+class DiodeShort(ShortMode):
     """A shorted diode."""
 
-    name = "short"
     applies_to = "diode"
-    unit = None
-    words = "shorted"
 
     def apply(
         self,
@@ -31,5 +22,5 @@ class DiodeShort(FaultMode):
         severity: float | None,
         profile: Profile,
     ) -> None:
-        """About an ohm across the diode."""
-        params.d_gp[:, diode_index(circuit, target)] = 1.0 / SHORT_OHMS
+        """``severity`` ohms (default ``SHORT_OHMS``) across the diode."""
+        params.d_gp[:, diode_index(circuit, target)] = self.siemens(severity)

@@ -1,0 +1,124 @@
+"""The one measurement type: its quantities, sources, checks, stored form and readings file."""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+from hypothesis import given
+from hypothesis import strategies as st
+
+from fieldtool.core.errors import InputError
+from fieldtool.core.measurement import (
+    DC,
+    QUANTITIES,
+    RIPPLE_PP,
+    TAKEN_AT,
+    Measurement,
+    Quantity,
+    Source,
+    quantity,
+)
+from fieldtool.core.readings import parse_readings_csv, readings_csv
+
+NODES = ("S0", "P1", "S1", "P2", "S2")
+
+
+def test_the_registry_holds_data_not_classes():
+    assert QUANTITIES == {"dc": DC, "ripple-pp": RIPPLE_PP}
+    for q in QUANTITIES.values():
+        assert type(q) is Quantity and q.taken_at in TAKEN_AT and q.unit == "V" and q.powered
+    assert quantity(" DC ") is DC
+    with pytest.raises(InputError, match="unknown measurement kind 'ac-volts'; known kinds: dc"):
+        quantity("ac-volts")
+
+
+def test_a_new_kind_is_one_more_entry():
+    """What the next kinds need fits the same shape: a test load's ohms carried per reading,
+    a power-off check at a part."""
+    loaded = Quantity("dc-loaded", "V", "DC volts under a test load", "node", True, ("load",))
+    m = Measurement("OUT", loaded, 72.9, Source("typed"), conditions=(("load", 10e3),))
+    assert m.condition("load") == 10e3
+    with pytest.raises(InputError, match="needs the settings load, got none"):
+        Measurement("OUT", loaded, 72.9, Source("typed"))
+    diode = Quantity("diode-test", "V", "diode test", "part", powered=False)
+    assert Measurement("D5", diode, 0.61, Source("typed")).at == "D5"
+    with pytest.raises(ValueError, match="taken_at"):
+        Quantity("odd", "V", "odd", "somewhere", True)
+
+
+@pytest.mark.parametrize(
+    ("source", "text"),
+    [
+        (Source("typed"), "typed"),
+        (Source("file", "bench.csv"), "file bench.csv"),
+        (Source("meter", "ACME,DMM,1,1"), "ACME,DMM,1,1"),
+        (Source("meter"), "meter"),
+        (Source("simulated"), "simulated meter"),
+        (Source("simulated", "FIELDTOOL,SIMULATED-METER,x,1"), "FIELDTOOL,SIMULATED-METER,x,1"),
+    ],
+)
+def test_source_words(source, text):
+    assert str(source) == text
+    assert Source.from_json(json.loads(json.dumps(source.to_json()))) == source
+
+
+@pytest.mark.parametrize(
+    ("make", "words"),
+    [
+        (lambda: Measurement("S1", DC, float("inf"), Source("typed")), "finite"),
+        (lambda: Measurement("S1", DC, "12", Source("typed")), "must be a number"),
+        (lambda: Measurement("S1", DC, True, Source("typed")), "must be a number"),
+        (lambda: Measurement("S1", DC, 1.0, Source("typed"), spread=-1.0), "negative"),
+        (lambda: Measurement("S1", DC, 1.0, Source("typed"), samples=0), "at least 1"),
+        (lambda: Source("guessed"), "unknown reading source"),
+        (lambda: Measurement.from_fields({"quantity": "dc", "unit": "mV"}), "stored in 'mV'"),
+        (lambda: Measurement.from_fields({"quantity": "dc", "source": "typed"}), "kind"),
+        (lambda: Measurement.from_fields({"quantity": "volts"}), "unknown measurement kind"),
+    ],
+)
+def test_what_cannot_be_a_measurement_is_refused(make, words):
+    with pytest.raises(InputError, match=words):
+        make()
+
+
+def test_overload_and_unit():
+    m = Measurement("S8", DC, None, Source("typed"))
+    assert m.overload and m.unit == "V" and m.placed("S7").at == "S7"
+
+
+finite = st.floats(allow_nan=False, allow_infinity=False, width=64)
+measurements = st.builds(
+    Measurement,
+    at=st.none() | st.sampled_from(NODES),
+    quantity=st.sampled_from(list(QUANTITIES.values())),
+    value=st.none() | finite,
+    source=st.builds(Source, st.sampled_from(["typed", "file", "meter", "simulated"]), st.text()),
+    spread=st.none() | st.floats(min_value=0, allow_infinity=False),
+    settled=st.booleans(),
+    samples=st.integers(1, 1000),
+    taken=st.none() | st.just("2026-03-02T08:01:00.000000Z"),
+)
+
+
+@given(measurements)
+def test_the_stored_form_reads_back_the_same(m):
+    assert Measurement.from_fields(json.loads(json.dumps(m.to_fields()))) == m
+
+
+def test_a_readings_file_gives_dc_and_ripple_measurements():
+    text = "node,volts,ripple_vpp\nS0,5.01,\nS2,9.2,0.031\nP1,OL,\n"
+    got = parse_readings_csv(text, NODES, where="bench.csv")
+    source = Source("file", "bench.csv")
+    assert got == (
+        Measurement("S0", DC, 5.01, source, settled=True),
+        Measurement("S2", DC, 9.2, source, settled=True),
+        Measurement("S2", RIPPLE_PP, 0.031, source, settled=True),
+        Measurement("P1", DC, None, source, settled=True),
+    )
+    assert parse_readings_csv(readings_csv(got), NODES, where="bench.csv") == got
+
+
+def test_readings_csv_needs_a_dc_reading_where_a_ripple_is():
+    with pytest.raises(InputError, match="none at"):
+        readings_csv([Measurement("S1", RIPPLE_PP, 0.02, Source("typed"))])
