@@ -6,9 +6,11 @@ Layer: beside ``meters``; imports ``fieldtool.core`` only, and psycopg only when
 
 - ``config``: where the store is (``--store``, ``$FIELDTOOL_STORE``), passwords kept out.
 - ``connect``: psycopg connections, its errors turned into ``errors.StoreError``.
-- ``schema``: tables, migrations, the technician role's SQL.
+- ``schema``: tables, migrations, the technician role's SQL; ``summaries``: what the server
+  keeps up to date on every insert for the fleet view.
 - ``columns``: a history line as a row.
-- ``push``, ``read`` (history, fleet view, pull), ``priors`` (counts with a fallback).
+- ``push``, ``read`` (history, pull), ``fleet`` (the fleet view), ``priors`` (confirmed
+  failures for the priors, falling back to the files).
 """
 
 from fieldtool.store.config import ENV_VAR, StoreAddress, redact, resolve_store
