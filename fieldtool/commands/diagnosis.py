@@ -15,8 +15,12 @@ from pathlib import Path
 from fieldtool.commands.boards import PROFILE_HELP, profile_arg
 from fieldtool.commands.expect import full_json as expectation_json
 from fieldtool.commands.expect import full_text as expectation_text
+from fieldtool.commands.output import check_out, write_whole
+from fieldtool.commands.store import PRIORS_STORE_HELP, add_store_option, notice, store_of
+from fieldtool.core.circuit.library import ProfileEntry, locate, user_profiles_dir
 from fieldtool.core.circuit.profile import Profile, profile_from_dict
 from fieldtool.core.circuit.profile_write import to_toml
+from fieldtool.core.circuit.reading_range import reading_problem
 from fieldtool.core.diagnosis.calibrate import calibrate
 from fieldtool.core.diagnosis.dictionary import FaultDictionary
 from fieldtool.core.diagnosis.dictionary_cache import default_cache_dir, load_or_build
@@ -24,10 +28,14 @@ from fieldtool.core.diagnosis.faults import describe, parse_fault
 from fieldtool.core.diagnosis.priors import Priors
 from fieldtool.core.diagnosis.ranking import Diagnosis, diagnose
 from fieldtool.core.errors import InputError, ProfileError
+from fieldtool.core.hazard import safety_line, signal_word
 from fieldtool.core.measurement import DC
 from fieldtool.core.readings import load_readings
 from fieldtool.core.session import choose_priors, history_failures
 from fieldtool.core.units import format_si
+from fieldtool.core.words import count
+from fieldtool.store import StoreAddress
+from fieldtool.store.priors import store_failures
 
 FAULT_HELP = (
     "TARGET:MODE[=SEVERITY], e.g. D5:open, C4:short, C3:lowcap=0.3 (fraction left), "
@@ -65,6 +73,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     dia.add_argument("profile", help=PROFILE_HELP)
     dia.add_argument("--readings", required=True, help=READINGS_ARG)
     dia.add_argument("--logs", help="history folder whose confirmed repairs set the priors")
+    add_store_option(dia, PRIORS_STORE_HELP)
     dia.add_argument("--cache", help="dictionary cache folder (default: $FIELDTOOL_CACHE)")
     dia.add_argument("--json", action="store_true", help="one JSON object on stdout")
     dia.set_defaults(handler=run_diagnose)
@@ -93,6 +102,12 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     )
     cal.add_argument("--out", required=True, help="where to write the fitted profile (.toml)")
     cal.add_argument("--force", action="store_true", help="overwrite --out if it exists")
+    cal.add_argument(
+        "--accept-poor-fit",
+        action="store_true",
+        help="write the fitted profile even when the readings do not look like a healthy board "
+        "(a drive or diode drop far from the profile's, or nodes far off the fit)",
+    )
     cal.add_argument("--json", action="store_true", help="one JSON object on stdout")
     cal.set_defaults(handler=run_calibrate)
 
@@ -140,11 +155,16 @@ def dictionary_for(profile: Profile, cache: str | None) -> FaultDictionary:
         )
 
 
-def priors_for(profile: Profile, d: FaultDictionary, logs: str | None) -> Priors:
-    """Fleet priors from the ``--logs`` history folder, or the published ones without it."""
+def priors_for(
+    profile: Profile, d: FaultDictionary, logs: str | None, store: StoreAddress | None = None
+) -> Priors:
+    """Fleet priors from the store or the ``--logs`` history folder, or the published ones
+    without either (a store that cannot be reached: the folder, with a notice on stderr)."""
     if logs and not Path(logs).is_dir():
         raise InputError(f"--logs {logs}: no such folder")
-    return choose_priors(profile, d.hypotheses, history_failures(logs) if logs else None)
+    if store is None:
+        return choose_priors(profile, d.hypotheses, history_failures(logs) if logs else None)
+    return choose_priors(profile, d.hypotheses, store_failures(store, logs, notice))
 
 
 def run_diagnose(args: argparse.Namespace) -> int:
@@ -152,7 +172,7 @@ def run_diagnose(args: argparse.Namespace) -> int:
     profile = profile_arg(args.profile)
     d = dictionary_for(profile, args.cache)
     readings = load_readings(args.readings, d.nodes, d.labels, part_names(d), d.rails)
-    result = diagnose(d, readings, priors_for(profile, d, args.logs))
+    result = diagnose(d, readings, priors_for(profile, d, args.logs, store_of(args)))
     if args.json:
         print(json.dumps(result.to_json(), indent=2))
     else:
@@ -196,19 +216,28 @@ def reading_rows(d: FaultDictionary, readings) -> list[str]:
             lines.append(f"{what:<28}{value:>12}{'not predicted':>26}")
             continue
         verdict = "in band" if band.contains(r.value) else ("LOW" if r.value < band.low else "HIGH")
+        if reading_problem(d.profile, r):
+            verdict = "not a reading of this board (wrong range or unit?)"
         unit = r.quantity.unit
         span = f"{shown(band.low, unit)} … {shown(band.high, unit)}"
         lines.append(f"{what:<28}{value:>12}{span:>26}  {verdict}")
     return lines
 
 
-def next_lines(result: Diagnosis) -> list[str]:
-    """What to measure next, with its caution; or why nothing is left."""
+def highest_expected(d: FaultDictionary) -> float:
+    """The highest DC any node of the healthy board reads, band included."""
+    return max(max(abs(d.band(n).low), abs(d.band(n).high)) for n in d.nodes)
+
+
+def next_lines(d: FaultDictionary, result: Diagnosis) -> list[str]:
+    """What to measure next, with its caution under the board's signal word
+    (``core.hazard``); or why nothing is left."""
     s = result.next_measurement
     if s is not None:
         lines = [f"next: {s.words} ({s.gain_bits:.2f} bits expected, effort {s.effort:g})"]
         if s.caution:
-            lines.append(f"CAUTION: {s.caution}")
+            word = signal_word(highest_expected(d), d.profile.safe_volts)
+            lines.append(f"{word}: {s.caution}")
         return lines
     if result.top.probability >= 0.9 and not result.fit.no_fit:
         return [f"next: none needed; {result.top.words} at {result.top.probability:.0%}"]
@@ -217,11 +246,12 @@ def next_lines(result: Diagnosis) -> list[str]:
 
 def diagnosis_text(d: FaultDictionary, readings, result: Diagnosis) -> str:
     """Readings against the healthy bands, the ranked suspects and the advice."""
-    lines = [f"{d.profile.name}: {len(readings)} reading(s)", ""]
+    lines = [f"{d.profile.name}: {count(len(readings), 'reading')}", ""]
     lines += reading_rows(d, readings)
     lines.append("")
     if result.fit.no_fit:  # the reading that fits nothing leads
-        lines.append("WARNING: " + result.fit.text)
+        # "NO FIT", not WARNING: that signal word is kept for the hazard (core.hazard).
+        lines.append("NO FIT: " + result.fit.text)
         lines.append("most likely, if a single fault is to blame:")
     else:
         lines.append("most likely:")
@@ -230,14 +260,15 @@ def diagnosis_text(d: FaultDictionary, readings, result: Diagnosis) -> str:
         lines.append(f"  {s.probability:6.1%}  {bar:<20}  {s.words}")
     for a in result.ambiguity:
         lines.append(f"ambiguous: {a.text}")
-    lines += next_lines(result)
+    lines += next_lines(d, result)
     if not result.fit.no_fit:
         lines.append("fit: " + result.fit.text)
     lines += [f"note: {text}" for text in result.ignored]
-    lines.append(
-        "CAUTION: power off and discharge before touching parts; verify with the meter. "
-        "Local codes and licensed practice take precedence."
-    )
+    highest = highest_expected(d)
+    dc = [r for r in readings if r.quantity == DC and reading_problem(d.profile, r) is None]
+    overload = any(r.value is None for r in dc)
+    read = [abs(r.value) for r in dc if r.value is not None]
+    lines.append(safety_line(None if overload else max([highest, *read]), d.profile.safe_volts))
     return "\n".join(lines)
 
 
@@ -294,9 +325,9 @@ def coverage_text(c) -> str:
 def run_calibrate(args: argparse.Namespace) -> int:
     """Handle ``fieldtool calibrate``."""
     out = Path(args.out)
-    if out.exists() and not args.force:
-        raise InputError(f"{out} exists; pass --force to overwrite it, or choose another --out")
-    profile = profile_arg(args.profile)
+    check_out("--out", out, force=args.force)
+    entry = locate(args.profile, user_profiles_dir(os.environ))
+    profile = entry.load()
     from fieldtool.core.circuit.netlist import build_circuit
 
     circuit, _ = build_circuit(profile)
@@ -304,11 +335,14 @@ def run_calibrate(args: argparse.Namespace) -> int:
     readings = load_readings(args.readings, nodes, profile.labels)
     others = [r for r in readings if r.quantity != DC]
     result = calibrate(profile, readings)
-    text = fitted_toml(args.profile, profile, result, args.readings)
-    try:
-        out.write_text(text, encoding="utf-8")
-    except OSError as exc:
-        raise InputError(f"cannot write {out}: {exc.strerror or exc}") from None
+    if result.problems and not args.accept_poor_fit:
+        raise InputError(
+            f"these readings do not look like a healthy {profile.name}: "
+            f"{'; '.join(result.problems)}. Nothing was written. Calibrate from a board known to "
+            "be good (diagnose this one first), or pass --accept-poor-fit to write it anyway"
+        )
+    text = fitted_toml(entry, profile, result, args.readings)
+    write_whole("--out", out, text.encode("utf-8"))
     summary = {
         "out": str(out),
         "drive_volts": result.profile.drive_volts,
@@ -320,6 +354,7 @@ def run_calibrate(args: argparse.Namespace) -> int:
         "residuals": result.residuals,
         "iterations": result.iterations,
         "notes": list(result.notes) + _left_out(others),
+        "problems": list(result.problems),
     }
     if args.json:
         print(json.dumps(summary, indent=2))
@@ -337,8 +372,8 @@ def run_calibrate(args: argparse.Namespace) -> int:
         print(f"  {node:<6}{e * 1000:+9.1f} mV")
     for note in [*result.notes, *_left_out(others)]:
         print(f"note: {note}")
-    if result.chi2 > 4 * max(len(result.residuals), 1):
-        print("WARNING: the fit is poor for a known-good board; is it really healthy?")
+    for problem in result.problems:
+        print(f"POOR FIT (written because of --accept-poor-fit): {problem}")
     return 0
 
 
@@ -349,11 +384,12 @@ def _left_out(others) -> list[str]:
     return [f"calibration fits DC readings only; {len(others)} reading(s) of {kinds} left out"]
 
 
-def fitted_toml(source: str, original: Profile, result, readings_path: str) -> str:
+def fitted_toml(entry: ProfileEntry, original: Profile, result, readings_path: str) -> str:
     """The source profile's TOML with the fitted drive, diode and supply values."""
+    source = entry.where
     try:
-        data = tomllib.loads(Path(source).read_text(encoding="utf-8"))
-    except (OSError, tomllib.TOMLDecodeError) as exc:
+        data = tomllib.loads(entry.read_bytes().decode("utf-8-sig"))
+    except (UnicodeDecodeError, tomllib.TOMLDecodeError) as exc:
         raise ProfileError(f"{source}: cannot re-read for writing ({exc})") from None
     fitted = result.profile
     data["drive"]["volts"] = fitted.drive_volts
@@ -370,8 +406,13 @@ def fitted_toml(source: str, original: Profile, result, readings_path: str) -> s
         f"Drive ×{result.drive_scale:.4f}, diode drop {result.diode_shift_v * 1000:+.1f} mV, "
         f"residual {result.rms_volts * 1000:.1f} mV rms."
     )
+    if result.problems:
+        header += "\nPOOR FIT, written with --accept-poor-fit: " + "; ".join(result.problems)
     text = to_toml(data, header)
-    profile_from_dict(tomllib.loads(text), "<calibrated>")  # refuse to write what won't load
+    try:  # refuse to write what would not load
+        profile_from_dict(tomllib.loads(text), "the fitted profile")
+    except ProfileError as exc:
+        raise InputError(f"{exc.message}; nothing was written") from None
     return text
 
 

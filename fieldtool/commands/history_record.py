@@ -15,13 +15,14 @@ the colon is a catalogued failure mode, as in fault specs; a severity such as
 from __future__ import annotations
 
 import argparse
-import getpass
 import json
 import os
 
-from fieldtool.commands.boards import PROFILE_HELP, profile_arg
+from fieldtool.commands.boards import PROFILE_HELP, login_name, profile_arg
 from fieldtool.commands.diagnosis import READINGS_ARG, next_lines, part_names
 from fieldtool.commands.history_text import safe
+from fieldtool.commands.options import technician
+from fieldtool.commands.store import PRIORS_STORE_HELP, add_store_option, notice, store_of
 from fieldtool.core.circuit.netlist import default_designators
 from fieldtool.core.circuit.profile import Profile
 from fieldtool.core.circuit.spec import display_name
@@ -38,7 +39,8 @@ from fieldtool.core.history import (
     resolve_logs_dir,
 )
 from fieldtool.core.readings import load_readings
-from fieldtool.core.session import BoardSession, choose_priors, history_failures
+from fieldtool.core.session import BoardSession, choose_priors
+from fieldtool.store.priors import store_failures
 
 TOP_SUSPECTS = 5  # suspects printed
 
@@ -66,8 +68,11 @@ def register(subparsers: argparse._SubParsersAction, logs_help: str, outcomes) -
         "--verify", metavar="FILE", help="readings CSV taken after the repair (either form)"
     )
     p.add_argument("--outcome", choices=outcomes, help="close the session with this outcome")
-    p.add_argument("--technician", help="who did the work (default: your login name)")
+    p.add_argument(
+        "--technician", type=technician, help="who did the work (default: your login name)"
+    )
     p.add_argument("--logs", help=logs_help)
+    add_store_option(p, PRIORS_STORE_HELP)
     p.add_argument("--json", action="store_true", help="one JSON object on stdout")
     p.set_defaults(handler=run_record)
 
@@ -135,7 +140,8 @@ def run_record(args: argparse.Namespace) -> int:
         if args.verify
         else ()
     )
-    priors = choose_priors(profile, dictionary.hypotheses, history_failures(logs))
+    failures = store_failures(store_of(args), logs, notice)
+    priors = choose_priors(profile, dictionary.hypotheses, failures)
     events: list[Event] = []
     session = BoardSession(
         profile,
@@ -143,7 +149,7 @@ def run_record(args: argparse.Namespace) -> int:
         dictionary,
         lambda event, _sid: events.append(event),
         priors=priors,
-        technician=args.technician or _login(),
+        technician=args.technician or login_name(),
     )
     session_id = session.open()
     diagnosis = session.take(*readings)
@@ -192,14 +198,7 @@ def run_record(args: argparse.Namespace) -> int:
             f"(prior {s.prior:.2%}, {safe(s.prior_source)})"
         )
     if diagnosis.fit.no_fit:
-        lines.insert(1, "WARNING: " + safe(diagnosis.fit.text))
-    lines += next_lines(diagnosis)
+        lines.insert(1, "NO FIT: " + safe(diagnosis.fit.text))
+    lines += next_lines(dictionary, diagnosis)
     print("\n".join(lines))
     return 0
-
-
-def _login() -> str:
-    try:
-        return getpass.getuser()
-    except (KeyError, OSError):
-        return "unknown"

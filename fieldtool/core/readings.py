@@ -10,27 +10,29 @@ Two forms, told apart by the header:
   ``dc-loaded,S6,72.9,10k`` · ``diode-test,D5,0.61``. ``measure`` is a measurement kind
   (``fieldtool.core.measurement.QUANTITIES``); ``at`` a node or test-point label, a diode's
   designator as the board shows it (diode tests) or ``supply`` / ``drive`` (currents);
-  ``test_load_ohms`` is given for ``dc-loaded`` rows only. Values take SI prefixes and the
-  kind's unit as typed readings do (``890mV``, ``0.35mA``, ``10k`` ohms).
+  ``test_load_ohms`` is given for ``dc-loaded`` rows only (``10000``, ``10k``, ``4.7kΩ``).
 
-In both a value is ``OL`` where the meter showed over range, a decimal comma is refused (the
-comma separates columns), and blank lines and lines starting with ``#`` are skipped. Each place
-and kind (and test load) is read at most once. The readings' source is the file's name.
+Columns are separated by commas, or by semicolons or tabs as spreadsheets export them (the
+header tells which). Values are written as they would be typed, with the kind's unit and an
+SI prefix (``12.9``, ``125.7V``, ``890mV``, ``1.2kV``, ``0.35mA``; a decimal comma where commas
+do not separate the columns, or in quotes) or ``OL`` for a meter over range. Blank lines and
+lines starting with ``#`` are skipped. Each place and kind (and test load) is read at most
+once. The readings' source is the file's name.
 """
 
 from __future__ import annotations
 
 import csv
 import io
-import math
 from collections.abc import Iterable, Sequence
 from pathlib import Path
 
-from fieldtool.core.errors import InputError
+from fieldtool.core.errors import InputError, shown
 from fieldtool.core.measurement import DC, DC_LOADED, RIPPLE_PP, Measurement, Source, quantity
 from fieldtool.core.units import parse_reading, parse_si
 
-OVERLOAD_WORDS = ("ol", "overload")
+SEPARATORS = (",", ";", "\t")  # a plain CSV, and what spreadsheets in comma-decimal locales
+# and tab-separated exports write
 LONG_HEADER = ("measure", "at", "value")
 LOAD_COLUMN = "test_load_ohms"
 RAILS = ("supply", "drive")
@@ -41,19 +43,25 @@ EXAMPLES = {
 
 
 def _number(text: str, where: str, column: str, allow_overload: bool) -> float | None:
-    raw = text.strip()
-    if allow_overload and raw.lower() in OVERLOAD_WORDS:
-        return None
     try:
-        value = float(raw)
-    except ValueError:
+        value = parse_reading(text)
+    except ValueError as exc:
         extra = " or OL for overload" if allow_overload else ""
         raise InputError(
-            f"{where}: {column} {raw!r} is not a number; write volts as e.g. 12.9{extra}"
+            f"{where}: {column}: {exc}; write volts as e.g. 12.9, 125.7V or 890mV{extra}"
         ) from None
-    if not math.isfinite(value):
-        raise InputError(f"{where}: {column} {raw!r} is not a finite number")
+    if value is None and not allow_overload:
+        raise InputError(f"{where}: {column} is OL; leave the cell empty when it was not read")
     return value
+
+
+def _separator(header_line: str) -> str:
+    """The column separator the header uses (a comma unless it is a semicolon or a tab)."""
+    for separator in SEPARATORS:
+        cells = [c.strip().lower() for c in header_line.split(separator)]
+        if cells[:2] == ["node", "volts"] or tuple(cells[:3]) == LONG_HEADER:
+            return separator
+    return ","
 
 
 def resolve_node(name: str, nodes: Sequence[str], labels: dict[str, str], where: str) -> str:
@@ -66,7 +74,7 @@ def resolve_node(name: str, nodes: Sequence[str], labels: dict[str, str], where:
         if label and label.lower() == wanted.lower() and node in nodes:
             return node
     known = ", ".join(nodes)
-    raise InputError(f"{where}: node {wanted!r} is not on this board (nodes: {known})")
+    raise InputError(f"{where}: node {shown(wanted)} is not on this board (nodes: {known})")
 
 
 def parse_readings_csv(
@@ -95,23 +103,30 @@ def parse_readings_csv(
     if not rows:
         raise InputError(f"{where}: no readings; expected a header 'node,volts' and one row a node")
     header_no, header_line = rows[0]
-    header = [h.strip().lower() for h in next(csv.reader([header_line]))]
+    separator = _separator(header_line)
+    header = [h.strip().lower() for h in next(csv.reader([header_line], delimiter=separator))]
     if tuple(header[:3]) == LONG_HEADER:
-        return _parse_long(rows, header, nodes, labels, where, source, parts, rails)
+        return _parse_long(rows, header, separator, nodes, labels, where, source, parts, rails)
     if header[:2] != ["node", "volts"] or any(h not in ("ripple_vpp",) for h in header[2:]):
         raise InputError(
-            f"{where}:{header_no}: header is {header_line.strip()!r}; expected 'node,volts', "
-            "'node,volts,ripple_vpp', 'measure,at,value' or 'measure,at,value,test_load_ohms'"
+            f"{where}:{header_no}: header is {shown(header_line.strip())}; expected 'node,volts' "
+            "or 'node,volts,ripple_vpp', or one reading a row under 'measure,at,value' or "
+            "'measure,at,value,test_load_ohms' (or ';' between them)"
         )
     readings: list[Measurement] = []
     seen: set[str] = set()
     for number, line in rows[1:]:
         here = f"{where}:{number}"
-        cells = next(csv.reader([line]))
+        cells = next(csv.reader([line], delimiter=separator))
         if len(cells) != len(header):
+            hint = (
+                "; a decimal comma must be in quotes (\"12,9\") or the columns separated by ';'"
+                if separator == ","
+                else ""
+            )
             raise InputError(
-                f"{here}: {len(cells)} columns, expected {len(header)} ({','.join(header)}); "
-                "a decimal comma must be a point in CSV"
+                f"{here}: {len(cells)} columns, expected {len(header)} "
+                f"({separator.join(header)}){hint}"
             )
         node = resolve_node(cells[0], nodes, labels, here)
         if node in seen:
@@ -121,7 +136,7 @@ def parse_readings_csv(
         readings.append(Measurement(node, DC, volts, source, settled=True))
         if len(cells) > 2 and cells[2].strip():
             ripple = _number(cells[2], here, "ripple_vpp", allow_overload=False)
-            if ripple is not None and ripple < 0:
+            if ripple < 0:
                 raise InputError(f"{here}: ripple_vpp {ripple:g} is negative")
             readings.append(Measurement(node, RIPPLE_PP, ripple, source, settled=True))
     if not readings:
@@ -129,7 +144,7 @@ def parse_readings_csv(
     return tuple(readings)
 
 
-def _parse_long(rows, header, nodes, labels, where, source, parts, rails):
+def _parse_long(rows, header, separator, nodes, labels, where, source, parts, rails):
     """The ``measure,at,value[,test_load_ohms]`` form (module docstring)."""
     if len(header) > 4 or (len(header) == 4 and header[3] != LOAD_COLUMN):
         raise InputError(
@@ -140,13 +155,18 @@ def _parse_long(rows, header, nodes, labels, where, source, parts, rails):
     seen: set[tuple] = set()
     for number, line in rows[1:]:
         here = f"{where}:{number}"
-        cells = [c.strip() for c in next(csv.reader([line]))]
+        cells = [c.strip() for c in next(csv.reader([line], delimiter=separator))]
         if len(cells) == 3 and len(header) == 4:
             cells.append("")
         if len(cells) != len(header):
             raise InputError(
-                f"{here}: {len(cells)} columns, expected {len(header)} ({','.join(header)}); "
-                "a decimal comma must be a point in CSV"
+                f"{here}: {len(cells)} columns, expected {len(header)} "
+                f"({separator.join(header)})"
+                + (
+                    "; a decimal comma must be in quotes or the columns separated by ';'"
+                    if separator == ","
+                    else ""
+                )
             )
         try:
             q = quantity(cells[0])
@@ -184,29 +204,28 @@ def _place(q, name, nodes, labels, parts, rails, here) -> str:
         known = tuple(rails) if rails is not None else RAILS
         low = name.lower()
         if low not in known:
-            shown = ", ".join(known) or "none on this board"
-            raise InputError(f"{here}: current at {name!r}; it is read at {shown}")
+            known_text = ", ".join(known) or "none on this board"
+            raise InputError(f"{here}: current at {name!r}; it is read at {known_text}")
         return low
     if parts is None:
         return name
     for part in parts:
         if part.lower() == name.lower():
             return part
-    shown = ", ".join(parts) or "none"
-    raise InputError(f"{here}: part {name!r} is not a diode of this board (diodes: {shown})")
+    listed = ", ".join(parts) or "none"
+    raise InputError(f"{here}: part {name!r} is not a diode of this board (diodes: {listed})")
 
 
 def _value(text: str, q, here: str) -> float | None:
-    if text.lower() in OVERLOAD_WORDS:
-        return None
     try:
         value = parse_reading(text, q.unit)
-    except ValueError:
+    except ValueError as exc:
         example = EXAMPLES.get(q.unit, q.unit)
         raise InputError(
-            f"{here}: value {text!r} is not understood for {q.name}; write {example}, or OL "
-            "for overload"
+            f"{here}: value not understood for {q.name}: {exc}; write {example}, or OL for overload"
         ) from None
+    if value is None:
+        return None
     if q.name in ("ripple-pp", "ac-rms") and value < 0:
         raise InputError(f"{here}: {q.name} {value:g} is negative")
     return value
@@ -217,10 +236,11 @@ def _ohms(text: str, here: str) -> float:
         ohms = parse_si(text)
     except ValueError:
         raise InputError(
-            f"{here}: {LOAD_COLUMN} {text!r} is not a resistance; write e.g. 10000, 10k or 4.7kΩ"
+            f"{here}: {LOAD_COLUMN} {shown(text)} is not a resistance; write e.g. 10000, 10k or "
+            "4.7kΩ"
         ) from None
     if ohms <= 0:
-        raise InputError(f"{here}: {LOAD_COLUMN} {text!r} must be above zero")
+        raise InputError(f"{here}: {LOAD_COLUMN} {shown(text)} must be above zero")
     return ohms
 
 

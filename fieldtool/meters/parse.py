@@ -10,60 +10,39 @@ from __future__ import annotations
 import math
 import re
 
+from fieldtool.core.errors import shown
 from fieldtool.core.measurement import DC, TYPED, Measurement, Quantity, Source
+from fieldtool.core.units import (
+    OVERLOAD_WORDS,
+    READING_EXAMPLES,
+    decimal,
+    parse_reading,
+    unit_scale,
+)
 from fieldtool.meters.errors import MeterGarbage, ReadingParseError
 
 # SCPI uses +9.9E37 for overload (+inf), -9.9E37 for -inf and 9.91E37 for not-a-number.
 SCPI_NO_READING = 9.9e37
 
-PREFIXES = {"": 1.0, "m": 1e-3, "u": 1e-6, "µ": 1e-6, "μ": 1e-6, "k": 1e3}
-
-_NUMBER = r"[+-]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][+-]?\d+)?"
-_TYPED = re.compile(rf"^\s*(?P<value>{_NUMBER})\s*(?P<unit>[a-zA-Zµμ]*)\s*$")
 _NR = re.compile(r"^\s*[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?\s*$")
-_OVERLOAD_WORDS = {"ol", "overload", "o.l", "o.l."}
 
 UNIT_NAMES = {"V": "voltage", "A": "current"}  # for messages: "not a voltage unit"
-EXPECTED = "a voltage such as 12.9, 12.9V, 890mV, 1.2kV or 12,9, or OL for overload"
-
-
-def unit_scale(unit: str, base: str = "V") -> float | None:
-    """Base units per ``unit`` (``V``, ``mV``, ``uV``, ``µV``, ``kV`` for volts); None if it is
-    not that base unit; no unit at all means the base unit."""
-    if unit == "":
-        return 1.0
-    if unit[-1].lower() != base.lower() or len(base) != 1:
-        return None
-    prefix = unit[:-1]
-    if prefix in ("M", "K"):  # 'MV' is ambiguous; 'KV' is a common shouting of kV
-        return 1e3 if prefix == "K" else None
-    return PREFIXES.get(prefix)
-
-
-def _number(text: str) -> float:
-    """A float from text that may use a decimal comma."""
-    return float(text.replace(",", "."))
+EXPECTED = f"a voltage such as {READING_EXAMPLES}"
 
 
 def parse_typed(text: str, quantity: Quantity = DC) -> Measurement:
-    """Parse what a technician typed: ``12.9``, ``12,9 V``, ``890mV``, ``1.2kV``, ``OL``."""
-    stripped = text.strip()
-    if stripped.lower() in _OVERLOAD_WORDS:
-        return Measurement(None, quantity, None, TYPED, settled=True)
-    if not stripped:
+    """Parse what a technician typed: ``12.9``, ``12,9 V``, ``890mV``, ``1.2kV``, ``OL``.
+
+    Whether the value is one this board could show is the session's to judge
+    (``fieldtool.core.circuit.reading_range``); here it must be a finite number in a unit of
+    the quantity.
+    """
+    if not text.strip():
         raise ReadingParseError(f"nothing was typed; expected {EXPECTED}")
-    match = _TYPED.match(stripped)
-    if match is None:
-        raise ReadingParseError(f"'{stripped}' is not a number with a unit; expected {EXPECTED}")
-    value_text, unit = match["value"], match["unit"]
-    scale = unit_scale(unit, quantity.unit)
-    if scale is None:
-        raise ReadingParseError(
-            f"understood the number {value_text} but not the unit '{unit}'; expected {EXPECTED}"
-        )
-    value = _number(value_text) * scale
-    if not math.isfinite(value):
-        raise ReadingParseError(f"'{stripped}' is not a finite voltage; expected {EXPECTED}")
+    try:
+        value = parse_reading(text, quantity.unit)
+    except ValueError as exc:
+        raise ReadingParseError(f"{exc}; expected {EXPECTED}") from None
     return Measurement(None, quantity, value, TYPED, settled=True)
 
 
@@ -71,7 +50,7 @@ def parse_scpi_number(text: str, source: Source, quantity: Quantity = DC) -> Mea
     """Parse an IEEE 488.2 NR1/NR2/NR3 response; |x| >= 9.9e37 means overload."""
     stripped = text.strip()
     if not _NR.match(stripped):
-        raise MeterGarbage(f"meter answered {stripped!r}, which is not an IEEE 488.2 number")
+        raise MeterGarbage(f"meter answered {shown(stripped)}, which is not an IEEE 488.2 number")
     value = float(stripped)
     if abs(value) >= SCPI_NO_READING:
         return Measurement(None, quantity, None, source)
@@ -93,17 +72,21 @@ def parse_stream_line(
     groups = match.groupdict()
     value_text = (groups.get("value") or "").strip()
     unit = (groups.get("unit") or "").strip()
-    if value_text.lower() in _OVERLOAD_WORDS:
+    if value_text.lower() in OVERLOAD_WORDS:
         return Measurement(None, quantity, None, source)
     try:
-        value = _number(value_text)
+        value = decimal(value_text)
     except ValueError:
-        msg = f"streamed value {value_text!r} in line {line!r} is not a number"
+        msg = f"streamed value {shown(value_text)} in line {shown(line)} is not a number"
         raise MeterGarbage(msg) from None
-    if abs(value) >= SCPI_NO_READING:
+    if math.isnan(value):
+        raise MeterGarbage(f"streamed value {shown(value_text)} is not a number (NaN)")
+    if abs(value) >= SCPI_NO_READING:  # infinity too: the meter's way of saying over range
         return Measurement(None, quantity, None, source)
     scale = unit_scale(unit, quantity.unit)
     if scale is None:
         what = UNIT_NAMES.get(quantity.unit, quantity.unit)
-        raise MeterGarbage(f"streamed unit {unit!r} in line {line!r} is not a {what} unit")
+        raise MeterGarbage(
+            f"streamed unit {shown(unit)} in line {shown(line)} is not a {what} unit"
+        )
     return Measurement(None, quantity, value * scale, source)

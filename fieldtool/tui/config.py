@@ -9,6 +9,7 @@ from pathlib import Path
 from fieldtool.core.circuit.profile import Profile
 from fieldtool.core.diagnosis.faults import Fault
 from fieldtool.meters.settings import MeterSettings
+from fieldtool.store import StoreAddress
 from fieldtool.tui.meter_strip import MeterChoice
 
 
@@ -24,6 +25,7 @@ class AppConfig:
     rescue_dir: Path | None = (
         None  # where unsaveable events go at quit (default ~/fieldtool-rescue)
     )
+    store: StoreAddress | None = None  # the fleet store for the priors (None: files only)
 
 
 @dataclass(frozen=True)
@@ -35,3 +37,4 @@ class SessionRequest:
     meter: MeterChoice
     resume: bool | None = None
     demo_fault: Fault | None = None
+    technician: str | None = None  # who signs this session; None: the app's technician

@@ -94,7 +94,7 @@ def test_a_long_form_file_on_disk_and_back(tmp_path):
         ("dc,S3,45 A", "not understood for dc"),
         ("current,supply,3 mV", "not understood for current"),
         ("dc,S3,3MV", "not understood"),
-        ("ripple-pp,S3,-2m", "is negative"),
+        ("ripple-pp,S3,-2mV", "is negative"),
         ("dc,S3,45,2", "goes with dc-loaded rows only"),
     ],
 )

@@ -87,7 +87,9 @@ from fieldtool.core.measurement import (
     Quantity,
 )
 
-DICTIONARY_VERSION = 5  # 5: every measurement kind (ripple, AC, current, test loads, diode test)
+# 5: every measurement kind (ripple, AC, current, test loads, diode test); 4: no hypothesis that
+# cannot differ from healthy, grids in range
+DICTIONARY_VERSION = 5
 STEPS_PER_PERIOD = 40
 METER_SOLVE_FRACTION = 0.01  # meter loading above this → solve with the meter in place
 

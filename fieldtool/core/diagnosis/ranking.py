@@ -39,6 +39,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from fieldtool.core.circuit.reading_range import reading_problem
 from fieldtool.core.circuit.readouts.powered import load_watts
 from fieldtool.core.circuit.readouts.spread import RECT, accuracy_sigma
 from fieldtool.core.circuit.safety import POWER_OFF_CAUTION, TEST_LOAD_CAUTION
@@ -258,6 +259,7 @@ def _terms(d: FaultDictionary, readings: Sequence[Measurement]):
     """Each usable reading as a likelihood term; the channels read; what was left out."""
     chans: dict[tuple, tuple[Channel, Measurement]] = {}
     ignored: list[str] = []
+    wrong: list[tuple[str, str]] = []  # (place, note) of readings this board could not show
     for r in readings:
         if r.at is None:
             raise InputError(f"a {r.quantity.words} reading has no place; say where it was taken")
@@ -273,25 +275,33 @@ def _terms(d: FaultDictionary, readings: Sequence[Measurement]):
                 f"{_label(d, r)}: {r.quantity.words} read twice; keep one reading of each"
             )
         chans[ch.key] = (ch, r)
+        problem = reading_problem(d.profile, r)
+        if problem:  # left out: it would only overflow the likelihood
+            wrong.append((r.at, f"{problem}; left out"))
+            ignored.append(wrong[-1][1])
+            del chans[ch.key]
     dc_at = {
         key[0]: m.value
         for key, (_, m) in chans.items()
         if key[1] == DC.name and m.value is not None
     }
     terms: list[_Term] = []
+    unexplained: list[str] = []
     for ch, r in chans.values():
-        term = _term(d, ch, r, dc_at, ignored)
+        term = _term(d, ch, r, dc_at, ignored, unexplained)
         if term is not None:
             terms.append(term)
-    return terms, [key for key in chans], ignored
+    return terms, [key for key in chans], ignored, wrong, unexplained
 
 
-def _term(d: FaultDictionary, ch: Channel, r: Measurement, dc_at, ignored) -> _Term | None:
+def _term(
+    d: FaultDictionary, ch: Channel, r: Measurement, dc_at, ignored, unexplained
+) -> _Term | None:
     name = _label(d, r)
     q = ch.quantity
     p = d.profile
     if r.value is None:
-        return _overload_term(d, ch, r, name, ignored)
+        return _overload_term(d, ch, r, name, ignored, unexplained)
     y = float(r.value)
     if q == DC_LOADED and r.at in dc_at:
         # The drop the load causes, read with the same meter: its shared gain and offset
@@ -319,7 +329,13 @@ def _term(d: FaultDictionary, ch: Channel, r: Measurement, dc_at, ignored) -> _T
     return _Term(name, r.at, q.name, logp, z2, np.where(ch.over, np.nan, mu), sd)
 
 
-def _overload_term(d, ch: Channel, r: Measurement, name: str, ignored) -> _Term | None:
+def _overload_term(d, ch: Channel, r: Measurement, name: str, ignored, unexplained):
+    """An OL reading as a censored one: it says the value is beyond what the meter shows.
+
+    A diode test's OL against the rows that predict it (past the open-circuit voltage); a DC
+    OL against the meter's range where the profile gives one, P(|V| > range) under each row;
+    an OL no row can explain is noted in ``unexplained``. Elsewhere it carries no value.
+    """
     q = ch.quantity
     p = d.profile
     if q == DIODE_TEST:
@@ -327,12 +343,20 @@ def _overload_term(d, ch: Channel, r: Measurement, name: str, ignored) -> _Term 
         limit = p.instruments.diode_test_volts
         prob = np.where(ch.over, 1.0 - OL_SLIP, _norm_sf((limit - ch.mean) / sd) + OL_SLIP)
     elif q == DC and p.meter_range_volts is not None:
-        sd = _total_sd(d, ch, ch.mean)
-        beyond = (p.meter_range_volts - np.abs(ch.mean)) / sd
-        prob = _norm_sf(beyond) + OL_SLIP
+        limit = p.meter_range_volts
+        sd = _total_sd(d, ch, limit)
+        prob = _norm_sf((limit - ch.mean) / sd) + _norm_sf((limit + ch.mean) / sd)
+        if prob.max() < NO_FIT_P:
+            unexplained.append(r.at)
+        prob = prob + OL_SLIP
+    elif q == DC:
+        ignored.append(
+            f"{r.at}: OL (over range) tells nothing without the meter's range: add [meter] "
+            "range_volts to the profile, or read it on a higher range"
+        )
+        return None
     else:
-        hint = "; give the meter's range_volts in [meter]" if q == DC else ""
-        ignored.append(f"{r.at}: OL (over range) carries no value; set a higher range{hint}")
+        ignored.append(f"{name}: OL (over range) carries no value; read it on a higher range")
         return None
     prob = np.clip(prob, 1e-300, 1.0)
     mu = np.where(ch.over, np.nan, ch.mean)
@@ -386,7 +410,7 @@ def diagnose(
     profile = d.profile
     priors = priors or published_priors(profile, d.hypotheses)
     efforts = efforts or profile.efforts
-    terms, read, ignored = _terms(d, readings)
+    terms, read, ignored, wrong, unexplained = _terms(d, readings)
     R = len(d.row_hypothesis)
     loglik = sum((t.logp for t in terms), np.zeros(R))
     _, counts = _hyp_slices(d)
@@ -396,6 +420,18 @@ def diagnose(
     best_row = _best_rows(d, loglik)
     suspects = tuple(_suspect(d, priors, h, post[h], best_row[h]) for h in order)
     fit, leave_out, birge = _fit(d, terms, loglik, suspects)
+    if wrong:  # a reading this board cannot show leads: wrong range, unit or node
+        fit = Fit(0.0, True, wrong[0][0], f"wrong range, unit or node? {wrong[0][1]}")
+    elif unexplained:  # an OL no hypothesis reaches: say so rather than a bare misfit
+        fit = Fit(
+            0.0,
+            True,
+            unexplained[0],
+            f"{unexplained[0]} reads OL but no hypothesis puts it beyond the meter's "
+            f"{profile.meter_range_volts:g} V range: check the range the meter was on, the "
+            "probe, and [meter] range_volts in the profile",
+            DC.name,
+        )
     if leave_out is not None:  # suggest as if the one reading that fits nothing were wrong
         _, row_w = _posterior(d, log_prior_row + loglik - terms[leave_out].logp)
     elif fit.no_fit:  # spreads widened until the best row fits (χ²/k = 1): keep suggesting

@@ -8,6 +8,7 @@ from __future__ import annotations
 import errno
 import fcntl
 import os
+import stat
 import uuid
 from collections.abc import Iterator, Sequence
 from contextlib import contextmanager
@@ -46,6 +47,38 @@ def _stat_or_none(path: Path) -> os.stat_result | None:
         return os.stat(path)
     except FileNotFoundError:
         return None
+
+
+def remove_if_empty(path: Path, fd: int) -> None:
+    """Remove the regular file ``path`` (open as ``fd``, locked by the caller) if it is empty.
+
+    Used when the first write to a new file failed, so a full disk leaves no empty history
+    behind; a process waiting for the lock sees the file gone and creates it anew.
+    """
+    held = os.fstat(fd)
+    if held.st_size == 0 and stat.S_ISREG(held.st_mode):
+        try:
+            os.unlink(path)
+        except OSError:
+            pass  # then it stays empty, and readers skip empty files
+
+
+def identity(st: os.stat_result) -> list[int]:
+    """A file's identity: inode, device, size, modification and change times (any append or
+    rewrite changes one of them)."""
+    return [st.st_ino, st.st_dev, st.st_size, st.st_mtime_ns, st.st_ctime_ns]
+
+
+def read_with_identity(path: Path) -> tuple[list[int], bytes]:
+    """A file's identity, taken before its bytes are read (bytes appended after that make the
+    identity stale, never the other way round), and those bytes."""
+    fd = os.open(path, os.O_RDONLY | os.O_CLOEXEC)
+    try:
+        st = os.fstat(fd)
+        data = os.pread(fd, st.st_size, 0) if st.st_size else b""
+    finally:
+        os.close(fd)
+    return identity(st), data[: st.st_size]
 
 
 def read_locked(fd: int) -> bytes:
