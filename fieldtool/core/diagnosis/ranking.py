@@ -544,19 +544,23 @@ def _gains(d: FaultDictionary, row_w: np.ndarray, candidates, dc_read) -> dict:
     keep = row_w > KEEP_ROWS * row_w.max()
     rows = np.flatnonzero(keep)
     w = row_w[rows] / row_w[rows].sum()
+    return {key: max(g, 0.0) for key, g in _gain_each(d, rows, w, candidates, dc_read)}
+
+
+def _gain_each(d: FaultDictionary, rows: np.ndarray, w: np.ndarray, candidates, dc_read):
+    """(key, expected gain in bits) of each candidate over ``rows`` (grouped by hypothesis)
+    weighted ``w``: the entropy now less the expected entropy after the reading."""
     hyp_of = d.row_hypothesis[rows]
     starts = np.flatnonzero(np.r_[True, np.diff(hyp_of) != 0])
     h_now = float(_entropy(np.add.reduceat(w, starts)))
-    gains = {}
+    limit = d.profile.instruments.diode_test_volts
     for key in candidates:
         mu, sd, over = predicted_reading(d, key, rows, dc_read)
         if over.any():
-            limit = d.profile.instruments.diode_test_volts
             e = _expected_entropy_ol(mu, sd, over, w, starts, limit)
         else:
             e = _expected_entropy(mu, sd, w, starts)
-        gains[key] = max(h_now - e, 0.0)
-    return gains
+        yield key, h_now - e
 
 
 def _cluster_points(mu: np.ndarray, sd: np.ndarray, w: np.ndarray):
@@ -733,18 +737,8 @@ def _splitter(d, group, post, candidates, dc_read, efforts, powered):
     counts = np.bincount(d.row_hypothesis[rows], minlength=len(post))
     w = post[d.row_hypothesis[rows]] / counts[d.row_hypothesis[rows]]
     w = w / w.sum()
-    hyp_of = d.row_hypothesis[rows]
-    starts = np.flatnonzero(np.r_[True, np.diff(hyp_of) != 0])
-    h_now = float(_entropy(np.add.reduceat(w, starts)))
     best, best_score = None, 0.0
-    for key in candidates:
-        mu, sd, over = predicted_reading(d, key, rows, dc_read)
-        if over.any():
-            limit = d.profile.instruments.diode_test_volts
-            e = _expected_entropy_ol(mu, sd, over, w, starts, limit)
-        else:
-            e = _expected_entropy(mu, sd, w, starts)
-        gain = h_now - e
+    for key, gain in _gain_each(d, rows, w, candidates, dc_read):
         if gain <= MIN_GAIN_BITS * 5:
             continue
         score = gain / effort_of(d, key[1], efforts, powered)
