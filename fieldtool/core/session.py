@@ -110,6 +110,9 @@ class BoardSession:
         self.outcome: str | None = None
         self.resumed_from: str | None = None  # when the session picked up again was opened
         self.at_repairs: list[tuple[str, float]] = []  # top suspect (words, odds) at each repair
+        # False after a power-off step (a diode test) until a powered reading is taken again:
+        # the next measurement's efforts depend on it (``ranking.diagnose``)
+        self.powered = True
         self.diagnosis: Diagnosis = diagnose(dictionary, (), priors)
 
     def _save(self, event: hist.Event) -> None:
@@ -144,6 +147,7 @@ class BoardSession:
                 # A Verification is a Reading too; before any action it still counts.
                 m = event.measurement
                 self.taken[m.at, m.quantity.name] = m
+                self.powered = m.quantity.powered
                 restored += 1
         self._rediagnose()
         return restored
@@ -157,12 +161,38 @@ class BoardSession:
     # --- measurements --------------------------------------------------------------------
 
     def _known(self, m: Measurement) -> bool:
-        return m.quantity.taken_at == "node" and m.at in self.dictionary.nodes
+        """Placed where this board allows its kind: a node, a rail it has, one of its diodes."""
+        d = self.dictionary
+        if m.quantity.taken_at == "node":
+            return m.at in d.nodes
+        if m.quantity.taken_at == "rail":
+            return m.at in d.rails
+        try:
+            d.resolve_part(m.at or "")
+        except InputError:
+            return False
+        return True
+
+    def _where(self, m: Measurement) -> str:
+        d = self.dictionary
+        if m.quantity.taken_at == "rail":
+            return f"{m.quantity.words} at {m.at!r}: this board's current is read at " + (
+                ", ".join(d.rails) or "no rail"
+            )
+        if m.quantity.taken_at == "part":
+            parts = ", ".join(d.part_name(r) for r in d.diodes) or "none"
+            return f"{m.quantity.words} at {m.at!r}: not a diode of this board ({parts})"
+        return f"{m.quantity.words} at {m.at!r}: not a node of this board ({', '.join(d.nodes)})"
 
     def measurements(self) -> tuple[Measurement, ...]:
-        """The current phase's measurements, in ladder order, as the diagnosis takes them."""
+        """The current phase's measurements, nodes in ladder order (then rails and parts), as
+        the diagnosis takes them."""
         nodes = self.dictionary.nodes
-        return tuple(sorted(self.taken.values(), key=lambda m: nodes.index(m.at)))
+
+        def order(m: Measurement) -> tuple[int, str]:
+            return (nodes.index(m.at), "") if m.at in nodes else (len(nodes), m.at or "")
+
+        return tuple(sorted(self.taken.values(), key=order))
 
     def latest(self, at: str, quantity: Quantity = DC) -> Measurement | None:
         """This phase's measurement of ``quantity`` at ``at``, if one was taken."""
@@ -181,21 +211,23 @@ class BoardSession:
         """
         for m in measurements:
             if not self._known(m):
-                nodes = ", ".join(self.dictionary.nodes)
-                raise InputError(
-                    f"{m.quantity.words} at {m.at!r}: not a node of this board ({nodes})"
-                )
+                raise InputError(self._where(m))
             problem = reading_problem(self.profile, m)
             if problem:
                 raise InputError(f"{problem}; not taken, nothing saved")
         kind = hist.Verification if self.phase == "verifying" else hist.Reading
         for m in measurements:
             self._save(kind(m))
+            # one reading of a kind at a place a phase: a later one (under another test load
+            # too) replaces it
             self.taken[m.at, m.quantity.name] = m
+            self.powered = m.quantity.powered
         return self._rediagnose()
 
     def _rediagnose(self) -> Diagnosis:
-        self.diagnosis = diagnose(self.dictionary, self.measurements(), self.priors)
+        self.diagnosis = diagnose(
+            self.dictionary, self.measurements(), self.priors, powered=self.powered
+        )
         return self.diagnosis
 
     # --- repair and outcome --------------------------------------------------------------
