@@ -6,13 +6,19 @@ import tomllib
 from dataclasses import dataclass, field, fields, replace
 from pathlib import Path
 
+from fieldtool.core.measurement import QUANTITIES, Quantity
 from fieldtool.meters.errors import MeterSettingsError
+from fieldtool.meters.modes import DC_VOLTS, mode_of
 
 PROTOCOLS = ("scpi", "stream")
 TERMINATORS = ("\n", "\r\n", "\r")
+# The number (or OL), then the unit with what a meter prints after it: "V", "mV DC", "VAC",
+# "V~", "mA", "uA", "V DIODE", "V ->|", "Vpp" (``modes.unit_marking`` says which is which).
 DEFAULT_STREAM_REGEX = (
-    r"(?P<value>[-+]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][-+]?\d+)?|\bOL\b)\s*(?P<unit>[mkuµ]?V)?"
+    r"(?P<value>[-+]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][-+]?\d+)?|\bOL\b)\s*"
+    r"(?P<unit>[nmkuµμ]?[VA](?:\s*(?:AC|DC|~|=|⎓|DIODE|->\||▶\||p-?p)(?![A-Za-z]))?)?"
 )
+STREAM_KINDS = ("auto", *QUANTITIES)  # auto: the kind from the unit each line prints
 
 
 @dataclass(frozen=True)
@@ -29,6 +35,13 @@ class SettleRule:
     volts: float = 0.005
     timeout_s: float = 10.0
     trend: bool = True
+    # The fixed part of the band for a current (volts is for every reading in volts): a
+    # handheld's µA range resolves 0.1 µA, a few counts of it (common practice, no source).
+    amps: float = 1e-6
+
+    def fixed(self, unit: str) -> float:
+        """The fixed part of the band for a reading in ``unit`` ("V" or "A")."""
+        return self.amps if unit == "A" else self.volts
 
 
 @dataclass(frozen=True)
@@ -44,6 +57,20 @@ class MeterSettings:
     timeout_s: float = 2.0
     command_delay_s: float = 0.0  # pause between commands, for meters that drop fast ones
     settle: SettleRule = field(default_factory=SettleRule)
+    # [configure]: kind → its set-up command, "" where the meter has no such mode; kinds not
+    # listed use the mode's SCPI command (``modes``), dc-loaded the one for dc.
+    configure: tuple[tuple[str, str], ...] = ()
+    check_errors: bool = True  # ask SYST:ERR? after each set-up and refuse what it reports
+    stream_kind: str = "auto"  # a streaming meter's kind: from its unit, or always this one
+
+    def setup_command(self, quantity: Quantity) -> str:
+        """The SCPI command that sets the meter up for ``quantity`` ("" where it cannot)."""
+        given = dict(self.configure)
+        mode = mode_of(quantity)
+        for kind in (quantity.name, mode.kinds[0]):
+            if kind in given:
+                return given[kind]
+        return self.configure_command if mode is DC_VOLTS else mode.scpi
 
 
 def _check_type(where: str, key: str, value: object, kind: type) -> object:
@@ -67,15 +94,33 @@ def _build(cls: type, table: dict, where: str, prefix: str = "") -> dict:
             allowed = ", ".join(sorted(known))
             raise MeterSettingsError(f"{where}: unknown key '{name}' (known keys: {allowed})")
         kind = known[key].type
+        if key == "configure" and cls is MeterSettings:
+            kwargs[key] = _configure_table(value, where)
+            continue
         if kind == "SettleRule":
             if not isinstance(value, dict):
                 raise MeterSettingsError(f"{where}: key '{name}' must be a table [settle]")
             kwargs[key] = SettleRule(**_build(SettleRule, value, where, prefix="settle."))
             continue
         kwargs[key] = _check_type(
-            where, name, value, {"str": str, "int": int, "float": float}[kind]
+            where, name, value, {"str": str, "int": int, "float": float, "bool": bool}[kind]
         )
     return kwargs
+
+
+def _configure_table(table: object, where: str) -> tuple[tuple[str, str], ...]:
+    """The ``[configure]`` table: a known kind → a set-up command (a string)."""
+    if not isinstance(table, dict):
+        raise MeterSettingsError(f"{where}: key 'configure' must be a table [configure]")
+    out = []
+    for kind, command in table.items():
+        if kind not in QUANTITIES:
+            known = ", ".join(QUANTITIES)
+            raise MeterSettingsError(
+                f"{where}: [configure] has unknown kind '{kind}' (known kinds: {known})"
+            )
+        out.append((kind, str(_check_type(where, f"configure.{kind}", command, str))))
+    return tuple(out)
 
 
 def validate(settings: MeterSettings, where: str = "settings") -> MeterSettings:
@@ -100,6 +145,13 @@ def validate(settings: MeterSettings, where: str = "settings") -> MeterSettings:
         raise MeterSettingsError(f"{where}: settle.count must be at least 1")
     if settings.settle.percent < 0 or settings.settle.volts < 0:
         raise MeterSettingsError(f"{where}: settle.percent and settle.volts must not be negative")
+    if settings.stream_kind not in STREAM_KINDS:
+        raise MeterSettingsError(
+            f"{where}: stream_kind must be one of {', '.join(STREAM_KINDS)}, "
+            f"not '{settings.stream_kind}'"
+        )
+    if settings.settle.amps < 0:
+        raise MeterSettingsError(f"{where}: settle.amps must not be negative")
     if settings.protocol == "stream" and "(?P<value>" not in settings.stream_regex:
         raise MeterSettingsError(f"{where}: stream_regex needs a named group (?P<value>...)")
     return settings
