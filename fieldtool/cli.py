@@ -14,6 +14,7 @@ import sys
 
 from fieldtool import __version__
 from fieldtool.core.errors import FieldtoolError
+from fieldtool.core.hazard import SAFETY_WARNING
 
 COMMAND_MODULES = (
     "fieldtool.commands.expect",
@@ -49,11 +50,37 @@ class _Parser(argparse.ArgumentParser):
         return " ".join(parts[1:]) if len(parts) > 1 else ""
 
 
+DESCRIPTION = """\
+Find the failed diode or capacitor on a voltage-multiplier board (DC-fed ladder,
+Dickson charge pump, Cockcroft-Walton ladder), node by node, from what every node
+should read on that board; keep safe around stored charge; keep each board's
+repair history."""
+EPILOG = f"""\
+where to start:
+  fieldtool demo                 practise on an invented board with a hidden fault
+  fieldtool                      the start screen: board type, serial and meter, then probe
+  fieldtool probe PROFILE --board SERIAL
+                                 straight to probing one board
+  fieldtool expect PROFILE       what every node of a board should read
+  fieldtool profiles             the board types (profiles) you can name
+
+Each command explains itself: fieldtool COMMAND --help.
+
+{SAFETY_WARNING}"""
+
+
 def build_parser(command: str | None = None) -> argparse.ArgumentParser:
     """The parser with every available subcommand registered, or only ``command``'s module's."""
-    parser = _Parser(prog="fieldtool", description=__doc__.splitlines()[0])
+    parser = _Parser(
+        prog="fieldtool",
+        description=DESCRIPTION,
+        epilog=EPILOG,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
     parser.add_argument("--version", action="version", version=f"fieldtool {__version__}")
-    subparsers = parser.add_subparsers(dest="command", parser_class=_Parser)
+    subparsers = parser.add_subparsers(
+        dest="command", parser_class=_Parser, title="commands", metavar="COMMAND"
+    )
     modules = (COMMAND_MODULE[command],) if command in COMMAND_MODULE else COMMAND_MODULES
     for name in modules:
         importlib.import_module(name).register(subparsers)  # each one always exists

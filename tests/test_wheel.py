@@ -1,8 +1,10 @@
 """A plain wheel install carries the shipped profiles (packaging check, no source needed).
 
 Builds the wheel with pip, installs it into a fresh virtual environment (the runtime
-dependencies are taken from this interpreter's site-packages so no download is needed), and
-runs ``fieldtool expect`` on a shipped profile by name from an empty folder.
+dependencies are taken from the site-packages folders of the interpreter running the tests,
+through a ``.pth`` file, so no download is needed whether that interpreter is a system Python
+or a virtual environment), and runs ``fieldtool expect`` on a shipped profile by name from an
+empty folder.
 """
 
 import os
@@ -29,8 +31,18 @@ def test_wheel_install_runs_a_shipped_profile_by_name(tmp_path):
     ]
     assert kernels, "the wheel carries no compiled solver kernel (hatch_build.py)"
     venv = tmp_path / "venv"
-    subprocess.run([sys.executable, "-m", "venv", "--system-site-packages", str(venv)], check=True)
+    subprocess.run([sys.executable, "-m", "venv", str(venv)], check=True)
     python = venv / "bin" / "python"
+    inner = subprocess.run(
+        [str(python), "-c", "import sysconfig; print(sysconfig.get_paths()['purelib'])"],
+        capture_output=True,
+        text=True,
+        check=True,
+    ).stdout.strip()
+    # Plain folder lines: appended after the venv's own site-packages, and their own .pth files
+    # (this checkout's editable install) are not run, so the wheel's package is the one found.
+    outer = [p for p in sys.path if p.endswith("site-packages") and Path(p).is_dir()]
+    (Path(inner) / "test-dependencies.pth").write_text("\n".join(outer) + "\n")
     subprocess.run(
         [str(python), "-m", "pip", "install", "-q", "--no-deps", str(wheel)],
         check=True,

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import difflib
+import getpass
 import os
 from pathlib import Path
 
@@ -39,13 +40,21 @@ def _known_serials(logs: Path) -> list[str]:
 
 def load_board(logs: Path, serial: str) -> BoardHistory:
     """A board's history; an unknown serial names the closest ones that exist."""
-    check_name(serial)
+    serial = check_name(serial, existing=True)
     try:
         return read_board(logs, serial)
     except NotFoundError:
         close = difflib.get_close_matches(serial, _known_serials(logs), n=3)
         hint = f"; did you mean {', '.join(close)}?" if close else ""
         raise NotFoundError(f"no history for board {serial!r} in {logs}{hint}") from None
+
+
+def login_name() -> str:
+    """Who is logged in, for the history's technician field when none is given."""
+    try:
+        return getpass.getuser()
+    except (KeyError, OSError):
+        return "unknown"
 
 
 PROFILE_HELP = "board profile: a name (see 'fieldtool profiles') or a .toml file"

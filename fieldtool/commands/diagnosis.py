@@ -13,8 +13,11 @@ from pathlib import Path
 from fieldtool.commands.boards import PROFILE_HELP, profile_arg
 from fieldtool.commands.expect import full_json as expectation_json
 from fieldtool.commands.expect import full_text as expectation_text
+from fieldtool.commands.output import check_out, write_whole
+from fieldtool.core.circuit.library import ProfileEntry, locate, user_profiles_dir
 from fieldtool.core.circuit.profile import Profile, profile_from_dict
 from fieldtool.core.circuit.profile_write import to_toml
+from fieldtool.core.circuit.reading_range import reading_problem
 from fieldtool.core.diagnosis.calibrate import calibrate
 from fieldtool.core.diagnosis.dictionary import FaultDictionary
 from fieldtool.core.diagnosis.dictionary_cache import default_cache_dir, load_or_build
@@ -22,9 +25,11 @@ from fieldtool.core.diagnosis.faults import describe, parse_fault
 from fieldtool.core.diagnosis.priors import Priors
 from fieldtool.core.diagnosis.ranking import Diagnosis, diagnose
 from fieldtool.core.errors import InputError, ProfileError
+from fieldtool.core.hazard import safety_line
 from fieldtool.core.measurement import DC
 from fieldtool.core.readings import load_readings
 from fieldtool.core.session import choose_priors, history_failures
+from fieldtool.core.words import count
 
 FAULT_HELP = (
     "TARGET:MODE[=SEVERITY], e.g. D5:open, C4:short, C3:lowcap=0.3 (fraction left), "
@@ -67,6 +72,12 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     cal.add_argument("--readings", required=True, help="CSV of a known-good board's readings")
     cal.add_argument("--out", required=True, help="where to write the fitted profile (.toml)")
     cal.add_argument("--force", action="store_true", help="overwrite --out if it exists")
+    cal.add_argument(
+        "--accept-poor-fit",
+        action="store_true",
+        help="write the fitted profile even when the readings do not look like a healthy board "
+        "(a drive or diode drop far from the profile's, or nodes far off the fit)",
+    )
     cal.add_argument("--json", action="store_true", help="one JSON object on stdout")
     cal.set_defaults(handler=run_calibrate)
 
@@ -137,7 +148,7 @@ def run_diagnose(args: argparse.Namespace) -> int:
 def diagnosis_text(d: FaultDictionary, readings, result: Diagnosis) -> str:
     """Readings against the healthy bands, the ranked suspects and the advice."""
     dc = [r for r in readings if r.quantity == DC]
-    lines = [f"{d.profile.name}: {len(dc)} reading(s)", ""]
+    lines = [f"{d.profile.name}: {count(len(dc), 'reading')}", ""]
     lines.append(f"{'node':<6}{'test pt':<9}{'read':>10}{'healthy band':>24}  verdict")
     for r in dc:
         band = d.band(r.at)
@@ -146,8 +157,11 @@ def diagnosis_text(d: FaultDictionary, readings, result: Diagnosis) -> str:
             lines.append(f"{r.at:<6}{label:<9}{'OL':>10}{'':>24}  over range")
             continue
         verdict = "in band" if band.contains(r.value) else ("LOW" if r.value < band.low else "HIGH")
+        if reading_problem(d.profile, r):
+            verdict = "not a reading of this board (wrong range or unit?)"
+        value = f"{r.value:>8.3f}" if abs(r.value) < 1e5 else f"{r.value:>8.2e}"
         span = f"{band.low:.2f} … {band.high:.2f} V"
-        lines.append(f"{r.at:<6}{label:<9}{r.value:>8.3f} V{span:>24}  {verdict}")
+        lines.append(f"{r.at:<6}{label:<9}{value} V{span:>24}  {verdict}")
     lines += ["", "most likely:"]
     for s in result.suspects[:8]:
         bar = "#" * round(s.probability * 20)
@@ -162,12 +176,14 @@ def diagnosis_text(d: FaultDictionary, readings, result: Diagnosis) -> str:
         lines.append(f"next: none needed; {result.top.words} at {result.top.probability:.0%}")
     else:
         lines.append("next: no node left that would tell more; check suspects out of circuit")
-    lines.append(("WARNING: " if result.fit.no_fit else "fit: ") + result.fit.text)
+    # "NO FIT", not WARNING: that signal word is kept for the hazard (see core.circuit.safety).
+    lines.append(("NO FIT: " if result.fit.no_fit else "fit: ") + result.fit.text)
     lines += [f"note: {text}" for text in result.ignored]
-    lines.append(
-        "CAUTION: power off and discharge before touching parts; verify with the meter. "
-        "Local codes and licensed practice take precedence."
-    )
+    highest = max(max(abs(d.band(n).low), abs(d.band(n).high)) for n in d.nodes)
+    dc = [r for r in readings if r.quantity == DC and reading_problem(d.profile, r) is None]
+    overload = any(r.value is None for r in dc)
+    read = [abs(r.value) for r in dc if r.value is not None]
+    lines.append(safety_line(None if overload else max([highest, *read]), d.profile.safe_volts))
     return "\n".join(lines)
 
 
@@ -177,20 +193,23 @@ def diagnosis_text(d: FaultDictionary, readings, result: Diagnosis) -> str:
 def run_calibrate(args: argparse.Namespace) -> int:
     """Handle ``fieldtool calibrate``."""
     out = Path(args.out)
-    if out.exists() and not args.force:
-        raise InputError(f"{out} exists; pass --force to overwrite it, or choose another --out")
-    profile = profile_arg(args.profile)
+    check_out("--out", out, force=args.force)
+    entry = locate(args.profile, user_profiles_dir(os.environ))
+    profile = entry.load()
     from fieldtool.core.circuit.netlist import build_circuit
 
     circuit, _ = build_circuit(profile)
     nodes = [circuit.name(i) for i in circuit.probe_nodes]
     readings = load_readings(args.readings, nodes, profile.labels)
     result = calibrate(profile, readings)
-    text = fitted_toml(args.profile, profile, result, args.readings)
-    try:
-        out.write_text(text, encoding="utf-8")
-    except OSError as exc:
-        raise InputError(f"cannot write {out}: {exc.strerror or exc}") from None
+    if result.problems and not args.accept_poor_fit:
+        raise InputError(
+            f"these readings do not look like a healthy {profile.name}: "
+            f"{'; '.join(result.problems)}. Nothing was written. Calibrate from a board known to "
+            "be good (diagnose this one first), or pass --accept-poor-fit to write it anyway"
+        )
+    text = fitted_toml(entry, profile, result, args.readings)
+    write_whole("--out", out, text.encode("utf-8"))
     summary = {
         "out": str(out),
         "drive_volts": result.profile.drive_volts,
@@ -202,6 +221,7 @@ def run_calibrate(args: argparse.Namespace) -> int:
         "residuals": result.residuals,
         "iterations": result.iterations,
         "notes": list(result.notes),
+        "problems": list(result.problems),
     }
     if args.json:
         print(json.dumps(summary, indent=2))
@@ -219,16 +239,17 @@ def run_calibrate(args: argparse.Namespace) -> int:
         print(f"  {node:<6}{e * 1000:+9.1f} mV")
     for note in result.notes:
         print(f"note: {note}")
-    if result.chi2 > 4 * max(len(result.residuals), 1):
-        print("WARNING: the fit is poor for a known-good board; is it really healthy?")
+    for problem in result.problems:
+        print(f"POOR FIT (written because of --accept-poor-fit): {problem}")
     return 0
 
 
-def fitted_toml(source: str, original: Profile, result, readings_path: str) -> str:
+def fitted_toml(entry: ProfileEntry, original: Profile, result, readings_path: str) -> str:
     """The source profile's TOML with the fitted drive, diode and supply values."""
+    source = entry.where
     try:
-        data = tomllib.loads(Path(source).read_text(encoding="utf-8"))
-    except (OSError, tomllib.TOMLDecodeError) as exc:
+        data = tomllib.loads(entry.read_bytes().decode("utf-8-sig"))
+    except (UnicodeDecodeError, tomllib.TOMLDecodeError) as exc:
         raise ProfileError(f"{source}: cannot re-read for writing ({exc})") from None
     fitted = result.profile
     data["drive"]["volts"] = fitted.drive_volts
@@ -245,8 +266,13 @@ def fitted_toml(source: str, original: Profile, result, readings_path: str) -> s
         f"Drive ×{result.drive_scale:.4f}, diode drop {result.diode_shift_v * 1000:+.1f} mV, "
         f"residual {result.rms_volts * 1000:.1f} mV rms."
     )
+    if result.problems:
+        header += "\nPOOR FIT, written with --accept-poor-fit: " + "; ".join(result.problems)
     text = to_toml(data, header)
-    profile_from_dict(tomllib.loads(text), "<calibrated>")  # refuse to write what won't load
+    try:  # refuse to write what would not load
+        profile_from_dict(tomllib.loads(text), "the fitted profile")
+    except ProfileError as exc:
+        raise InputError(f"{exc.message}; nothing was written") from None
     return text
 
 

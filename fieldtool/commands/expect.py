@@ -8,10 +8,13 @@ import math
 from fieldtool.commands import expect_readouts
 from fieldtool.commands.boards import PROFILE_HELP, profile_arg
 from fieldtool.commands.expect_readouts import si as _si
+from fieldtool.commands.options import number
 from fieldtool.core.circuit.expect import Expectation, expect
 from fieldtool.core.circuit.netlist import Change
 from fieldtool.core.circuit.profile import Profile
+from fieldtool.core.circuit.ranges import LOAD_OHMS
 from fieldtool.core.circuit.readouts.board import board_readouts
+from fieldtool.core.hazard import safety_line
 
 
 def register(subparsers) -> None:
@@ -26,7 +29,12 @@ def register(subparsers) -> None:
         ),
     )
     p.add_argument("profile", help=PROFILE_HELP)
-    p.add_argument("--load-ohms", type=float, help="use this load instead of the profile's")
+    p.add_argument(
+        "--load-ohms",
+        type=number(LOAD_OHMS, "load"),
+        metavar="OHMS",
+        help="use this resistive load instead of the profile's (e.g. 470k)",
+    )
     p.add_argument("--json", action="store_true", help="one JSON object on stdout")
     p.set_defaults(handler=run)
 
@@ -93,6 +101,19 @@ def to_json(e: Expectation) -> dict:
     }
 
 
+def _percent(x: float | None) -> str:
+    return "n/a" if x is None or not math.isfinite(x) else f"{x:.1%}"
+
+
+def _discharge(e: Expectation) -> str:
+    """How long the board takes to fall below its safe level, in words."""
+    if e.discharge_s is None or not math.isfinite(e.discharge_s):
+        return f"no path found below {e.safe_volts:g} V: treat it as charged until measured"
+    if e.discharge_s == 0:
+        return f"already below {e.safe_volts:g} V"
+    return f"below {e.safe_volts:g} V in {_si(e.discharge_s, 's')}"
+
+
 def to_text(e: Expectation) -> str:
     """A readable table of nodes and the board figures."""
     p = e.profile
@@ -110,11 +131,9 @@ def to_text(e: Expectation) -> str:
         f"output {e.output_node}: {e.output_volts:.3f} V, ripple {_si(e.output_ripple_vpp, 'V')}"
         f" p-p, output impedance {_si(e.output_ohms, 'Ω')}",
         f"supply current {_si(e.supply_current_a, 'A')}, drive-rail current "
-        f"{_si(e.drive_current_a, 'A')}, efficiency {e.efficiency:.1%}",
+        f"{_si(e.drive_current_a, 'A')}, efficiency {_percent(e.efficiency)}",
         f"start-up to 90 %: {_si(e.startup_s, 's')} (estimate from the linearised period map)",
-        f"stored energy {_si(e.stored_energy_j, 'J')}; after power-off, below "
-        f"{e.safe_volts:g} V in {_si(e.discharge_s, 's')}",
-        "CAUTION: capacitors hold charge after power-off. Discharge through a rated resistor and "
-        "verify with the meter before touching; follow local codes and licensed practice.",
+        f"stored energy {_si(e.stored_energy_j, 'J')}; after power-off, {_discharge(e)}",
+        safety_line(max(abs(n.unloaded_volts) for n in e.nodes), e.safe_volts),
     ]
     return "\n".join(lines)

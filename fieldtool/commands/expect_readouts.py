@@ -9,6 +9,7 @@ from fieldtool.core.circuit.readouts.board import BoardReadouts
 from fieldtool.core.circuit.readouts.diode_test import DIRECTIONS
 from fieldtool.core.circuit.safety import POWER_OFF_CAUTION, TEST_LOAD_CAUTION
 from fieldtool.core.circuit.spec import display_name
+from fieldtool.core.hazard import signal_word
 
 
 def _num(x: float) -> float | None:
@@ -126,7 +127,7 @@ def text(b: BoardReadouts) -> str:
             f"{_si(abs(t.volts), 'V')}{rated}{warn}"
         )
     if b.test_loads:
-        lines.append(f"CAUTION: {TEST_LOAD_CAUTION}")
+        lines.append(f"{_word(b)}: {TEST_LOAD_CAUTION}")
     lines += ["", _diode_text(b)]
     return "\n".join(lines)
 
@@ -148,8 +149,14 @@ def _diode_text(b: BoardReadouts) -> str:
     for names, said in rows:
         who = names[0] if len(names) == 1 else f"{names[0]} … {names[-1]}"
         lines.append(f"  {who:<10}{said}")
-    lines.append(f"CAUTION: {POWER_OFF_CAUTION.format(safe=p.safe_volts)}")
+    lines.append(f"{_word(b)}: {POWER_OFF_CAUTION.format(safe=p.safe_volts)}")
     return "\n".join(lines)
+
+
+def _word(b: BoardReadouts) -> str:
+    """The signal word for this board's stored charge: WARNING where its output reaches the
+    safe level, CAUTION below it (``fieldtool.core.hazard``)."""
+    return signal_word(b.output_volts, b.profile.safe_volts)
 
 
 def _diode_words(b: BoardReadouts, i: int) -> str:

@@ -7,20 +7,24 @@ The logs folder is ``--logs DIR``, else ``$FIELDTOOL_LOGS``, else ``./logs``.
 from __future__ import annotations
 
 import argparse
+import difflib
 import json
 import os
+from pathlib import Path
 
 from fieldtool.commands.boards import existing_logs, load_board, profile_arg
 from fieldtool.commands.history_text import fleet_text, safe, timeline
-from fieldtool.core.circuit.library import looks_like_path
-from fieldtool.core.errors import InputError
+from fieldtool.core.circuit.library import available, looks_like_path, user_profiles_dir
+from fieldtool.core.errors import InputError, shown
 from fieldtool.core.history import (
     ENV_VAR,
     OUTCOMES,
     HistoryError,
+    NotFoundError,
+    check_name,
     resolve_logs_dir,
 )
-from fieldtool.core.history.fleet import fleet_view
+from fieldtool.core.history.fleet import fleet_view, profiles_with_histories
 from fieldtool.core.history.merge import merge
 from fieldtool.core.history.sessions import confirmed_in, group_sessions
 
@@ -153,16 +157,25 @@ def run_merge(args: argparse.Namespace) -> int:
     return 0
 
 
-def profile_name_of(text: str) -> str:
-    """A profile name from a name or a ``.toml`` path."""
+def profile_name_of(text: str, logs: Path) -> str:
+    """A profile name from a name or a ``.toml`` path; a name must be a profile fieldtool knows
+    or one with histories in ``logs``, so a slip is not shown as an empty fleet."""
     if looks_like_path(text):
         return profile_arg(text).name
-    return text
+    name = check_name(text, "profile name", existing=True)
+    with_histories = profiles_with_histories(logs)
+    known = [e.name for e in available(user_profiles_dir(os.environ))]
+    if name in with_histories or name in known:
+        return name
+    close = difflib.get_close_matches(name, [*with_histories, *known], n=3)
+    hint = f"did you mean {', '.join(close)}?" if close else "see 'fieldtool profiles'"
+    raise NotFoundError(f"no profile named {shown(name)} and no histories for it in {logs}; {hint}")
 
 
 def run_fleet(args: argparse.Namespace) -> int:
-    """Handle ``fieldtool fleet``."""
-    view = fleet_view(existing_logs(args.logs), profile_name_of(args.profile))
+    """Handle ``fieldtool fleet``; a board type with no histories yet has an empty fleet."""
+    logs = existing_logs(args.logs)
+    view = fleet_view(logs, profile_name_of(args.profile, logs))
     if args.json:
         print(json.dumps(view.to_json(), indent=2, ensure_ascii=False))
     else:

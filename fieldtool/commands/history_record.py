@@ -15,12 +15,12 @@ the colon is a catalogued failure mode, as in fault specs; a severity such as
 from __future__ import annotations
 
 import argparse
-import getpass
 import json
 import os
 
-from fieldtool.commands.boards import PROFILE_HELP, profile_arg
+from fieldtool.commands.boards import PROFILE_HELP, login_name, profile_arg
 from fieldtool.commands.history_text import safe
+from fieldtool.commands.options import technician
 from fieldtool.core.circuit.netlist import default_designators
 from fieldtool.core.circuit.profile import Profile
 from fieldtool.core.circuit.spec import display_name
@@ -63,7 +63,9 @@ def register(subparsers: argparse._SubParsersAction, logs_help: str, outcomes) -
     p.add_argument("--note", help="a note on the action (with a single --action)")
     p.add_argument("--verify", metavar="FILE", help="readings CSV taken after the repair")
     p.add_argument("--outcome", choices=outcomes, help="close the session with this outcome")
-    p.add_argument("--technician", help="who did the work (default: your login name)")
+    p.add_argument(
+        "--technician", type=technician, help="who did the work (default: your login name)"
+    )
     p.add_argument("--logs", help=logs_help)
     p.add_argument("--json", action="store_true", help="one JSON object on stdout")
     p.set_defaults(handler=run_record)
@@ -133,7 +135,7 @@ def run_record(args: argparse.Namespace) -> int:
         dictionary,
         lambda event, _sid: events.append(event),
         priors=priors,
-        technician=args.technician or _login(),
+        technician=args.technician or login_name(),
     )
     session_id = session.open()
     diagnosis = session.take(*readings)
@@ -185,10 +187,3 @@ def run_record(args: argparse.Namespace) -> int:
         lines.append(f"next node worth probing: {diagnosis.next_probe}")
     print("\n".join(lines))
     return 0
-
-
-def _login() -> str:
-    try:
-        return getpass.getuser()
-    except (KeyError, OSError):
-        return "unknown"

@@ -5,12 +5,12 @@ from __future__ import annotations
 import argparse
 import os
 import re
-import uuid
 from pathlib import Path
 from urllib.parse import quote
 
 from fieldtool.commands.boards import existing_logs, load_board, profile_arg
 from fieldtool.commands.history_text import safe
+from fieldtool.commands.output import check_out, write_whole
 from fieldtool.core.circuit.library import available, user_profiles_dir
 from fieldtool.core.circuit.profile import Profile
 from fieldtool.core.errors import FieldtoolError, InputError
@@ -58,17 +58,6 @@ def find_profile(name: str, option: str | None) -> tuple[Profile | None, str]:
     )
 
 
-def _write(path: Path, data: bytes) -> None:
-    """Write a file whole or not at all (temporary file, then rename)."""
-    tmp = path.with_name(f".{path.name}.{uuid.uuid4().hex}.tmp")
-    try:
-        tmp.write_bytes(data)
-        os.replace(tmp, path)
-    except OSError as exc:
-        tmp.unlink(missing_ok=True)
-        raise InputError(f"could not write {path}: {exc.strerror or exc}") from None
-
-
 def run_report(args: argparse.Namespace) -> int:
     """Handle ``fieldtool report``."""
 
@@ -76,8 +65,7 @@ def run_report(args: argparse.Namespace) -> int:
     kind = FORMATS.get(out.suffix.lower())
     if kind is None:
         raise InputError(f"--out {args.out}: name the file .html or .md (e.g. report.html)")
-    if not out.parent.is_dir():
-        raise InputError(f"--out {args.out}: folder {out.parent} does not exist")
+    check_out("--out", out)
     history = load_board(existing_logs(args.logs), args.serial)
     sessions = pick_sessions(group_sessions(history.events), args.session)
     names = [s.profile for s in sessions if s.profile] or [r.profile for r in history.events]
@@ -96,6 +84,7 @@ def run_report(args: argparse.Namespace) -> int:
         expectations,
         f"{note}; {expectations.source}" if note and expectations else note,
         profile.digest if profile else "",
+        profile.safe_volts if profile else None,
     )
     plot_note = MISSING if not plotting_available() else "no plot: no readings to draw"
     if expectations is None:
@@ -106,16 +95,16 @@ def run_report(args: argparse.Namespace) -> int:
             title = f"{args.serial} · {part.start[:10]} · {part.outcome or 'open'}"
             pngs[part.id] = ladder_plot(expectations, part.readings, part.verifications, title)
     if kind == "html":
-        _write(out, to_html(report, pngs, plot_note).encode("utf-8"))
+        write_whole("--out", out, to_html(report, pngs, plot_note).encode("utf-8"))
     else:
         images: dict[str, str | None] = {}
         stem = re.sub(r"[^A-Za-z0-9_-]+", "_", out.stem)
         for sid, png in pngs.items():
             if png:
                 image = out.with_name(f"{stem}-{re.sub(r'[^0-9a-zA-Z]', '', sid)[:12]}.png")
-                _write(image, png)
+                write_whole("--out", image, png)
                 images[sid] = quote(image.name)
-        _write(out, to_markdown(report, images, plot_note).encode("utf-8"))
+        write_whole("--out", out, to_markdown(report, images, plot_note).encode("utf-8"))
     print(
         f"report for board {safe(args.serial)}: {len(report.sessions)} session(s) written to {out}"
     )

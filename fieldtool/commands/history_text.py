@@ -9,6 +9,7 @@ from fieldtool.core.history import UNSETTLED, BoardHistory, Reading, Record, tim
 from fieldtool.core.history.fleet import FleetView
 from fieldtool.core.history.sessions import Session, confirmed_in
 from fieldtool.core.measurement import DC, Measurement
+from fieldtool.core.words import count
 
 LIST_LIMIT = 15  # rows per list in text output; --json has them all
 
@@ -123,8 +124,8 @@ def fleet_text(view: FleetView) -> str:
     """The fleet summary for one profile."""
     outcomes = ", ".join(f"{n} {k}" for k, n in view.outcomes.items()) or "none"
     lines = [
-        f"Fleet {safe(view.profile)}: {view.boards} boards, {view.sessions} sessions ({outcomes}),"
-        f" {view.repairs} repairs",
+        f"Fleet {safe(view.profile)}: {count(view.boards, 'board')}, "
+        f"{count(view.sessions, 'session')} ({outcomes}), {count(view.repairs, 'repair')}",
         "",
         "Confirmed failures (an action naming a catalogued mode, in a session closed fixed):",
     ]

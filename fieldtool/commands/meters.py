@@ -9,29 +9,55 @@ import signal
 import sys
 
 from fieldtool.commands.boards import PROFILE_HELP, profile_arg
+from fieldtool.commands.options import SEED, number, whole
 from fieldtool.core.diagnosis.faults import describe, parse_fault
-from fieldtool.core.errors import InputError
+from fieldtool.core.errors import InputError, shown
 from fieldtool.core.measurement import DC, QUANTITIES, Quantity, quantity
 from fieldtool.core.units import parse_si
 from fieldtool.meters.connect import open_serial_meter
 from fieldtool.meters.errors import WrongMode
 from fieldtool.meters.modes import mode_of
-from fieldtool.meters.settings import MeterSettings, load_settings, with_overrides
+from fieldtool.meters.settings import (
+    BAUD_RATES,
+    COMMAND_DELAY_S,
+    MeterSettings,
+    load_settings,
+    with_overrides,
+)
 from fieldtool.meters.settle import settle
 from fieldtool.meters.sim_pty import PtyMeter
 from fieldtool.meters.simulated import SimulatedMeter, random_fault
 
+BAUD = whole(*BAUD_RATES, "baud", "from teleprinter rates to fast USB-serial adapters")
+
 
 def register(subparsers: argparse._SubParsersAction) -> None:
     """Add the ``ports`` and ``read`` subcommands."""
-    ports = subparsers.add_parser("ports", help="list serial ports a meter may be on")
+    ports = subparsers.add_parser(
+        "ports",
+        help="list serial ports a meter may be on",
+        description="List the serial ports this computer has (USB-serial adapters included), "
+        "with each one's description and USB vid:pid, so you can tell which one is the meter: "
+        "unplug it, list again, and see which line went. Give that device to --port.",
+    )
     ports.add_argument("--json", action="store_true", help="print JSON")
     ports.set_defaults(handler=run_ports)
 
-    read = subparsers.add_parser("read", help="take one reading from a meter")
-    read.add_argument("--port", required=True, help="device path or pyserial URL")
+    read = subparsers.add_parser(
+        "read",
+        help="take one reading from a meter",
+        description="Take one DC-volts reading from a meter on a serial port and print it "
+        "(OL when over range), to check the connection and settings before probing. With "
+        "--settle it waits until a few readings in a row agree, as the probing screen does.",
+    )
+    read.add_argument(
+        "--port",
+        required=True,
+        help="the meter's port: a device such as /dev/ttyUSB0 (see 'fieldtool ports') or a URL "
+        "such as socket://HOST:PORT",
+    )
     read.add_argument("--protocol", choices=("scpi", "stream"))
-    read.add_argument("--baud", type=int)
+    read.add_argument("--baud", type=BAUD, help="serial speed (default 9600, or the settings')")
     read.add_argument("--settings", help="meter settings TOML file")
     read.add_argument("--settle", action="store_true", help="wait for the reading to settle")
     read.add_argument(
@@ -68,11 +94,11 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         help="answer SCPI queries (default) or print a reading line four times a second",
     )
     sim.add_argument(
-        "--seed", type=int, help="noise (and random fault) seed; a new one each run by default"
+        "--seed", type=SEED, help="noise (and random fault) seed; a new one each run by default"
     )
     sim.add_argument(
         "--command-gap",
-        type=float,
+        type=number(COMMAND_DELAY_S, "command gap"),
         default=0.0,
         metavar="SECONDS",
         help="act as a slow meter that loses commands sent sooner than this after the last",
@@ -124,9 +150,11 @@ def _kind(args: argparse.Namespace) -> tuple[Quantity, tuple[tuple[str, float], 
     try:
         ohms = parse_si(args.test_load)
     except ValueError:
-        raise InputError(f"--test-load {args.test_load!r}: expected ohms such as 47k") from None
+        raise InputError(
+            f"--test-load {shown(args.test_load)}: expected ohms such as 47k"
+        ) from None
     if not ohms > 0:
-        raise InputError(f"--test-load {args.test_load!r}: a resistance above 0 ohms")
+        raise InputError(f"--test-load {shown(args.test_load)}: a resistance above 0 ohms")
     return kind, (("test_load_ohms", ohms),)
 
 
@@ -181,8 +209,6 @@ def _chosen_fault(args: argparse.Namespace, profile, seed: int):
 
 def run_sim_meter(args: argparse.Namespace) -> int:
     """Serve a simulated meter on a pty until quit, end of input or Ctrl-C."""
-    if args.command_gap < 0:
-        raise InputError(f"--command-gap {args.command_gap:g}: expected seconds, 0 or more")
     # Ctrl-C is how sim-meter stops; a shell that starts it in the background hands it an
     # ignored SIGINT, so ask for the usual KeyboardInterrupt back.
     signal.signal(signal.SIGINT, signal.default_int_handler)

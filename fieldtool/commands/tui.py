@@ -9,7 +9,9 @@ import sys
 import tempfile
 from pathlib import Path
 
-from fieldtool.commands.boards import PROFILE_HELP, profile_arg
+from fieldtool.commands.boards import PROFILE_HELP, login_name, profile_arg
+from fieldtool.commands.meters import BAUD
+from fieldtool.commands.options import SEED, technician
 from fieldtool.core import history as hist
 from fieldtool.core.circuit.library import user_profiles_dir
 from fieldtool.core.circuit.netlist import build_circuit
@@ -23,10 +25,7 @@ DEMO_PROFILE = "tidegauge-apd-bias"  # a shipped profile, by name
 
 def register(subparsers: argparse._SubParsersAction) -> None:
     """Add ``probe``, ``demo`` and ``tui``; with no subcommand at all, open the start screen."""
-    common = argparse.ArgumentParser(add_help=False)
-    common.add_argument("--logs", help="history folder (default: $FIELDTOOL_LOGS or ./logs)")
-    common.add_argument("--technician", default="", help="your name or initials for the history")
-    common.add_argument("--cache", help="fault dictionary cache folder")
+    common = _common(f"history folder (default: ${hist.ENV_VAR}, else ./logs)")
 
     tui = subparsers.add_parser("tui", parents=[common], help="open the start screen")
     tui.add_argument("--settings", help="meter settings TOML file")
@@ -39,17 +38,26 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     probe.add_argument("--board", required=True, help="the board's serial")
     probe.add_argument("--port", help="meter port or URL (omit to type readings)")
     probe.add_argument("--protocol", choices=("scpi", "stream"))
-    probe.add_argument("--baud", type=int)
+    probe.add_argument("--baud", type=BAUD, help="serial speed (default 9600, or the settings')")
     probe.add_argument("--settings", help="meter settings TOML file")
     choice = probe.add_mutually_exclusive_group()
     choice.add_argument("--resume", action="store_true", help="resume an unfinished session")
     choice.add_argument("--new", action="store_true", help="start a new session without asking")
     probe.set_defaults(handler=run_probe)
 
-    demo = subparsers.add_parser(
-        "demo", parents=[common], help="practise on an invented board with a hidden fault"
+    demo_logs = (
+        "history folder for the practice boards (default: fieldtool-demo in the system's "
+        "temporary folder, so practice stays out of your real histories)"
     )
-    demo.add_argument("--seed", type=int, default=1, help="which hidden fault (default 1)")
+    demo = subparsers.add_parser(
+        "demo",
+        parents=[_common(demo_logs)],
+        help="practise on an invented board with a hidden fault",
+        description="Practise on an invented demo board with a simulated meter and a hidden "
+        "fault: follow the next-node hints, name the part, record the repair and see whether "
+        "you found it. Each --seed hides a different fault.",
+    )
+    demo.add_argument("--seed", type=SEED, default=1, help="which hidden fault (default 1)")
     demo.add_argument(
         "--profile",
         default=DEMO_PROFILE,
@@ -60,6 +68,20 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     # argparse keeps one defaults table per parser and shares it with this argument group:
     # with no subcommand the start screen opens; a subcommand's own handler replaces it.
     subparsers.container.set_defaults(handler=run_default)
+
+
+def _common(logs_help: str) -> argparse.ArgumentParser:
+    """The options every terminal-UI command takes."""
+    common = argparse.ArgumentParser(add_help=False)
+    common.add_argument("--logs", metavar="DIR", help=logs_help)
+    common.add_argument(
+        "--technician",
+        type=technician,
+        help="your name or initials for the history (default: your login name; the start "
+        "screen can change it)",
+    )
+    common.add_argument("--cache", metavar="DIR", help="fault dictionary cache folder")
+    return common
 
 
 def run_default(args: argparse.Namespace) -> int:
@@ -91,7 +113,7 @@ def _run(args: argparse.Namespace, request=None, settings: MeterSettings | None 
         request=request,
         profiles_dir=user_profiles_dir(os.environ),
         cache_dir=getattr(args, "cache", None),
-        technician=getattr(args, "technician", "") or "",
+        technician=getattr(args, "technician", None) or login_name(),
         settings=settings,
     )
     app.run()

@@ -41,3 +41,22 @@ class InputError(FieldtoolError):
     """A readings file, fault spec or command-line value that cannot be used."""
 
     title = "Bad input"
+
+
+ECHO_CHARACTERS = 40  # how much of a value a message repeats (common practice, no source)
+
+
+def shown(value: object, limit: int = ECHO_CHARACTERS) -> str:
+    """A value as a message repeats it: text quoted, anything else as Python writes it, and
+    either cut short when long.
+
+    A pasted 100,000-digit number or a whole file in one field must not fill the screen; the
+    message keeps its start and says how long it was.
+    """
+    if isinstance(value, int) and not isinstance(value, bool) and value.bit_length() > 128:
+        return f"a {int(value.bit_length() * 0.30103) + 1}-digit number"
+    text = repr(value)
+    if len(text) <= limit:
+        return text
+    size = len(value) if isinstance(value, str) else len(text)
+    return f"{text[:limit]}… ({size} characters)"

@@ -2,9 +2,11 @@
 
 A readings file has a header row ``node,volts`` and an optional ``ripple_vpp`` column; node
 names are the ones ``fieldtool expect`` prints (S0, P1, S1, ..., OUT), test-point labels from
-the profile are accepted too. ``volts`` is a number (a decimal comma is refused in CSV, where
-the comma separates columns) or ``OL`` for a meter over range. Blank lines and lines starting
-with ``#`` are skipped. Each row gives a ``dc`` measurement at its node and, where the ripple
+the profile are accepted too. Columns are separated by commas, or by semicolons or tabs as
+spreadsheets export them (the header tells which). ``volts`` is written as it would be typed
+(``12.9``, ``125.7V``, ``890mV``, ``1.2kV``; a decimal comma where commas do not separate the
+columns, or in quotes) or ``OL`` for a meter over range. Blank lines and lines starting with
+``#`` are skipped. Each row gives a ``dc`` measurement at its node and, where the ripple
 cell is filled, a ``ripple-pp`` measurement there too; their source is the file's name.
 """
 
@@ -12,30 +14,37 @@ from __future__ import annotations
 
 import csv
 import io
-import math
 from collections.abc import Iterable, Sequence
 from pathlib import Path
 
-from fieldtool.core.errors import InputError
+from fieldtool.core.errors import InputError, shown
 from fieldtool.core.measurement import DC, RIPPLE_PP, Measurement, Source
+from fieldtool.core.units import parse_reading
 
-OVERLOAD_WORDS = ("ol", "overload")
+SEPARATORS = (",", ";", "\t")  # a plain CSV, and what spreadsheets in comma-decimal locales
+# and tab-separated exports write
 
 
 def _number(text: str, where: str, column: str, allow_overload: bool) -> float | None:
-    raw = text.strip()
-    if allow_overload and raw.lower() in OVERLOAD_WORDS:
-        return None
     try:
-        value = float(raw)
-    except ValueError:
+        value = parse_reading(text)
+    except ValueError as exc:
         extra = " or OL for overload" if allow_overload else ""
         raise InputError(
-            f"{where}: {column} {raw!r} is not a number; write volts as e.g. 12.9{extra}"
+            f"{where}: {column}: {exc}; write volts as e.g. 12.9, 125.7V or 890mV{extra}"
         ) from None
-    if not math.isfinite(value):
-        raise InputError(f"{where}: {column} {raw!r} is not a finite number")
+    if value is None and not allow_overload:
+        raise InputError(f"{where}: {column} is OL; leave the cell empty when it was not read")
     return value
+
+
+def _separator(header_line: str) -> str:
+    """The column separator the header uses (a comma unless it is a semicolon or a tab)."""
+    for separator in SEPARATORS:
+        cells = [c.strip().lower() for c in header_line.split(separator)]
+        if cells[:2] == ["node", "volts"]:
+            return separator
+    return ","
 
 
 def resolve_node(name: str, nodes: Sequence[str], labels: dict[str, str], where: str) -> str:
@@ -48,7 +57,7 @@ def resolve_node(name: str, nodes: Sequence[str], labels: dict[str, str], where:
         if label and label.lower() == wanted.lower() and node in nodes:
             return node
     known = ", ".join(nodes)
-    raise InputError(f"{where}: node {wanted!r} is not on this board (nodes: {known})")
+    raise InputError(f"{where}: node {shown(wanted)} is not on this board (nodes: {known})")
 
 
 def parse_readings_csv(
@@ -72,21 +81,27 @@ def parse_readings_csv(
     if not rows:
         raise InputError(f"{where}: no readings; expected a header 'node,volts' and one row a node")
     header_no, header_line = rows[0]
-    header = [h.strip().lower() for h in next(csv.reader([header_line]))]
+    separator = _separator(header_line)
+    header = [h.strip().lower() for h in next(csv.reader([header_line], delimiter=separator))]
     if header[:2] != ["node", "volts"] or any(h not in ("ripple_vpp",) for h in header[2:]):
         raise InputError(
-            f"{where}:{header_no}: header is {header_line.strip()!r}; expected 'node,volts' "
-            "or 'node,volts,ripple_vpp'"
+            f"{where}:{header_no}: header is {shown(header_line.strip())}; expected 'node,volts' "
+            "or 'node,volts,ripple_vpp' (or ';' between them)"
         )
     readings: list[Measurement] = []
     seen: set[str] = set()
     for number, line in rows[1:]:
         here = f"{where}:{number}"
-        cells = next(csv.reader([line]))
+        cells = next(csv.reader([line], delimiter=separator))
         if len(cells) != len(header):
+            hint = (
+                "; a decimal comma must be in quotes (\"12,9\") or the columns separated by ';'"
+                if separator == ","
+                else ""
+            )
             raise InputError(
-                f"{here}: {len(cells)} columns, expected {len(header)} ({','.join(header)}); "
-                "a decimal comma must be a point in CSV"
+                f"{here}: {len(cells)} columns, expected {len(header)} "
+                f"({separator.join(header)}){hint}"
             )
         node = resolve_node(cells[0], nodes, labels, here)
         if node in seen:
@@ -96,7 +111,7 @@ def parse_readings_csv(
         readings.append(Measurement(node, DC, volts, source, settled=True))
         if len(cells) > 2 and cells[2].strip():
             ripple = _number(cells[2], here, "ripple_vpp", allow_overload=False)
-            if ripple is not None and ripple < 0:
+            if ripple < 0:
                 raise InputError(f"{here}: ripple_vpp {ripple:g} is negative")
             readings.append(Measurement(node, RIPPLE_PP, ripple, source, settled=True))
     if not readings:

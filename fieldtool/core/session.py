@@ -22,6 +22,7 @@ from fieldtool import __version__
 from fieldtool.core import history as hist
 from fieldtool.core.circuit.netlist import build_circuit
 from fieldtool.core.circuit.profile import Profile
+from fieldtool.core.circuit.reading_range import reading_problem
 from fieldtool.core.diagnosis.dictionary import FaultDictionary
 from fieldtool.core.diagnosis.faults import Hypothesis
 from fieldtool.core.diagnosis.priors import Priors, fleet_priors
@@ -175,7 +176,8 @@ class BoardSession:
         """Take measurements (placed at nodes of this board): save each, then rank again.
 
         Raises:
-            InputError: one is not placed, or not at a node of this board; nothing is saved.
+            InputError: one is not placed, not at a node of this board, or beyond what any
+                node of this board could show (a wrong range or unit); nothing is saved.
         """
         for m in measurements:
             if not self._known(m):
@@ -183,6 +185,9 @@ class BoardSession:
                 raise InputError(
                     f"{m.quantity.words} at {m.at!r}: not a node of this board ({nodes})"
                 )
+            problem = reading_problem(self.profile, m)
+            if problem:
+                raise InputError(f"{problem}; not taken, nothing saved")
         kind = hist.Verification if self.phase == "verifying" else hist.Reading
         for m in measurements:
             self._save(kind(m))

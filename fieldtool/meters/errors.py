@@ -158,10 +158,11 @@ def port_error(name: str, exc: BaseException, *, opening: bool) -> MeterError:
             f"{name} stopped answering mid-reading ({exc});"
             " check the cable and plug the meter back in"
         )
-    if isinstance(exc, ValueError):  # serial_for_url: a URL scheme or option it does not know
+    if isinstance(exc, ValueError | KeyError):  # serial_for_url: a URL or option it refuses
         return MeterSettingsError(
-            f"cannot open {name} ({exc}); give a device such as /dev/ttyUSB0 or a URL"
-            " socket://HOST:PORT, rfc2217://HOST:PORT or loop://"
+            f"cannot open {name}: pyserial does not take that address or its options; give a "
+            "device such as /dev/ttyUSB0 or a URL socket://HOST:PORT, rfc2217://HOST:PORT or "
+            "loop://"
         )
     code = os_errno(exc)
     if code in _MISSING:
@@ -180,7 +181,9 @@ def port_error(name: str, exc: BaseException, *, opening: bool) -> MeterError:
 @contextmanager
 def port_errors(name: str, *, opening: bool = False) -> Iterator[None]:
     """Turn the foreign errors of a port operation into the tool's own (see ``port_error``)."""
-    foreign = (*PORT_ERRORS, ValueError) if opening else PORT_ERRORS
+    # Opening, pyserial also raises ValueError for a URL it cannot take, and KeyError for an
+    # option it does not know (loop://?x=1).
+    foreign = (*PORT_ERRORS, ValueError, KeyError) if opening else PORT_ERRORS
     try:
         yield
     except foreign as exc:

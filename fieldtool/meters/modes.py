@@ -27,7 +27,7 @@ from fieldtool.core.measurement import (
     RIPPLE_PP,
     Quantity,
 )
-from fieldtool.meters.parse import unit_scale
+from fieldtool.core.units import unit_scale
 
 
 @dataclass(frozen=True)

@@ -10,21 +10,23 @@ from __future__ import annotations
 import math
 import re
 
+from fieldtool.core.errors import shown
 from fieldtool.core.measurement import DC, TYPED, Measurement, Quantity, Source
+from fieldtool.core.units import (
+    OVERLOAD_WORDS,
+    READING_EXAMPLES,
+    decimal,
+    parse_reading,
+)
 from fieldtool.meters.errors import MeterGarbage, ReadingParseError
 
 # SCPI uses +9.9E37 for overload (+inf), -9.9E37 for -inf and 9.91E37 for not-a-number.
 SCPI_NO_READING = 9.9e37
 
-PREFIXES = {"": 1.0, "m": 1e-3, "u": 1e-6, "µ": 1e-6, "μ": 1e-6, "n": 1e-9, "k": 1e3}
-
-_NUMBER = r"[+-]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][+-]?\d+)?"
-_TYPED = re.compile(rf"^\s*(?P<value>{_NUMBER})\s*(?P<unit>[a-zA-Zµμ]*)\s*$")
 _NR = re.compile(r"^\s*[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?\s*$")
-_OVERLOAD_WORDS = {"ol", "overload", "o.l", "o.l."}
 
 UNIT_NAMES = {"V": "voltage", "A": "current"}  # for messages: "not a voltage unit"
-EXPECTED = "a voltage such as 12.9, 12.9V, 890mV, 1.2kV or 12,9, or OL for overload"
+EXPECTED = f"a voltage such as {READING_EXAMPLES}"
 _EXPECTED_OF = {
     "current": "a current such as 0.35mA, 350uA, 0.00035 or 0,35 mA, or OL for overload",
     "diode-test": "a diode-test reading such as 0.61, 0.61V or 610mV, or OL (open)",
@@ -36,49 +38,24 @@ def expected_text(quantity: Quantity = DC) -> str:
     return _EXPECTED_OF.get(quantity.name, EXPECTED)
 
 
-def unit_scale(unit: str, base: str = "V") -> float | None:
-    """Base units per ``unit`` (``V``, ``mV``, ``uV``, ``µV``, ``kV`` for volts); None if it is
-    not that base unit; no unit at all means the base unit."""
-    if unit == "":
-        return 1.0
-    if unit[-1].lower() != base.lower() or len(base) != 1:
-        return None
-    prefix = unit[:-1]
-    if prefix in ("M", "K"):  # 'MV' is ambiguous; 'KV' is a common shouting of kV
-        return 1e3 if prefix == "K" else None
-    return PREFIXES.get(prefix)
-
-
-def _number(text: str) -> float:
-    """A float from text that may use a decimal comma."""
-    return float(text.replace(",", "."))
-
-
 def parse_typed(
     text: str, quantity: Quantity = DC, conditions: tuple[tuple[str, float], ...] = ()
 ) -> Measurement:
     """Parse what a technician typed as a reading of ``quantity`` (with its ``conditions``):
     ``12.9``, ``12,9 V``, ``890mV``, ``1.2kV`` for volts, ``0.35mA``, ``350uA`` for a current,
-    ``OL``."""
+    ``OL``.
+
+    Whether the value is one this board could show is the session's to judge
+    (``fieldtool.core.circuit.reading_range``); here it must be a finite number in a unit of
+    the quantity.
+    """
     expected = expected_text(quantity)
-    stripped = text.strip()
-    if stripped.lower() in _OVERLOAD_WORDS:
-        return Measurement(None, quantity, None, TYPED, settled=True, conditions=conditions)
-    if not stripped:
+    if not text.strip():
         raise ReadingParseError(f"nothing was typed; expected {expected}")
-    match = _TYPED.match(stripped)
-    if match is None:
-        raise ReadingParseError(f"'{stripped}' is not a number with a unit; expected {expected}")
-    value_text, unit = match["value"], match["unit"]
-    scale = unit_scale(unit, quantity.unit)
-    if scale is None:
-        raise ReadingParseError(
-            f"understood the number {value_text} but not the unit '{unit}'; expected {expected}"
-        )
-    value = _number(value_text) * scale
-    if not math.isfinite(value):
-        what = UNIT_NAMES.get(quantity.unit, "value")
-        raise ReadingParseError(f"'{stripped}' is not a finite {what}; expected {expected}")
+    try:
+        value = parse_reading(text, quantity.unit)
+    except ValueError as exc:
+        raise ReadingParseError(f"{exc}; expected {expected}") from None
     return Measurement(None, quantity, value, TYPED, settled=True, conditions=conditions)
 
 
@@ -91,7 +68,7 @@ def parse_scpi_number(
     """Parse an IEEE 488.2 NR1/NR2/NR3 response; |x| >= 9.9e37 means overload."""
     stripped = text.strip()
     if not _NR.match(stripped):
-        raise MeterGarbage(f"meter answered {stripped!r}, which is not an IEEE 488.2 number")
+        raise MeterGarbage(f"meter answered {shown(stripped)}, which is not an IEEE 488.2 number")
     value = float(stripped)
     number = None if abs(value) >= SCPI_NO_READING else value
     return Measurement(None, quantity, number, source, conditions=conditions)
@@ -112,11 +89,14 @@ def stream_fields(line: str, regex: str | re.Pattern[str]) -> tuple[float | None
     groups = match.groupdict()
     value_text = (groups.get("value") or "").strip()
     unit = (groups.get("unit") or "").strip()
-    if value_text.lower() in _OVERLOAD_WORDS:
+    if value_text.lower() in OVERLOAD_WORDS:
         return None, unit
     try:
-        value = _number(value_text)
+        value = decimal(value_text)
     except ValueError:
-        msg = f"streamed value {value_text!r} in line {line!r} is not a number"
+        msg = f"streamed value {shown(value_text)} in line {shown(line)} is not a number"
         raise MeterGarbage(msg) from None
+    if math.isnan(value):
+        raise MeterGarbage(f"streamed value {shown(value_text)} is not a number (NaN)")
+    # infinity too: the meter's way of saying over range
     return (None if abs(value) >= SCPI_NO_READING else value), unit

@@ -2,11 +2,14 @@
 
 from __future__ import annotations
 
+import re
 import tomllib
 from dataclasses import dataclass, field, fields, replace
 from pathlib import Path
 
+from fieldtool.core.errors import shown
 from fieldtool.core.measurement import QUANTITIES, Quantity
+from fieldtool.core.plausible import Range
 from fieldtool.meters.errors import MeterSettingsError
 from fieldtool.meters.modes import DC_VOLTS, mode_of
 
@@ -76,10 +79,15 @@ class MeterSettings:
 def _check_type(where: str, key: str, value: object, kind: type) -> object:
     """Return value if it is of ``kind`` (ints allowed for floats), else refuse."""
     if kind is float and isinstance(value, int) and not isinstance(value, bool):
+        if abs(value) > 10**300:
+            raise MeterSettingsError(f"{where}: key '{key}' is {shown(value)}, far too large")
         return float(value)
+    if kind is bool and isinstance(value, bool):
+        return value
     if isinstance(value, bool) or not isinstance(value, kind):
         raise MeterSettingsError(
-            f"{where}: key '{key}' must be {kind.__name__}, not {type(value).__name__} ({value!r})"
+            f"{where}: key '{key}' must be {kind.__name__}, not {type(value).__name__} "
+            f"({shown(value)})"
         )
     return value
 
@@ -117,52 +125,104 @@ def _configure_table(table: object, where: str) -> tuple[tuple[str, str], ...]:
         if kind not in QUANTITIES:
             known = ", ".join(QUANTITIES)
             raise MeterSettingsError(
-                f"{where}: [configure] has unknown kind '{kind}' (known kinds: {known})"
+                f"{where}: [configure] has unknown kind {shown(kind)} (known kinds: {known})"
             )
         out.append((kind, str(_check_type(where, f"configure.{kind}", command, str))))
     return tuple(out)
 
 
-def validate(settings: MeterSettings, where: str = "settings") -> MeterSettings:
-    """Refuse values that are of the right type but unusable."""
+# Plausible values (see fieldtool.core.plausible), each with its reason.
+BAUD_RATES = (50, 4_000_000)  # from teleprinter rates to fast USB-serial adapters
+TIMEOUT_S = Range(
+    0.01, 600.0, "s", "a meter answers within seconds; ten minutes of silence is a hang"
+)
+SETTLE_TIMEOUT_S = Range(
+    0.1,
+    3600.0,
+    "s",
+    "a node behind an open part can creep for minutes; an hour is beyond any bench wait",
+)
+COMMAND_DELAY_S = Range(0.0, 10.0, "s", "slow meters need up to a few hundred milliseconds")
+SETTLE_PERCENT = Range(0.0, 100.0, "%", "percent of the reading: 0.2 means 0.2 %")
+SETTLE_VOLTS = Range(0.0, 1000.0, "V", "the fixed part of the settle band")
+SETTLE_AMPS = Range(0.0, 1.0, "A", "the fixed part of the settle band for a current")
+SETTLE_COUNT = (1, 100)  # readings in a row that must agree
+COMMAND_MAX_CHARACTERS = 100
+
+
+def _problems(settings: MeterSettings) -> list[str]:
+    """Why the settings cannot work, as ``key problem`` phrases (empty when they can)."""
+    found = []
     if settings.protocol not in PROTOCOLS:
-        raise MeterSettingsError(
-            f"{where}: protocol must be scpi or stream, not '{settings.protocol}'"
-        )
-    if settings.baud <= 0:
-        raise MeterSettingsError(f"{where}: baud must be positive, not {settings.baud}")
+        found.append(f"protocol must be scpi or stream, not {shown(settings.protocol)}")
+    low, high = BAUD_RATES
+    if not low <= settings.baud <= high:
+        found.append(f"baud must be {low} to {high}, not {shown(settings.baud)}")
     if settings.terminator not in TERMINATORS:
-        raise MeterSettingsError(
-            f'{where}: terminator must be "\\n" or "\\r\\n", not {settings.terminator!r}'
+        found.append(
+            f'terminator must be "\\n", "\\r\\n" or "\\r", not {shown(settings.terminator)}'
         )
-    if not 0 <= settings.command_delay_s <= 10:
-        raise MeterSettingsError(
-            f"{where}: command_delay_s must be 0 to 10 seconds, not {settings.command_delay_s:g}"
-        )
-    if settings.timeout_s <= 0 or settings.settle.timeout_s <= 0:
-        raise MeterSettingsError(f"{where}: timeouts must be positive seconds")
-    if settings.settle.count < 1:
-        raise MeterSettingsError(f"{where}: settle.count must be at least 1")
-    if settings.settle.percent < 0 or settings.settle.volts < 0:
-        raise MeterSettingsError(f"{where}: settle.percent and settle.volts must not be negative")
+    for key, value, limit in (
+        ("timeout_s", settings.timeout_s, TIMEOUT_S),
+        ("command_delay_s", settings.command_delay_s, COMMAND_DELAY_S),
+        ("settle.timeout_s", settings.settle.timeout_s, SETTLE_TIMEOUT_S),
+        ("settle.percent", settings.settle.percent, SETTLE_PERCENT),
+        ("settle.volts", settings.settle.volts, SETTLE_VOLTS),
+        ("settle.amps", settings.settle.amps, SETTLE_AMPS),
+    ):
+        problem = limit.problem(value)
+        if problem:
+            found.append(f"{key} {problem}")
+    low, high = SETTLE_COUNT
+    if not low <= settings.settle.count <= high:
+        found.append(f"settle.count must be {low} to {high}, not {shown(settings.settle.count)}")
     if settings.stream_kind not in STREAM_KINDS:
-        raise MeterSettingsError(
-            f"{where}: stream_kind must be one of {', '.join(STREAM_KINDS)}, "
-            f"not '{settings.stream_kind}'"
+        found.append(
+            f"stream_kind must be one of {', '.join(STREAM_KINDS)}, "
+            f"not {shown(settings.stream_kind)}"
         )
-    if settings.settle.amps < 0:
-        raise MeterSettingsError(f"{where}: settle.amps must not be negative")
-    if settings.protocol == "stream" and "(?P<value>" not in settings.stream_regex:
-        raise MeterSettingsError(f"{where}: stream_regex needs a named group (?P<value>...)")
+    for key, command in (
+        ("read_command", settings.read_command),
+        ("configure_command", settings.configure_command),
+        *((f"configure.{kind}", text) for kind, text in settings.configure),
+    ):
+        if len(command) > COMMAND_MAX_CHARACTERS or not all(" " <= c <= "~" for c in command):
+            found.append(
+                f"{key} {shown(command)} must be printable ASCII of at most "
+                f"{COMMAND_MAX_CHARACTERS} characters (the terminator is added for you)"
+            )
+    found += _regex_problems(settings.stream_regex)
+    return found
+
+
+def _regex_problems(text: str) -> list[str]:
+    try:
+        pattern = re.compile(text)
+    except (re.error, RecursionError, OverflowError) as exc:
+        return [f"stream_regex {shown(text)} does not compile ({exc})"]
+    if "value" not in pattern.groupindex:
+        return ["stream_regex needs a named group (?P<value>...) around the number"]
+    return []
+
+
+def validate(settings: MeterSettings, where: str = "settings") -> MeterSettings:
+    """Refuse values that are of the right type but unusable (the first problem is named)."""
+    problems = _problems(settings)
+    if problems:
+        raise MeterSettingsError(f"{where}: {problems[0]}")
     return settings
 
 
 def parse_settings(text: str, where: str = "settings") -> MeterSettings:
     """Meter settings from TOML text; ``where`` names the file in messages."""
     try:
-        table = tomllib.loads(text)
+        table = tomllib.loads(text.removeprefix("\ufeff"))
     except tomllib.TOMLDecodeError as exc:
         raise MeterSettingsError(f"{where}: not valid TOML ({exc})") from None
+    except ValueError:  # Python refuses integers of thousands of digits
+        raise MeterSettingsError(
+            f"{where}: holds a number thousands of digits long; fix that value"
+        ) from None
     return validate(MeterSettings(**_build(MeterSettings, table, where)), where)
 
 
@@ -170,7 +230,9 @@ def load_settings(path: str | Path) -> MeterSettings:
     """Meter settings from a TOML file."""
     path = Path(path)
     try:
-        text = path.read_text(encoding="utf-8")
+        text = path.read_text(encoding="utf-8-sig")
+    except UnicodeDecodeError:
+        raise MeterSettingsError(f"{path}: is not UTF-8 text; save it as UTF-8") from None
     except OSError as exc:
         raise MeterSettingsError(f"{path}: cannot read settings file ({exc.strerror})") from None
     return parse_settings(text, where=str(path))

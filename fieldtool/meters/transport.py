@@ -3,11 +3,13 @@
 from __future__ import annotations
 
 from typing import Protocol
+from urllib.parse import urlsplit
 
 import serial
 from serial.serialutil import Timeout
 
-from fieldtool.meters.errors import PORT_ERRORS, MeterTimeout, port_errors
+from fieldtool.core.errors import shown
+from fieldtool.meters.errors import PORT_ERRORS, MeterSettingsError, MeterTimeout, port_errors
 
 
 class Transport(Protocol):
@@ -78,8 +80,44 @@ class SerialTransport:
             pass  # the port is already gone; nothing left to release
 
 
+# pyserial's URL handlers (serial.urlhandler.protocol_*) that make sense for a meter.
+URL_SCHEMES = ("socket", "rfc2217", "loop", "spy", "alt", "hwgrep", "cp2110")
+_NETWORK_SCHEMES = ("socket", "rfc2217")
+PORT_HELP = (
+    "give a device path such as /dev/ttyUSB0 (see 'fieldtool ports') or a URL such as "
+    "socket://HOST:PORT, rfc2217://HOST:PORT or loop://"
+)
+
+
+def port_problem(name: str) -> str | None:
+    """Why ``name`` cannot be a port to open, or None when it may be one (a device path that
+    does not exist is found out by opening it)."""
+    if not name.strip():
+        return "nothing given"
+    if len(name) > 4096 or any(ord(c) < 32 for c in name):
+        return "too long, or with control characters, for a device path or URL"
+    scheme, sep, _ = name.partition("://")
+    if not sep:
+        return None
+    if scheme.lower() not in URL_SCHEMES:
+        return f"{scheme}:// is not a kind of port address pyserial knows"
+    if scheme.lower() in _NETWORK_SCHEMES:
+        try:
+            parts = urlsplit(name)
+            port = parts.port
+        except ValueError:
+            parts, port = None, None
+        if parts is None or not parts.hostname or not port:
+            return f"it needs a host and a port number from 1 to 65535: {scheme}://HOST:PORT"
+    return None
+
+
 def open_port(name: str, baud: int = 9600, timeout: float = 2.0, terminator: bytes = b"\n"):
-    """Open a device path or pyserial URL (``loop://``, ``socket://``, ``rfc2217://``)."""
+    """Open a device path or pyserial URL (``loop://``, ``socket://``, ``rfc2217://``); an
+    address that cannot be a port is refused before anything is opened."""
+    problem = port_problem(name)
+    if problem:
+        raise MeterSettingsError(f"port {shown(name)}: {problem}; {PORT_HELP}")
     with port_errors(name, opening=True):
         port = serial.serial_for_url(name, baudrate=baud, timeout=timeout, exclusive=True)
     return SerialTransport(port, terminator=terminator, name=name)

@@ -19,10 +19,11 @@ from textual.reactive import reactive
 from textual.screen import Screen
 from textual.worker import Worker, WorkerState
 
-from fieldtool.core.circuit.safety import CAUTION
 from fieldtool.core.errors import FieldtoolError
+from fieldtool.core.hazard import SAFETY_WARNING
 from fieldtool.core.history.sessions import Session
 from fieldtool.core.session import BoardSession
+from fieldtool.core.words import count
 from fieldtool.meters.settings import MeterSettings
 from fieldtool.tui.config import AppConfig, SessionRequest
 from fieldtool.tui.dialogs import (
@@ -133,11 +134,11 @@ class FieldtoolApp(App):
             board.dictionary,
             self.writer.submit,
             priors=board.priors,
-            technician=self.config.technician,
+            technician=request.technician or self.config.technician,
         )
         if resume_from is not None:
             restored = session.resume(resume_from)
-            self.notify(f"Resumed: {restored} readings restored.", timeout=4)
+            self.notify(f"Resumed: {count(restored, 'reading')} restored.", timeout=4)
         else:
             session.open()
         screen = ProbingScreen(session, request.meter, self.config.logs_dir, request.demo_fault)
@@ -211,8 +212,15 @@ class FieldtoolApp(App):
         self.close_writer()
 
     def get_system_commands(self, screen: Screen) -> Iterable[SystemCommand]:
-        """The main actions in the command palette: the app's, then the screen's own."""
-        yield from super().get_system_commands(screen)
+        """The main actions in the command palette: the app's, then the screen's own.
+
+        The framework's own key panel ("Keys") is left out: the help screen lists every key of
+        every screen, and two entries about keys would leave the technician guessing.
+        """
+        panel = (self.action_show_help_panel, self.action_hide_help_panel)
+        for command in super().get_system_commands(screen):
+            if command.callback not in panel:
+                yield command
         yield SystemCommand("Help: every key", "List every key and what it does", self.action_help)
         if isinstance(screen, Commands):
             for title, help_words, action in screen.PALETTE:
@@ -238,7 +246,7 @@ def help_text() -> str:
         key_table("Close the session", OutcomeDialog.BINDINGS),
         key_table("Unfinished session", ResumeDialog.BINDINGS),
         key_table("History and fleet", HistoryScreen.BINDINGS + FleetScreen.BINDINGS),
-        f"**Safety.** {CAUTION}",
+        f"**Safety.** {SAFETY_WARNING}",
     ]
     return "\n".join(parts)
 

@@ -35,3 +35,4 @@ class SessionRequest:
     meter: MeterChoice
     resume: bool | None = None
     demo_fault: Fault | None = None
+    technician: str | None = None  # who signs this session; None: the app's technician

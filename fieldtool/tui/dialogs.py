@@ -12,9 +12,10 @@ from textual.screen import ModalScreen
 from textual.widgets import Button, DataTable, Input, Label, Select, Static
 
 from fieldtool.core.circuit.profile import Profile
-from fieldtool.core.circuit.safety import CAUTION, SafetyFigures, format_duration
+from fieldtool.core.circuit.safety import SafetyFigures, format_duration
 from fieldtool.core.diagnosis.faults import BOARD_TARGETS, modes_for, target_kind
 from fieldtool.core.errors import FieldtoolError
+from fieldtool.core.words import count
 from fieldtool.tui.view import volts_text
 
 DONE_WORDS = ("replaced", "resoldered", "cleaned", "reworked", "adjusted", "inspected only")
@@ -50,7 +51,8 @@ class ResumeDialog(ModalScreen[bool]):
         super().__init__()
         self.text = (
             f"Board {serial} has a session opened {opened} that was never closed "
-            f"({readings} readings, {actions} repairs recorded). Resume it, or start a new "
+            f"({count(readings, 'reading')}, {count(actions, 'repair')} recorded). Resume it, "
+            "or start a new "
             "session? The old records stay in the history either way."
         )
 
@@ -239,7 +241,7 @@ class SafetyDetails(ModalScreen[None]):
                 f"Safe level {f.safe_volts:g} V: {f.threshold_source}. Below it "
                 f"{format_duration(f.discharge_s)} after power-off through the load and "
                 "bleeder as the profile gives them: a lower bound, since a failed bleeder or an "
-                "open diode strands charge longer. " + CAUTION,
+                "open diode strands charge longer. " + f.warning,
                 classes="dialog-body",
             )
             with VerticalScroll():

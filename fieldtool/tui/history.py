@@ -15,6 +15,7 @@ from fieldtool.core.errors import FieldtoolError
 from fieldtool.core.history.fleet import confirmed_failures
 from fieldtool.core.history.sessions import group_sessions
 from fieldtool.core.measurement import DC
+from fieldtool.core.words import count
 from fieldtool.tui.view import volts_text
 
 
@@ -102,9 +103,9 @@ class HistoryScreen(Screen):
             for row in rows:
                 table.add_row(*row)
             sessions = sum(s.id is not None for s in group_sessions(h.events))
-            note = f"{len(h.events)} records, {sessions} sessions."
+            note = f"{count(len(h.events), 'record')}, {count(sessions, 'session')}."
             if h.damaged:
-                note += f" {len(h.damaged)} damaged lines left on disk untouched"
+                note += f" {count(len(h.damaged), 'damaged line')} left on disk untouched"
                 note += f" (first: {h.damaged[0].path}:{h.damaged[0].line}, {h.damaged[0].reason})."
             table.move_cursor(row=max(0, table.row_count - 1))
         self.query_one("#history-note", Static).update(note)
@@ -150,7 +151,8 @@ class FleetScreen(Screen):
         if not note:
             total = sum(counts.values())
             note = (
-                f"{total} confirmed failures ({len(counts)} part/mode pairs): repairs in sessions "
+                f"{count(total, 'confirmed failure')} ({count(len(counts), 'part/mode pair')}): "
+                "repairs in sessions "
                 "closed fixed. They become this board type's diagnosis priors."
                 if counts
                 else "No confirmed failures yet for this board type."

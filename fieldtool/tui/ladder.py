@@ -67,6 +67,9 @@ def legend(profile: Profile) -> str:
     return topology_of(profile).legend
 
 
+MORE_LEFT, MORE_RIGHT = "«", "»"  # the ladder goes on past the edge of the view
+
+
 class LadderView(Widget):
     """The ladder with node states, the selected node and the suspects marked."""
 
@@ -163,9 +166,9 @@ class LadderView(Widget):
             blocks = [self._block(self.cells[i]) for i in indices]
             for line in range(LINES_PER_ROW):
                 row = Content("").join(b[line] for b in blocks)
-                if windowed:
-                    left = "◀" if line == 1 and indices[0] > 0 else " "
-                    right = "▶" if line == 1 and indices[-1] < last else ""
+                if windowed:  # « » say "more this way"; ▶ ◀ are the diodes
+                    left = MORE_LEFT if line == 1 and indices[0] > 0 else " "
+                    right = MORE_RIGHT if line == 1 and indices[-1] < last else ""
                     row = Content(left) + row + Content(right)
                 drawn.append(row)
         return Content("\n").join(drawn)

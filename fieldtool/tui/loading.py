@@ -16,11 +16,11 @@ from textual.screen import Screen
 from textual.widgets import Footer, Label, ProgressBar, Static
 from textual.worker import get_current_worker
 
-from fieldtool.core.circuit.safety import CAUTION
 from fieldtool.core.diagnosis.dictionary import FaultDictionary
 from fieldtool.core.diagnosis.dictionary_cache import load_or_build
 from fieldtool.core.diagnosis.priors import Priors
 from fieldtool.core.errors import FieldtoolError
+from fieldtool.core.hazard import SAFETY_WARNING
 from fieldtool.core.history import HistoryError
 from fieldtool.core.history.sessions import Session
 from fieldtool.core.session import choose_priors, history_failures, unfinished_session
@@ -66,7 +66,7 @@ class LoadingScreen(Screen):
             yield Label(f"{p.name} · board {self.request.serial}", classes="dialog-title")
             yield Static("Loading the fault dictionary…", id="loading-what")
             yield ProgressBar(id="loading-bar", show_eta=False)
-            yield Static(CAUTION, classes="caution")
+            yield Static(SAFETY_WARNING, classes="caution")
         yield Footer()
 
     def on_mount(self) -> None:

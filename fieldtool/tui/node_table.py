@@ -15,6 +15,7 @@ from textual.message import Message
 from textual.reactive import reactive
 from textual.widget import Widget
 
+from fieldtool.core.circuit.reading_range import node_volts_range
 from fieldtool.core.diagnosis.dictionary import FaultDictionary
 from fieldtool.tui.view import SHORT, STYLE, Verdict, band_text, deviation_text, verdict, volts_text
 
@@ -25,8 +26,8 @@ class NodeTable(Widget, can_focus=True):
     """One row a node, a cursor on the selected one; posts ``Selected`` when it moves."""
 
     BINDINGS = [
-        Binding("up,k", "cursor(-1)", "Up", show=False),
-        Binding("down,j", "cursor(1)", "Down", show=False),
+        Binding("up", "cursor(-1)", "Up", show=False),
+        Binding("down", "cursor(1)", "Down", show=False),
         Binding("pageup", "cursor(-10)", show=False),
         Binding("pagedown", "cursor(10)", show=False),
         Binding("home", "cursor(-1000)", show=False),
@@ -49,8 +50,12 @@ class NodeTable(Widget, can_focus=True):
         self.labels = labels
         self.values: dict[str, float | None] = {}
         self.bands = {n: dictionary.band(n) for n in self.nodes}
+        self.plausible = node_volts_range(dictionary.profile)
         self.top = 0  # first row in view
         self.tp_width = max([2] + [len(t) for t in labels.values()])
+        # Band columns as wide as the widest band, so a negative one is never cut.
+        self.band_width = max([10] + [len(self._band(n)) for n in self.nodes]) + 1
+        self.expected_width = max([18] + [len(self._expected(n)) for n in self.nodes]) + 1
 
     def on_mount(self) -> None:
         """Title the panel."""
@@ -95,6 +100,13 @@ class NodeTable(Widget, can_focus=True):
         elif self.cursor >= self.top + rows:
             self.top = self.cursor - rows + 1
         self.top = max(0, min(self.top, len(self.nodes) - rows))
+        # The caption follows the rows in view here, not in render: a subtitle changed while
+        # rendering would show only on the next repaint (stale after a jump).
+        shown = min(rows, len(self.nodes) - self.top)
+        if self.top > 0 or self.top + shown < len(self.nodes):
+            self.border_subtitle = f" rows {self.top + 1}–{self.top + shown} of {len(self.nodes)}"
+        else:
+            self.border_subtitle = ""
 
     def on_click(self, event: events.Click) -> None:
         """A click selects the row under it."""
@@ -113,7 +125,8 @@ class NodeTable(Widget, can_focus=True):
     def verdict_for(self, node: str) -> Verdict:
         """The node's verdict from the readings shown."""
         b = self.bands[node]
-        return verdict(b.expected, b.low, b.high, self.values.get(node), node in self.values)
+        value = self.values.get(node)
+        return verdict(b.expected, b.low, b.high, value, node in self.values, self.plausible)
 
     def show(self, values: dict[str, float | None]) -> None:
         """Show the readings (node → volts, None for over range)."""
@@ -122,27 +135,31 @@ class NodeTable(Widget, can_focus=True):
 
     # --- drawing -------------------------------------------------------------------------
 
+    def _band(self, node: str) -> str:
+        return band_text(self.bands[node].low, self.bands[node].high)
+
+    def _expected(self, node: str) -> str:
+        return f"{volts_text(self.bands[node].expected)} ({self._band(node)})"
+
     def _columns(self) -> list[tuple[str, int]]:
         cols = [("Node", 6)]
         if self.wide:
-            cols += [("TP", self.tp_width + 1), ("Expected (band) V", 19)]
+            cols += [("TP", self.tp_width + 1), ("Expected (band) V", self.expected_width)]
         else:
-            cols += [("Band V", 11)]
+            cols += [("Band V", self.band_width)]
         cols += [("Read V", 8), ("Δ V", 13 if self.wide else 6), ("Verdict", 12)]
         return cols
 
     def _row(self, node: str, chosen: bool) -> Content:
-        b = self.bands[node]
         v = self.verdict_for(node)
         style = STYLE[v.state]
         read = volts_text(self.values[node]) if node in self.values else "—"
         word = v.state if self.wide else SHORT[v.state]
         cells: list[tuple[str, str]] = [(("▶" if chosen else " ") + node, "bold")]
         if self.wide:
-            expected = f"{volts_text(b.expected)} ({band_text(b.low, b.high)})"
-            cells += [(self.labels.get(node, ""), "$text-muted"), (expected, "")]
+            cells += [(self.labels.get(node, ""), "$text-muted"), (self._expected(node), "")]
         else:
-            cells.append((band_text(b.low, b.high), ""))
+            cells.append((self._band(node), ""))
         cells += [(read, style), (deviation_text(v, percent=self.wide), style)]
         cells.append((f"{v.symbol} {word}", style))
         parts = []
@@ -162,9 +179,4 @@ class NodeTable(Widget, can_focus=True):
         )
         rows = self.nodes[self.top : self.top + self._rows_in_view()]
         lines = [header] + [self._row(n, n == self.selected_node) for n in rows]
-        if self.top > 0 or self.top + len(rows) < len(self.nodes):
-            more = f" rows {self.top + 1}–{self.top + len(rows)} of {len(self.nodes)}"
-            self.border_subtitle = more
-        else:
-            self.border_subtitle = ""
         return Content("\n").join(lines)

@@ -6,13 +6,13 @@ from textual.content import Content
 from textual.widgets import Static
 
 from fieldtool.core.circuit.safety import (
-    CAUTION,
     HAZARD_NOTE,
     HAZARD_STANDARD,
     SafetyFigures,
     format_duration,
 )
 from fieldtool.core.diagnosis.ranking import Diagnosis
+from fieldtool.core.hazard import SAFETY_WARNING, SIGNAL_WORD
 from fieldtool.tui.view import bar, percent_text, volts_text
 
 
@@ -129,7 +129,9 @@ class SafetyStrip(Static):
             first = Content.assemble(
                 ("⚡ ", "bold $text-warning"),
                 f"{f.highest_node} {volts_text(f.highest_volts)} V ({where}) · {stored} · ",
-                f"<{f.safe_volts:g} V {format_duration(f.discharge_s)} after power-off",
+                f"<{f.safe_volts:g} V already"
+                if f.discharge_s == 0
+                else f"<{f.safe_volts:g} V {format_duration(f.discharge_s)} after power-off",
             )
             if f.overloaded:
                 first += Content.styled(f" · OL at {', '.join(f.overloaded)}", "bold $text-error")
@@ -140,10 +142,10 @@ class SafetyStrip(Static):
                 else "the profile's safe level"
             )
             second = Content.styled(
-                f"⚠ {self.selected} is above {f.safe_volts:g} V ({why}; s for detail) · rated "
-                "probes, one hand · discharge and verify before touching",
+                f"⚠ {SIGNAL_WORD}: {self.selected} is above {f.safe_volts:g} V ({why}; s for "
+                "detail) · rated probes, one hand · discharge and verify before touching",
                 "bold $text-error",
             )
         else:
-            second = Content.styled(CAUTION, "$text-muted")
+            second = Content.styled(SAFETY_WARNING if f is None else f.warning, "$text-muted")
         self.update(first + Content("\n") + second)

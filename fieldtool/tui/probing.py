@@ -28,6 +28,7 @@ from fieldtool.core.history import Action
 from fieldtool.core.measurement import Measurement
 from fieldtool.core.session import BoardSession
 from fieldtool.core.times import now_utc
+from fieldtool.core.words import count
 from fieldtool.meters.loop import MeterLoop
 from fieldtool.meters.parse import parse_typed
 from fieldtool.tui.dialogs import (
@@ -44,7 +45,7 @@ from fieldtool.tui.meter_strip import MeterChoice, MeterLink, MeterStrip, open_m
 from fieldtool.tui.node_table import NodeTable
 from fieldtool.tui.palette import Commands
 from fieldtool.tui.panels import SafetyStrip, SuspectsPanel
-from fieldtool.tui.view import count_text, entry_hint, ladder_ranks, reveal_text, suspect_ref
+from fieldtool.tui.view import entry_hint, ladder_ranks, reveal_text, suspect_ref
 
 TYPING_KEYS = set("0123456789-.+,")
 ACCEPT_LIVE = "Take the live value now, marked unsettled in the history"
@@ -255,9 +256,9 @@ class ProbingScreen(Commands, Screen):
         except FieldtoolError as exc:
             self.app.push_screen(ErrorDialog(exc))
             return  # the text stays in the entry to be corrected
-        event.input.value = ""
-        self.take(replace(typed, at=node, taken=now_utc()))
-        self.query_one(NodeTable).focus()
+        if self.take(replace(typed, at=node, taken=now_utc())):
+            event.input.value = ""
+            self.query_one(NodeTable).focus()
 
     # --- the meter ---------------------------------------------------------------------
 
@@ -292,7 +293,7 @@ class ProbingScreen(Commands, Screen):
         text = f"{message.error.title}: {message.error.message}"
         if text != self.last_problem:
             self.last_problem = text
-            kept = f" All {len(self.session.taken)} readings are kept." if message.lost else ""
+            kept = " Every reading taken so far is kept." if message.lost else ""
             self.notify(
                 message.error.message + kept,
                 title=message.error.title,
@@ -301,10 +302,16 @@ class ProbingScreen(Commands, Screen):
             )
         self.refresh_bindings()
 
-    def take(self, measurement: Measurement) -> None:
-        """Accept a measurement: saved at once, the diagnosis and every panel updated."""
-        self.session.take(measurement)
+    def take(self, measurement: Measurement) -> bool:
+        """Accept a measurement: saved at once, the diagnosis and every panel updated. A value
+        the session refuses (beyond anything this board can show) is a dialog, and False."""
+        try:
+            self.session.take(measurement)
+        except FieldtoolError as exc:
+            self.app.push_screen(ErrorDialog(exc))
+            return False
         self.refresh_all()
+        return True
 
     # --- actions -------------------------------------------------------------------------
 
@@ -395,8 +402,8 @@ class ProbingScreen(Commands, Screen):
         s = self.session
         top = s.diagnosis.suspects[0] if s.diagnosis.suspects else None
         lines = [
-            f"{count_text(len(s.taken), 'reading')} in this phase, "
-            f"{count_text(len(s.actions), 'repair')} recorded."
+            f"{count(len(s.taken), 'reading')} in this phase, "
+            f"{count(len(s.actions), 'repair')} recorded."
         ]
         if top is not None:
             lines.append(f"Top suspect now: {top.words} ({top.probability:.0%}).")

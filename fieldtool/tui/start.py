@@ -28,9 +28,11 @@ from textual.widgets.option_list import Option
 
 from fieldtool.core import history as hist
 from fieldtool.core.circuit.library import ProfileEntry, available
-from fieldtool.core.circuit.safety import CAUTION
-from fieldtool.core.errors import FieldtoolError, InputError
+from fieldtool.core.errors import FieldtoolError, InputError, shown
+from fieldtool.core.hazard import SAFETY_WARNING
 from fieldtool.core.history.sessions import group_sessions, open_session
+from fieldtool.core.names import technician_problem
+from fieldtool.core.words import count
 from fieldtool.tui.config import AppConfig, SessionRequest
 from fieldtool.tui.dialogs import ErrorDialog
 from fieldtool.tui.history import HistoryScreen
@@ -59,7 +61,8 @@ def past_boards(logs_dir: Path, profile_name: str) -> list[str]:
     folder = Path(logs_dir) / profile_name
     if not folder.is_dir():
         return []
-    files = sorted(folder.glob("*.jsonl"), key=lambda f: f.stat().st_mtime, reverse=True)
+    files = [f for f in folder.glob("*.jsonl") if f.stat().st_size > 0]  # empty: no history
+    files.sort(key=lambda f: f.stat().st_mtime, reverse=True)
     return [f.stem for f in files]
 
 
@@ -76,14 +79,24 @@ def board_summary(logs_dir: Path, serial: str) -> str:
     last = f", last outcome {outcomes[-1]}" if outcomes else ""
     unfinished = open_session(sessions) is not None
     open_note = "; last session unfinished (you can resume it)" if unfinished else ""
-    damaged = f"; {len(h.damaged)} damaged lines" if h.damaged else ""
-    return f"{serial}: {len(sessions)} sessions{last}{open_note}{damaged}."
+    damaged = f"; {count(len(h.damaged), 'damaged line')}" if h.damaged else ""
+    return f"{serial}: {count(len(sessions), 'session')}{last}{open_note}{damaged}."
+
+
+class MarkedRadioButton(RadioButton):
+    """A radio button whose mark says by its shape whether it is chosen (● or ○), so the
+    choice reads without colour."""
+
+    @property
+    def BUTTON_INNER(self) -> str:  # noqa: N802 (the name Textual's ToggleButton draws with)
+        return "●" if self.value else "○"
 
 
 class StartScreen(Commands, Screen):
     """Pick what to work on."""
 
-    BINDINGS = [Binding("ctrl+s", "start", "Start"), Binding("ctrl+r", "board_history", "History")]
+    # F2, not ctrl+r: in many shells ctrl+r is reverse search, and here a field has the focus.
+    BINDINGS = [Binding("ctrl+s", "start", "Start"), Binding("f2", "board_history", "History")]
     PALETTE = (("Start a session", "Open the board chosen on the start screen", "start"),)
 
     class Chosen(Message):
@@ -111,6 +124,13 @@ class StartScreen(Commands, Screen):
                 yield Input(
                     placeholder="…or a path to a profile .toml", id="profile-path", compact=True
                 )
+                yield Label("Technician")
+                yield Input(
+                    self.config.technician,
+                    placeholder="your name or initials",
+                    id="technician",
+                    compact=True,
+                )
             with Vertical(id="start-right"):
                 yield Label("Board serial")
                 yield Input(placeholder="e.g. TG-0042", id="serial", compact=True)
@@ -118,9 +138,9 @@ class StartScreen(Commands, Screen):
                 yield Static("", id="board-summary")
                 yield Label("Meter")
                 with RadioSet(id="meter-kind", compact=True):
-                    yield RadioButton("typed readings", value=True)
-                    yield RadioButton("meter on a port")
-                    yield RadioButton("simulated meter (healthy board)")
+                    yield MarkedRadioButton("typed readings", value=True)
+                    yield MarkedRadioButton("meter on a port")
+                    yield MarkedRadioButton("simulated meter (healthy board)")
                 yield Select([], prompt="serial port…", id="port", compact=True)
                 yield Input(
                     placeholder="…or a URL: socket://host:port, loop://",
@@ -129,7 +149,7 @@ class StartScreen(Commands, Screen):
                 )
         with Horizontal(id="start-buttons"):
             yield Button("Start (ctrl+s)", id="start", variant="primary")
-            yield Static(CAUTION, classes="caution")
+            yield Static(SAFETY_WARNING, classes="caution")
         yield Footer()
 
     def on_mount(self) -> None:
@@ -213,7 +233,13 @@ class StartScreen(Commands, Screen):
                 raise InputError("no profile chosen; pick one from the list or type a path")
             profile = entry.load()
             serial = hist.check_name(self.query_one("#serial", Input).value.strip())
-            request = SessionRequest(profile, serial, self.meter_choice(profile))
+            technician = self.query_one("#technician", Input).value.strip()
+            problem = technician_problem(technician)
+            if problem:
+                raise InputError(f"technician {shown(technician)} {problem}")
+            request = SessionRequest(
+                profile, serial, self.meter_choice(profile), technician=technician
+            )
         except FieldtoolError as exc:
             self.app.push_screen(ErrorDialog(exc))
             return
@@ -223,7 +249,7 @@ class StartScreen(Commands, Screen):
         """The typed board's history."""
         serial = self.query_one("#serial", Input).value.strip()
         try:
-            screen = HistoryScreen(self.config.logs_dir, hist.check_name(serial))
+            screen = HistoryScreen(self.config.logs_dir, hist.check_name(serial, existing=True))
         except FieldtoolError as exc:
             self.app.push_screen(ErrorDialog(exc))
             return

@@ -8,18 +8,22 @@ from dataclasses import dataclass
 from fieldtool.core.circuit.spec import display_name
 from fieldtool.core.diagnosis.faults import Fault, describe
 from fieldtool.core.diagnosis.ranking import Diagnosis
+from fieldtool.core.plausible import Range
 from fieldtool.core.session import BoardSession
 
 # Each state has a symbol and a word, so it never rests on colour alone.
 UNREAD, IN_BAND, HIGH, LOW, OVERLOAD = "unread", "in band", "high", "low", "over range"
-SYMBOL = {UNREAD: "·", IN_BAND: "✓", HIGH: "▲", LOW: "▼", OVERLOAD: "⊘"}
+WRONG_RANGE = "wrong range?"  # a value no node of the board could show (an older history's)
+SYMBOL = {UNREAD: "·", IN_BAND: "✓", HIGH: "▲", LOW: "▼", OVERLOAD: "⊘", WRONG_RANGE: "?"}
 SHORT = {UNREAD: "—", IN_BAND: "ok", HIGH: "high", LOW: "low", OVERLOAD: "OL"}
+SHORT[WRONG_RANGE] = "range?"
 STYLE = {
     UNREAD: "$text-muted",
     IN_BAND: "$text-success",
     HIGH: "bold $text-error",
     LOW: "bold $text-error",
     OVERLOAD: "bold $text-warning",
+    WRONG_RANGE: "bold $text-warning",
 }
 
 
@@ -37,12 +41,22 @@ class Verdict:
         return SYMBOL[self.state]
 
 
-def verdict(expected: float, low: float, high: float, volts: float | None, read: bool) -> Verdict:
-    """Compare a reading with its band; ``read`` False means the node is not measured yet."""
+def verdict(
+    expected: float,
+    low: float,
+    high: float,
+    volts: float | None,
+    read: bool,
+    plausible: Range | None = None,
+) -> Verdict:
+    """Compare a reading with its band; ``read`` False means the node is not measured yet; a
+    value outside ``plausible`` (what any node of the board could show) is a wrong range."""
     if not read:
         return Verdict(UNREAD, None, None)
     if volts is None:
         return Verdict(OVERLOAD, None, None)
+    if plausible is not None and not plausible.contains(volts):
+        return Verdict(WRONG_RANGE, None, None)
     dev = volts - expected
     rel = dev / abs(expected) if abs(expected) > 1e-9 else None
     if volts > high:
@@ -60,8 +74,11 @@ def volts_text(volts: float | None, digits: int = 4) -> str:
         return "—"
     if volts == 0:
         return "0"
+    if abs(volts) >= 1e6:  # far beyond any node: short (1e300, -2.5e7), never 300 digits
+        exponent = int(math.floor(math.log10(abs(volts))))
+        return f"{volts / 10**exponent:.{digits - 2}g}e{exponent}"
     magnitude = int(math.floor(math.log10(abs(volts))))
-    decimals = max(0, digits - 1 - magnitude)
+    decimals = min(max(0, digits - 1 - magnitude), 4)  # 0.1 mV: below any meter's resolution
     return f"{volts:.{decimals}f}"
 
 
@@ -74,7 +91,15 @@ def deviation_text(v: Verdict, percent: bool = True) -> str:
     """Signed deviation in volts, with the percentage where it means something."""
     if v.deviation is None:
         return ""
-    text = f"{v.deviation:+.2g}" if abs(v.deviation) < 10 else f"{v.deviation:+.0f}"
+    d = v.deviation
+    if abs(d) >= 1e5:  # a value no board shows: short, never a long field
+        text = f"{d:+.1e}"
+    elif abs(d) >= 10:
+        text = f"{d:+.0f}"
+    elif abs(d) >= 1:
+        text = f"{d:+.2g}"
+    else:
+        text = f"{d:+.2f}"  # never 1.4e-05 for a reading on its expectation
     if percent and v.relative is not None and abs(v.relative) < 10:
         text += f" ({v.relative:+.0%})"
     return text.replace("-", "−")
@@ -121,11 +146,6 @@ def entry_hint(node: str | None) -> str:
     return f"volts at {node}: 12.9, 890mV, 1.2kV or OL, then Enter"
 
 
-def count_text(n: int, word: str) -> str:
-    """``1 reading``, ``2 readings``."""
-    return f"{n} {word}{'' if n == 1 else 's'}"
-
-
 def reveal_text(session: BoardSession, fault: Fault) -> str:
     """Whether the tool (and the technician) found the demo's hidden fault."""
     p = session.profile
@@ -140,7 +160,8 @@ def reveal_text(session: BoardSession, fault: Fault) -> str:
     tool = "; ".join(f"{w} ({odds:.0%})" for w, odds in session.at_repairs)
     ranked = f" The tool's top suspect when you repaired: {tool}." if tool else ""
     read = ", ".join(f"{n} {volts_text(x)} V" for n, x in session.volts_by_node().items())
-    return (
-        f"The hidden fault was {hidden}. {verdict}{ranked} "
-        f"Readings after the last repair: {read or 'none'}."
-    )
+    if session.actions:
+        after = f"Readings after the last repair: {read or 'none'}."
+    else:
+        after = f"No repair was recorded. Readings: {read or 'none'}."
+    return f"The hidden fault was {hidden}. {verdict}{ranked} {after}"

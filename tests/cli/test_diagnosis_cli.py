@@ -128,7 +128,7 @@ def test_diagnose_text_has_the_caution(injected, dictionary_cache, tmp_path):
     "text, message",
     [
         ("node,volts\nX9,1.0\n", "node 'X9' is not on this board"),
-        ("node,volts\nP1,abc\n", "volts 'abc' is not a number"),
+        ("node,volts\nP1,abc\n", "volts: 'abc' is not a number with a unit"),
         ("volts,node\n1.0,P1\n", "expected 'node,volts'"),
     ],
 )
@@ -193,8 +193,8 @@ def test_calibrate_dc_ladder_says_what_it_cannot_split(tmp_path):
     "text, message",
     [
         ("node,volts\nQ7,1.0\n", "node 'Q7' is not on this board"),
-        ("node,volts\nS0,3.3\nP1,1;2\n", "volts '1;2' is not a number"),
-        ("node;volts\nS0;3.3\n", "expected 'node,volts'"),
+        ("node,volts\nS0,3.3\nP1,1;2\n", "volts: '1;2' is not a number with a unit"),
+        ("node|volts\nS0|3.3\n", "expected 'node,volts'"),
         ("node,volts\nS0,3.3\n", "two or more nodes"),
         ("", "no readings"),
     ],
@@ -218,3 +218,58 @@ def test_calibrate_missing_readings_file(tmp_path):
         ["calibrate", str(DICKSON), "--readings", str(missing), "--out", str(tmp_path / "o.toml")]
     )
     assert code == 2 and "readings file not found" in err and err.count("\n") == 1
+
+
+def test_calibrate_refuses_readings_from_a_failed_board(tmp_path):
+    """Readings of a board with an open diode fit as a collapsed drive and a huge diode drop;
+    calibrate must say so and write nothing, unless told to write it anyway."""
+    board = load_profile(DC_LADDER)
+    circuit, _ = build_circuit(board)
+    open_d3 = next(f for h in catalog(board, circuit) if h.key == "D3:open" for f in h.faults())
+    volts = {n.node: n.volts for n in expect(board, fault=open_d3).nodes}
+    csv = _readings_csv(tmp_path, list(volts), volts)
+    out_path = tmp_path / "fitted.toml"
+    args = ["calibrate", str(DC_LADDER), "--readings", csv, "--out", str(out_path)]
+    code, out, err = _run(args)
+    assert code == 2 and out == "" and err.count("\n") == 1
+    assert f"do not look like a healthy {board.name}" in err and "Nothing was written" in err
+    assert "times the meter's accuracy there" in err
+    assert not out_path.exists()
+    # Even when told to accept it, a fit that would not load as a profile is not written.
+    code, out, err = _run([*args, "--accept-poor-fit"])
+    assert code == 2 and "the fitted profile: [diode.forward_volts]" in err
+    assert "nothing was written" in err and not out_path.exists()
+
+
+def test_calibrate_writes_a_poor_fit_only_when_told(tmp_path):
+    csv = _golden_csv(tmp_path, DICKSON, 0.7)  # a drive 30 % low: not this board's profile
+    out_path = tmp_path / "fitted.toml"
+    args = ["calibrate", str(DICKSON), "--readings", csv, "--out", str(out_path)]
+    code, _, err = _run(args)
+    assert code == 2 and "the fit moves the drive from 3.3 V to 2.31 V" in err
+    code, out, err = _run([*args, "--accept-poor-fit"])
+    assert code == 0, err
+    assert "POOR FIT (written because of --accept-poor-fit)" in out
+    assert "POOR FIT, written with --accept-poor-fit" in out_path.read_text()
+    assert load_profile(out_path).drive_volts == pytest.approx(3.3 * 0.7, rel=0.005)
+
+
+def test_calibrate_takes_a_shipped_profile_by_name(tmp_path, monkeypatch):
+    monkeypatch.setenv("FIELDTOOL_PROFILES", str(tmp_path / "none"))
+    csv = _golden_csv(tmp_path, DICKSON, 0.98)
+    out_path = tmp_path / "fitted.toml"
+    code, out, err = _run(["calibrate", DICKSON.stem, "--readings", csv, "--out", str(out_path)])
+    assert code == 0, err
+    assert load_profile(out_path).drive_volts == pytest.approx(
+        load_profile(DICKSON).drive_volts * 0.98, rel=0.005
+    )
+
+
+def test_calibrate_output_problems_are_one_line_before_any_work(tmp_path):
+    csv = _golden_csv(tmp_path, DICKSON, 0.98)
+    for out, words in (
+        (tmp_path / "missing" / "f.toml", "does not exist"),
+        (tmp_path, "is a folder"),
+    ):
+        code, _, err = _run(["calibrate", str(DICKSON), "--readings", csv, "--out", str(out)])
+        assert code == 2 and words in err and err.count("\n") == 1

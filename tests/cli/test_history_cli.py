@@ -89,7 +89,8 @@ def test_history_neutralises_terminal_escapes_from_the_file(logs, capsys):
         (["history", "../etc"], "contains a path separator"),
         (["history", "DL-0007", "--logs", "{missing}"], "does not exist"),
         (["history", "DL-0007", "--logs", "{file}"], "is not a folder"),
-        (["fleet", "no-such-board"], "no histories for profile 'no-such-board'"),
+        (["fleet", "no-such-board"], "no profile named 'no-such-board' and no histories for it"),
+        (["history", "TG:42"], "no history for board 'TG:42'"),
         (["fleet", PROFILE, "--logs", "{missing}"], "does not exist"),
         (["logs"], "needs a subcommand: merge"),
         (["logs", "merge", "{missing}"], "not a folder"),
@@ -109,6 +110,14 @@ def test_errors_are_one_line_with_exit_code_2(logs, capsys, argv, words):
     code, out, err = _run(capsys, *argv)
     assert code == 2 and out == ""
     assert words in _one_line_error(err)
+
+
+def test_fleet_of_a_known_board_type_with_no_history_is_empty(logs, capsys):
+    code, out, err = _run(capsys, "fleet", "tidegauge-apd-bias", "--logs", str(logs))
+    assert code == 0 and err == ""
+    assert out.startswith("Fleet tidegauge-apd-bias: 0 boards, 0 sessions (none), 0 repairs")
+    code, out, _ = _run(capsys, "fleet", "tidegauge-apd-bias", "--logs", str(logs), "--json")
+    assert json.loads(out)["boards"] == 0
 
 
 def test_unknown_serial_suggests_close_ones(logs, capsys):

@@ -155,7 +155,7 @@ def test_action_phrases(profile, text, expected):
     [
         ("replaced it", "names no part on this board"),
         ("D3:open C2:short", "names more than one part"),
-        ("D3:exploded replaced", "has no mode 'exploded'"),
+        ("D3:exploded replaced", "has no fault mode 'exploded'"),
         ("D9:open replaced", "names no part"),
         ("D3: replaced", "nothing after ':'"),
         ("C2:lowcap replaced", "needs a severity"),
@@ -189,6 +189,9 @@ def test_renamed_designators_are_stored_as_the_board_shows_them(tmp_path, capsys
         (["--board", "DL-1", "--readings", "{bad}"], "is not on this board"),
         (["--board", "DL-1", "--logs", "{file}"], "is not a folder"),
         (["--board", "DL-1", "--verify", "{bad}"], "--verify takes readings after a repair"),
+        (["--board", "DL-1", "--readings", "{huge}"], "S0 DC volts 1e+300 V is beyond what any"),
+        (["--board", "DL:1"], "contains ':'"),
+        (["--board", "NUL"], "a name Windows reserves for a device"),
     ],
 )
 def test_record_errors_write_nothing(tmp_path, capsys, d3_open_csv, extra, words):
@@ -197,7 +200,9 @@ def test_record_errors_write_nothing(tmp_path, capsys, d3_open_csv, extra, words
     bad.write_text("node,volts\nS0,3.3\nZ9,1.0\n")
     file = tmp_path / "plain-file"
     file.write_text("x")
-    names = {"missing": tmp_path / "none.csv", "bad": bad, "file": file}
+    huge = tmp_path / "huge.csv"
+    huge.write_text("node,volts\nS0,1e300\nOUT,14.2\n")
+    names = {"missing": tmp_path / "none.csv", "bad": bad, "file": file, "huge": huge}
     argv = [e.format(**names) for e in extra]
     if "--readings" not in argv:
         argv += ["--readings", str(d3_open_csv)]

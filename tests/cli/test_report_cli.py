@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import json
 import re
 import sys
 
@@ -10,6 +11,7 @@ import pytest
 from fieldtool.cli import main
 from fieldtool.core import history as h
 from fieldtool.core.circuit.profile import load_profile
+from fieldtool.core.names import file_name_problem
 from fieldtool.core.report.content import expectations_for
 from tests.conftest import ROOT
 from tests.history.helpers import day
@@ -46,7 +48,15 @@ def _write_session(logs, serial, expected, when, outcome="fixed", note=HOSTILE_N
         verification("OUT", out.volts),
         h.SessionClosed(outcome=outcome),
     ]
-    h.append_many(logs, PROFILE, serial, events, time=when)
+    if file_name_problem(serial) is None:
+        h.append_many(logs, PROFILE, serial, events, time=when)
+        return opened.session_id
+    # A serial refused today (such as '<b>DL&1') as an older version would have stored it.
+    h.append_many(logs, PROFILE, "STAND-IN", events, time=when)
+    stand_in = logs / PROFILE / "STAND-IN.jsonl"
+    text = stand_in.read_text().replace('"board":"STAND-IN"', f'"board":{json.dumps(serial)}')
+    (logs / PROFILE / f"{serial}.jsonl").write_text(text)
+    stand_in.unlink()
     return opened.session_id
 
 
@@ -164,3 +174,33 @@ def test_report_bands_come_from_the_fault_dictionary(expected):
     assert [e.node for e in expected.nodes] == list(d.nodes)
     band = d.band("OUT")
     assert (expected.get("OUT").low, expected.get("OUT").high) == (band.low, band.high)
+
+
+def test_report_into_a_read_only_folder_is_one_line_and_leaves_nothing(
+    tmp_path, capsys, expected, read_only_dir
+):
+    logs = tmp_path / "logs"
+    _write_session(logs, "DL-2", expected, day(0))
+    shelf = read_only_dir(tmp_path / "shelf")
+    for name in ("r.html", "r.md"):
+        code, out, err = _report(capsys, "DL-2", "--logs", str(logs), "--out", str(shelf / name))
+        assert code == 2 and out == "" and err.count("\n") == 1
+        assert "read-only" in err and "Traceback" not in err
+    assert list(shelf.iterdir()) == []
+
+
+def test_a_reading_no_node_could_show_is_reported_not_plotted(tmp_path, capsys, expected):
+    """An older version let a reading of 1e300 V into a history: the report shows it as a wrong
+    range or unit, keeps it off the plot and the bands, and still says WARNING or CAUTION by
+    the rest of the board."""
+    logs = tmp_path / "logs"
+    opened = h.SessionOpened(technician="ana", profile_hash="x", tool_version="0.1.0")
+    events = [opened, reading("S0", expected.get("S0").volts), reading("OUT", 1e300)]
+    h.append_many(logs, PROFILE, "DL-3", events, time=day(0))
+    out = tmp_path / "r.html"
+    code, _, err = _report(capsys, "DL-3", "--logs", str(logs), "--out", str(out))
+    assert code == 0, err
+    page = out.read_text()
+    assert "wrong range or unit (not plotted)" in page
+    assert page.count("data:image/png;base64,") == 1
+    assert "<strong>CAUTION</strong>" in page  # a 15 V pump: the absurd value does not count

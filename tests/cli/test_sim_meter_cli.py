@@ -180,10 +180,12 @@ def test_ctrl_c_stops_it_even_when_started_with_sigint_ignored(sim_meter):
 
 
 def test_negative_command_gap_is_refused(capsys):
-    assert main(["sim-meter", str(BOARD), "--command-gap", "-1"]) == 2
-    assert capsys.readouterr().err == (
-        "fieldtool: bad input: --command-gap -1: expected seconds, 0 or more\n"
-    )
+    with pytest.raises(SystemExit) as stop:
+        main(["sim-meter", str(BOARD), "--command-gap", "-1"])
+    assert stop.value.code == 2
+    err = capsys.readouterr().err
+    assert err.startswith("fieldtool: argument --command-gap: command gap is -1, expected 0 s")
+    assert err.count("\n") == 1
 
 
 def test_bad_fault_spec_is_one_line_exit_2(capsys):

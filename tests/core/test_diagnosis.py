@@ -7,6 +7,7 @@ a reading equal to the healthy expectation never raises a fault's odds against h
 """
 
 import functools
+from dataclasses import replace
 
 import numpy as np
 import pytest
@@ -14,6 +15,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from fieldtool.core.circuit.expect import expect
+from fieldtool.core.circuit.reading_range import node_volts_range
 from fieldtool.core.diagnosis import ranking as dg
 from fieldtool.core.diagnosis.dictionary import build
 from fieldtool.core.diagnosis.faults import parse_fault
@@ -121,10 +123,30 @@ def test_readings_no_hypothesis_explains_are_flagged(d):
     assert result.fit.worst_node in {"S1", "S2", "S3"}
 
 
-def test_overload_is_noted_not_used(d):
+def test_overload_without_a_meter_range_is_noted_not_used(d):
     result = diagnose(d, [dc("S3", None)])
-    assert result.ignored == ("S3: OL (over range) carries no value; set a higher range",)
+    assert result.ignored == (
+        "S3: OL (over range) tells nothing without the meter's range: add [meter] range_volts "
+        "to the profile, or read it on a higher range",
+    )
     assert result.top.key == "healthy"
+
+
+def test_overload_with_a_meter_range_counts_as_beyond_it():
+    """With the range known, OL is a censored reading (|V| beyond the range): hypotheses that
+    keep the node inside the range lose, and an OL no hypothesis reaches is flagged."""
+    d = replace(_dictionary(), profile=replace(PROFILE, meter_range_volts=10.0))
+    healthy_s3 = d.band("S3").expected
+    assert healthy_s3 > 10.0  # the healthy board reads OL at S3 on a 10 V range
+    before = {s.key: s.probability for s in diagnose(d, []).suspects}
+    after = diagnose(d, [dc("S3", None)])
+    probs = {s.key: s.probability for s in after.suspects}
+    assert after.ignored == () and not after.fit.no_fit
+    assert probs["D3:open"] < before["D3:open"] / 10  # S3 collapses with D3 open: ruled out
+    assert after.next_probe != "S3"
+    s0 = diagnose(d, [dc("S0", None)])  # 5 V supply: nothing puts it beyond 10 V
+    assert s0.fit.no_fit and s0.fit.worst_node == "S0"
+    assert "beyond the meter's 10 V range" in s0.fit.text
 
 
 def test_unknown_or_repeated_nodes_are_refused(d):
@@ -158,3 +180,28 @@ def test_json_shape(d):
 )
 def test_chi2_tail_against_tables(x, k, expected):
     assert chi2_sf(x, k) == pytest.approx(expected, rel=2e-3)
+
+
+@settings(max_examples=60, deadline=None)
+@given(
+    st.lists(
+        st.tuples(
+            st.integers(0, 6),
+            st.floats(allow_nan=False, allow_infinity=False) | st.sampled_from([1e300, -1e300]),
+        ),
+        min_size=1,
+        max_size=4,
+        unique_by=lambda t: t[0],
+    )
+)
+def test_any_reading_ranks_or_is_flagged_never_crashes(picks):
+    """A finite reading no node could show (1e300: a measurement refuses nan and inf itself) is
+    left out and flagged as a wrong range, unit or node; the posterior stays a distribution."""
+    d = _dictionary()
+    readings = [dc(d.nodes[i], v) for i, v in picks]
+    result = diagnose(d, readings)
+    probabilities = np.array([s.probability for s in result.suspects])
+    assert np.isfinite(probabilities).all() and abs(probabilities.sum() - 1) < 1e-9
+    plausible = node_volts_range(PROFILE)
+    if any(not plausible.contains(v) for _, v in picks):
+        assert result.fit.no_fit and "wrong range, unit or node?" in result.fit.text

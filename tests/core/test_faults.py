@@ -56,17 +56,30 @@ def test_specs_parse(spec, fault):
     [
         ("D5", "has no ':'"),
         ("D9:open", "fault target 'D9' is not on this board; parts: D1, D2, CR103"),
-        ("D5:opne", "diode D5 has no mode 'opne' on this board; modes: open, short, leaky, weak"),
-        ("C1:weak=10", "capacitor C1 has no mode 'weak'"),
+        ("D5:opne", "diode D5 has no fault mode 'opne'; its modes here: open, short, leaky, weak"),
+        ("C1:weak=10", "capacitor C1 has no fault mode 'weak'"),
         ("D1:open=3", "mode open takes no severity"),
         ("C3:lowcap", "mode lowcap needs a severity in fraction, e.g. C3:lowcap=0.3"),
-        ("C3:lowcap=1.5", "lowcap needs the fraction left, between 0 and 1"),
+        ("C3:lowcap=1.5", "lowcap severity is 1.5, expected 0.001 or more and below 1"),
+        ("C3:lowcap=1e-9", "below 0.001 it is gone: write open"),
         ("C3:lowcap=abc", "severity 'abc' is not a number"),
-        ("D2:leaky=-5", "leaky needs a resistance above 0 ohms"),
-        ("D5:short=0", "short needs a resistance above 0 and at most 100 ohms"),
-        ("C4:short=47k", "a higher one is a leak: use leaky"),
-        ("load:heavy=0.5", "heavy needs a factor above 1"),
-        ("drive:missing", "drive drive has no mode 'missing'"),
+        ("D2:leaky=-5", "leaky severity is -5, expected above 100 Ω and at most 1e+18 Ω"),
+        ("D2:leaky=47", "at 100 Ω or less a part is shorted: use short"),
+        ("D5:short=0", "short severity is 0, expected 100 µΩ to 100 Ω"),
+        ("C4:short=47k", "above 100 Ω a part leaks rather than shorts: use leaky"),
+        ("C4:esr=1e300", "esr severity is 1e+300, expected 1 mΩ to 1 TΩ"),
+        ("D4:weak=0", "weak severity is 0, expected 1 mΩ to 1 TΩ"),
+        ("load:heavy=0.5", "heavy severity is 0.5, expected above 1× and at most 1000×"),
+        ("load:heavy=1e6", "a thousand times the rated load is a short"),
+        # Board targets read as "the drive", never "drive drive"; an unavailable mode says why.
+        (
+            "drive:missing",
+            "the drive cannot be 'missing' on this board (the drive here is a square clock: "
+            "try stuck-low or stuck-high); its modes here: stuck-low, stuck-high, low",
+        ),
+        ("drive:bogus", "the drive has no fault mode 'bogus'; its modes here:"),
+        # A pasted wall of text is echoed cut short, with its length.
+        ("D5:open=" + "9" * 100_000, "… (100008 characters)"),
     ],
 )
 def test_bad_specs_are_refused_with_what_and_how(spec, message):
@@ -79,8 +92,58 @@ def test_ac_ladder_has_missing_drive_and_no_supply():
     assert parse_fault("drive:missing", AC) == Fault("drive", "missing")
     with pytest.raises(InputError, match="stuck-low"):
         parse_fault("drive:stuck-low", AC)
-    with pytest.raises(InputError, match="supply"):
+    with pytest.raises(InputError) as err:
         parse_fault("supply:low=0.5", AC)
+    assert str(err.value) == (
+        "fault 'supply:low=0.5': the supply cannot be 'low' on this board (this board has no DC "
+        "input); it has no fault modes on this board"
+    )
+
+
+def test_a_hypothesis_that_cannot_differ_from_healthy_is_left_out():
+    """A fraction of 0 V is 0 V, and a heavier 0 A load draws nothing: such faults would leave
+    every node as healthy, so they are neither ranked nor accepted in a spec."""
+    zero_supply = make_profile(board={"polarity": "negative"}, supply={"volts": 0.0})
+    no_load = make_profile(load={"ohms": None, "amps": 0.0})
+    for profile, key, spec in (
+        (zero_supply, "supply:low", "supply:low=0.5"),
+        (no_load, "load:heavy", "load:heavy=3"),
+    ):
+        circuit, _ = build_circuit(profile)
+        assert key not in {h.key for h in catalog(profile, circuit)}
+        with pytest.raises(InputError, match="would change nothing"):
+            parse_fault(spec, profile)
+    circuit, _ = build_circuit(PROFILE)
+    assert {"supply:low", "load:heavy"} <= {h.key for h in catalog(PROFILE, circuit)}
+
+
+@pytest.mark.parametrize(
+    "fault, spec",
+    [
+        # A fraction reads as a fraction, never in milli (0.3, not 300m); ohms keep SI prefixes.
+        (Fault("C3", "lowcap", 0.3), "C3:lowcap=0.3"),
+        (Fault("drive", "low", 0.75), "drive:low=0.75"),
+        (Fault("load", "heavy", 3.0), "load:heavy=3"),
+        (Fault("D2", "leaky", 47e3), "D2:leaky=47k"),
+        (Fault("C6", "esr", 0.22), "C6:esr=220m"),
+    ],
+)
+def test_specs_are_written_back_as_a_technician_writes_them(fault, spec):
+    assert fault.spec(PROFILE) == spec
+    assert parse_fault(spec, PROFILE) == fault
+
+
+def test_grids_stay_inside_the_severities_a_spec_accepts():
+    """An extreme board (1 Ω load: leak grid 0.1 Ω; 1 Hz and 10 pF: series grid 5e12 Ω) keeps
+    every grid point inside what ``parse_fault`` would take."""
+    extreme = make_profile(
+        drive={"frequency_hz": 1.0}, capacitor={"farads": 1e-11}, load={"ohms": 1.0}
+    )
+    circuit, _ = build_circuit(extreme)
+    for hyp in catalog(extreme, circuit):
+        for fault in hyp.faults():
+            if fault is not None and fault.severity is not None:
+                assert parse_fault(fault.spec(extreme), extreme).mode == fault.mode
 
 
 @pytest.mark.parametrize(

@@ -80,10 +80,10 @@ def test_fleet_view_counts(tmp_path):
     json.dumps(view.to_json())  # the --json shape is plain JSON
 
 
-def test_unknown_profile_and_missing_logs_are_clear_errors(tmp_path):
+def test_a_board_type_with_no_history_is_an_empty_fleet_and_missing_logs_an_error(tmp_path):
     _small_fleet(tmp_path)
-    with pytest.raises(h.NotFoundError, match="no histories for profile 'nope'.*cw4, cw6"):
-        fleet_view(tmp_path, "nope")
+    empty = fleet_view(tmp_path, "nope")
+    assert (empty.boards, empty.sessions, empty.repairs, empty.failures) == (0, 0, 0, ())
     with pytest.raises(h.NotFoundError, match="does not exist"):
         fleet_view(tmp_path / "missing", "cw6")
     with pytest.raises(h.BadNameError):

@@ -223,3 +223,75 @@ def test_logs_dir_resolution(tmp_path, monkeypatch):
 def test_mixed_time_spellings_sort_by_instant():
     assert h.time_key("2026-01-01T10:00:00+00:00") == "2026-01-01T10:00:00.000000Z"
     assert h.time_key("2026-01-01T10:00:00Z") < h.time_key("2026-01-01T10:00:00.500000Z")
+
+
+_WRITE_WITH_NO_ROOM = """
+import resource, signal, sys
+from fieldtool.core import history as h
+from tests.readings import reading
+signal.signal(signal.SIGXFSZ, signal.SIG_IGN)  # the kernel then fails the write with EFBIG
+resource.setrlimit(resource.RLIMIT_FSIZE, (0, resource.RLIM_INFINITY))
+try:
+    h.append(sys.argv[1], "cw6", "SN9", reading("N1", 1.0))
+except h.SaveError as exc:
+    print(exc.message)
+"""
+
+
+def test_a_first_write_that_fails_leaves_no_empty_board_file(tmp_path):
+    """A process allowed no file growth (RLIMIT_FSIZE = 0, POSIX setrlimit) fails its writes
+    for real, as a full disk does: the board's file must not be left behind empty, where the
+    fleet and the start screen would count it as a board."""
+    import subprocess
+    import sys
+
+    run = subprocess.run(
+        [sys.executable, "-c", _WRITE_WITH_NO_ROOM, str(tmp_path)],
+        cwd=Path(__file__).resolve().parents[2],  # so the snippet finds the tests package
+        capture_output=True,
+        text=True,
+        timeout=60,
+    )
+    assert "could not save reading" in run.stdout and "nothing was written" in run.stdout
+    assert list((tmp_path / "cw6").glob("*.jsonl")) == []
+    h.append(tmp_path, "cw6", "SN9", reading("N1", 1.0))  # room again: it works
+    assert len(h.read_board(tmp_path, "SN9").events) == 1
+
+
+def test_an_empty_board_file_from_an_older_version_is_no_history(tmp_path):
+    (tmp_path / "cw6").mkdir()
+    (tmp_path / "cw6" / "SN8.jsonl").write_bytes(b"")
+    with pytest.raises(h.NotFoundError):
+        h.read_board(tmp_path, "SN8")
+    from fieldtool.core.history.fleet import fleet_view
+
+    assert fleet_view(tmp_path, "cw6").boards == 0
+    h.append(tmp_path, "cw6", "SN8", reading("N1", 1.0))
+    assert fleet_view(tmp_path, "cw6").boards == 1
+
+
+@pytest.mark.parametrize(
+    "serial, problem",
+    [
+        ("TG:42", "contains ':'"),
+        ("TG*42", "contains '*'"),
+        ("TG?42", "contains '?'"),
+        ("CON", "a name Windows reserves for a device (CON)"),
+        ("com1.board", "a name Windows reserves for a device (COM1)"),
+        ("TG-42.", "ends with a dot"),
+    ],
+)
+def test_serials_the_message_refuses_are_refused(tmp_path, serial, problem):
+    with pytest.raises(h.BadNameError) as caught:
+        h.append(tmp_path, "cw6", serial, reading("N1", 1.0))
+    assert problem in caught.value.message
+    assert "use letters, digits, spaces inside, and - _ . + # ( )" in caught.value.message
+    assert not (tmp_path / "cw6").exists() or list((tmp_path / "cw6").iterdir()) == []
+
+
+def test_a_serial_with_spaces_around_it_is_the_same_board(tmp_path):
+    h.append(tmp_path, "cw6", "TG-0042", reading("N1", 1.0))
+    h.append(tmp_path, "cw6", " TG-0042 ", reading("N2", 2.0))
+    history = h.read_board(tmp_path, "TG-0042 ")
+    assert [r.board for r in history.events] == ["TG-0042", "TG-0042"]
+    assert [p.name for p in (tmp_path / "cw6").iterdir()] == ["TG-0042.jsonl"]

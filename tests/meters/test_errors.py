@@ -102,7 +102,7 @@ def test_real_refused_connection():
 
 
 def test_real_unknown_url_scheme_is_a_setting_to_fix():
-    with pytest.raises(e.MeterSettingsError, match="give a device such as /dev/ttyUSB0"):
+    with pytest.raises(e.MeterSettingsError, match="serial-over-pigeon:// is not a kind of port"):
         open_port("serial-over-pigeon://coop")
 
 

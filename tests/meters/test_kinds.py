@@ -219,7 +219,7 @@ def test_setup_commands_default_and_overridden():
         ('configure = "x"\n', "key 'configure' must be a table [configure]"),
         ('stream_kind = "ohms"\n', "stream_kind must be one of auto, dc"),
         ('check_errors = "yes"\n', "key 'check_errors' must be bool, not str"),
-        ("[settle]\namps = -1\n", "settle.amps must not be negative"),
+        ("[settle]\namps = -1\n", "settle.amps is -1, expected 0 A to 1 A"),
     ],
 )
 def test_settings_refused(text, fragment):

@@ -59,7 +59,9 @@ def test_typed_overload(text):
         ("12.9 ohm", "understood the number 12.9 but not the unit 'ohm'"),
         ("5MV", "understood the number 5 but not the unit 'MV'"),
         ("V", "'V' is not a number with a unit"),
-        ("1e999", "is not a finite voltage"),
+        ("1e999", "'1e999' is not a finite number"),
+        ("9" * 100_000, "… (100000 characters) is not a finite number"),
+        ("9" * 5000 + "x", "understood the number '99999"),
         ("12 9", "'12 9' is not a number with a unit"),
     ],
 )

@@ -5,8 +5,16 @@ from __future__ import annotations
 
 import pytest
 
+from fieldtool.core.plausible import Range
 from fieldtool.tui.ladder import ladder_cells
-from fieldtool.tui.view import bar, deviation_text, percent_text, verdict, volts_text
+from fieldtool.tui.view import (
+    WRONG_RANGE,
+    bar,
+    deviation_text,
+    percent_text,
+    verdict,
+    volts_text,
+)
 from tests.conftest import make_profile
 
 
@@ -29,11 +37,25 @@ def test_deviation_words():
     v = verdict(100.0, 97.0, 103.0, 61.7, True)
     assert deviation_text(v) == "−38 (−38%)"
     assert deviation_text(v, percent=False) == "−38"
+    on_it = verdict(15.0, 14.6, 15.4, 15.0000139, True)
+    assert deviation_text(on_it, percent=False) == "+0.00"  # never "+1.4e-05"
+    assert deviation_text(verdict(15.0, 14.6, 15.4, 1e300, True), percent=False) == "+1.0e+300"
+    plausible = Range(-50.0, 50.0, "V", "test")
+    assert verdict(15.0, 14.6, 15.4, 1e300, True, plausible).state == WRONG_RANGE
 
 
 @pytest.mark.parametrize(
     ("volts", "text"),
-    [(125.81, "125.8"), (0.33012, "0.3301"), (-56.93, "-56.93"), (0.0, "0"), (None, "OL")],
+    [
+        (125.81, "125.8"),
+        (0.33012, "0.3301"),
+        (-56.93, "-56.93"),
+        (0.0, "0"),
+        (None, "OL"),
+        (2.904e-5, "0.0000"),  # no more decimals than a meter shows
+        (1e300, "1e300"),  # an absurd value stays short
+        (-2.5e7, "-2.5e7"),
+    ],
 )
 def test_volts_text(volts, text):
     assert volts_text(volts) == text

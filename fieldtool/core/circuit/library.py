@@ -17,7 +17,7 @@ from pathlib import Path
 
 from fieldtool.core.circuit.profile import load_profile, load_profile_bytes
 from fieldtool.core.circuit.spec import Profile
-from fieldtool.core.errors import ProfileError
+from fieldtool.core.errors import ProfileError, shown
 
 ENV_VAR = "FIELDTOOL_PROFILES"
 SHIPPED_PACKAGE = "fieldtool.profiles"
@@ -34,9 +34,17 @@ class ProfileEntry:
     def load(self) -> Profile:
         """Read and validate the profile."""
         if self.shipped:
-            resource = resources.files(SHIPPED_PACKAGE) / f"{self.name}.toml"
-            return load_profile_bytes(resource.read_bytes(), self.where)
+            return load_profile_bytes(self.read_bytes(), self.where)
         return load_profile(self.where)
+
+    def read_bytes(self) -> bytes:
+        """The profile's TOML file as it is stored (ProfileError when it cannot be read)."""
+        if self.shipped:
+            return (resources.files(SHIPPED_PACKAGE) / f"{self.name}.toml").read_bytes()
+        try:
+            return Path(self.where).read_bytes()
+        except OSError as exc:
+            raise ProfileError(f"{self.where}: cannot be read ({exc.strerror or exc})") from None
 
 
 def user_profiles_dir(env: Mapping[str, str], cwd: Path | None = None) -> Path:
@@ -81,12 +89,19 @@ def find_profile(text: str, folder: Path | None) -> Profile:
     """The profile a command-line argument names: a ``.toml`` path, or a name (see module doc)."""
     if looks_like_path(text) or Path(text).is_file():
         return load_profile(text)
+    return locate(text, folder).load()
+
+
+def locate(text: str, folder: Path | None) -> ProfileEntry:
+    """Where the profile a command-line argument names lives (a path, or a name)."""
+    if looks_like_path(text) or Path(text).is_file():
+        return ProfileEntry(Path(text).stem, text, False)
     entries = available(folder)
     for entry in entries:
         if entry.name == text:
-            return entry.load()
+            return entry
     known = ", ".join(e.name for e in entries) or "none"
     raise ProfileError(
-        f"no profile named {text!r} (known: {known}); give a .toml path, or put "
+        f"no profile named {shown(text)} (known: {known}); give a .toml path, or put "
         f"{text}.toml in your profiles folder"
     )

@@ -21,8 +21,10 @@ import numpy as np
 from fieldtool.core.circuit.expect import Expectation, discharge_time
 from fieldtool.core.circuit.netlist import build_circuit
 from fieldtool.core.circuit.profile import DEFAULT_SAFE_VOLTS, Profile
+from fieldtool.core.circuit.reading_range import node_volts_range
 from fieldtool.core.circuit.spec import display_name
 from fieldtool.core.circuit.topologies import topology_of
+from fieldtool.core.hazard import safety_line
 
 # The profile's safe_volts default. 50 V is the shock-protection threshold NFPA 70E uses
 # (from memory: check the edition in force before relying on it).
@@ -30,10 +32,6 @@ HAZARD_STANDARD = "NFPA 70E"
 HAZARD_NOTE = (
     f"{DEFAULT_SAFE_VOLTS:g} V is the {HAZARD_STANDARD} shock threshold "
     "(from memory: check the edition in force)"
-)
-CAUTION = (
-    "Power off, discharge through a rated resistor, verify with the meter before touching. "
-    "Estimates only: local codes and licensed practice come first."
 )
 
 TEST_LOAD_CAUTION = (
@@ -80,6 +78,11 @@ class SafetyFigures:
     def estimated(self) -> tuple[str, ...]:
         """Capacitors whose voltage used expected values for an unread node."""
         return tuple(c.designator for c in self.capacitors if not c.from_readings)
+
+    @property
+    def warning(self) -> str:
+        """The standing safety line for these figures (WARNING at or above the safe level)."""
+        return safety_line(None if self.overloaded else self.highest_volts, self.safe_volts)
 
     @property
     def all_from_readings(self) -> bool:
@@ -129,14 +132,16 @@ def node_voltages(
     """Every circuit node's DC volts (readings first, expected otherwise) and the nodes read.
 
     An overload reading gives no number, so its node falls back to the expected value and does
-    not count as read.
+    not count as read; so does a value no node of the board could show (a wrong range or unit,
+    which an older version may have stored).
     """
     circuit, _ = build_circuit(profile)
+    plausible = node_volts_range(profile)
     volts: dict[str, float] = {}
     read: set[str] = set()
     for node in (circuit.name(i) for i in circuit.probe_nodes):
         value = readings.get(node)
-        if value is not None and math.isfinite(value):
+        if value is not None and plausible.contains(value):
             volts[node] = float(value)
             read.add(node)
         else:

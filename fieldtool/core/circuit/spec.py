@@ -5,10 +5,10 @@
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field, replace
 
-from fieldtool.core.errors import ProfileError
+from fieldtool.core.circuit.ranges import LOAD_OHMS
+from fieldtool.core.errors import InputError
 
 POLARITIES = ("positive", "negative")
 DIODE_FAMILIES = ("general", "rectifier", "small-signal")
@@ -128,8 +128,9 @@ class Profile:
 
     def with_load_ohms(self, ohms: float) -> Profile:
         """The same board with a resistive load of ``ohms``."""
-        if not (ohms > 0 and math.isfinite(ohms)):
-            raise ProfileError(f"load of {ohms!r} ohms: expected a positive number of ohms")
+        problem = LOAD_OHMS.problem(ohms)
+        if problem:
+            raise InputError(f"load {problem}")
         return replace(self, load_ohms=float(ohms), load_amps=None)
 
 

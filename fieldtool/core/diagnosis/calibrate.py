@@ -16,6 +16,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
+from fieldtool.core.circuit import ranges
 from fieldtool.core.circuit.netlist import build_circuit
 from fieldtool.core.circuit.profile import DiodeSpec, Profile
 from fieldtool.core.circuit.response import linear_response
@@ -23,11 +24,24 @@ from fieldtool.core.circuit.solver import steady_state
 from fieldtool.core.circuit.topologies import topology_of
 from fieldtool.core.errors import InputError, SolverError
 from fieldtool.core.measurement import DC, Measurement
+from fieldtool.core.plausible import Range, quantity
 
 MAX_ITERATIONS = 12
 BACKTRACK_STEPS = 6
 RCOND = 1e-4  # relative singular value below which a direction counts as unseen
 RECT = 1.0 / math.sqrt(3.0)  # accuracy bound → 1σ, rectangular (JCGM 100:2008 §4.3.7)
+
+# What a fit to a known-good board may do (common practice, no source). A good board differs
+# from its profile by its parts' tolerances: the drive by a few per cent, the diodes' drop by
+# tens of millivolts, so the fitted board reads within a few times the meter's accuracy at
+# every node. Beyond these the readings came from a failed board (an open diode fits as a
+# collapsed drive) or from another board type, and the fitted profile would be wrong.
+DRIVE_SCALE = Range(0.8, 1.25, "×", "a good board's drive is within its tolerance of the profile")
+SUPPLY_SCALE = Range(0.8, 1.25, "×", "a good board's supply is within its tolerance")
+DIODE_SHIFT_V = Range(
+    -0.25, 0.25, "V", "one diode family's forward drop spreads by tens of millivolts"
+)
+RESIDUAL_ACCURACIES = 10.0  # a fitted node further off than 10× the meter's accuracy
 
 
 @dataclass(frozen=True)
@@ -43,6 +57,12 @@ class Calibration:
     chi2: float
     iterations: int
     notes: tuple[str, ...] = ()  # what the readings could not determine, in plain words
+    problems: tuple[str, ...] = ()  # why this does not look like a known-good board
+
+    @property
+    def plausible(self) -> bool:
+        """True when the fit looks like a known-good board of this type."""
+        return not self.problems
 
 
 def _apply(base: Profile, theta: np.ndarray, with_supply: bool) -> Profile:
@@ -146,6 +166,7 @@ def calibrate(profile: Profile, readings: Sequence[Measurement]) -> Calibration:
             break
     fitted = _apply(profile, theta, with_supply)
     res = y - v
+    problems = _problems(profile, fitted, theta, with_supply, used, res)
     return Calibration(
         profile=fitted,
         drive_scale=float(np.exp(theta[0])),
@@ -156,4 +177,55 @@ def calibrate(profile: Profile, readings: Sequence[Measurement]) -> Calibration:
         chi2=float(((res / sigma) ** 2).sum()),
         iterations=iterations,
         notes=tuple(notes),
+        problems=problems,
     )
+
+
+def _problems(
+    profile: Profile,
+    fitted: Profile,
+    theta: np.ndarray,
+    with_supply: bool,
+    used: Sequence[Measurement],
+    res: np.ndarray,
+) -> tuple[str, ...]:
+    """Why a fit does not look like a known-good board (see the bounds above)."""
+    found = []
+    scale, shift = math.exp(theta[0]), float(theta[1])
+    if not DRIVE_SCALE.contains(scale):
+        found.append(
+            f"the fit moves the drive from {profile.drive_volts:g} V to "
+            f"{fitted.drive_volts:.3g} V (×{scale:.2f}; {DRIVE_SCALE.why}: ×0.8 to ×1.25)"
+        )
+    if not DIODE_SHIFT_V.contains(shift):
+        found.append(
+            f"the fit shifts the diode drop by {shift * 1000:+.0f} mV ({DIODE_SHIFT_V.why}: at "
+            "most ±250 mV)"
+        )
+    if with_supply and not SUPPLY_SCALE.contains(math.exp(theta[2])):
+        found.append(
+            f"the fit moves the supply from {profile.supply_volts:g} V to "
+            f"{fitted.supply_volts:.3g} V ({SUPPLY_SCALE.why})"
+        )
+    for what, value, limit in (
+        ("drive", fitted.drive_volts, ranges.DRIVE_VOLTS),
+        (
+            "diode saturation current",
+            fitted.diode.saturation_current_a,
+            ranges.SATURATION_CURRENT_A,
+        ),
+    ):
+        if not limit.contains(value):
+            found.append(
+                f"the fitted {what} {quantity(value, limit.unit)} is outside {limit.text()}"
+            )
+    accuracy = np.array([abs(r.value) * profile.meter_percent / 100 for r in used])
+    accuracy += profile.meter_volts
+    ratio = np.abs(res) / accuracy
+    worst = int(np.argmax(ratio))
+    if ratio[worst] > RESIDUAL_ACCURACIES:
+        found.append(
+            f"{used[worst].at} is {res[worst]:+.3g} V off the fitted board, "
+            f"{ratio[worst]:.0f} times the meter's accuracy there (±{accuracy[worst]:.2g} V)"
+        )
+    return tuple(found)

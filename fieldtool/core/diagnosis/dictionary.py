@@ -30,7 +30,7 @@ from fieldtool.core.circuit.staged import staged_steady_state
 from fieldtool.core.diagnosis.faults import Hypothesis, apply_fault, catalog
 from fieldtool.core.errors import SolverError
 
-DICTIONARY_VERSION = 3  # 3: hypotheses carry their part kind
+DICTIONARY_VERSION = 4  # 4: no hypothesis that cannot differ from healthy; grids in range
 STEPS_PER_PERIOD = 40
 METER_SOLVE_FRACTION = 0.01  # meter loading above this → solve with the meter in place
 

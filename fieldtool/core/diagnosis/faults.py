@@ -17,7 +17,7 @@ from fieldtool.core.circuit.netlist import Circuit, Params
 from fieldtool.core.circuit.spec import Profile, display_name
 from fieldtool.core.circuit.topologies import topology_of
 from fieldtool.core.diagnosis.modes import BOARD_TARGETS, MODES, FaultMode, find_mode, modes_for
-from fieldtool.core.errors import InputError
+from fieldtool.core.errors import InputError, shown
 from fieldtool.core.units import format_si, parse_si
 
 __all__ = [
@@ -58,7 +58,9 @@ class Fault:
         target = display_name(profile, self.target) if profile else self.target
         if self.severity is None:
             return f"{target}:{self.mode}"
-        return f"{target}:{self.mode}={format_si(self.severity)}"
+        mode = next((m for m in MODES if m.name == self.mode and m.unit), None)
+        value = mode.format_severity(self.severity) if mode else format_si(self.severity)
+        return f"{target}:{self.mode}={value}"
 
 
 def target_kind(target: str, profile: Profile) -> str:
@@ -79,47 +81,55 @@ def target_kind(target: str, profile: Profile) -> str:
 def parse_fault(spec: str, profile: Profile) -> Fault:
     """Read a spec such as ``D5:open``, ``C3:lowcap=0.3`` or ``CR105:leaky=47k``."""
     text = spec.strip()
+    echo = shown(text)
     usage = (
         "write TARGET:MODE or TARGET:MODE=SEVERITY, e.g. D5:open, C4:short, C3:lowcap=0.3, "
         "D2:leaky=47k, drive:stuck-low (see 'fieldtool inject --help')"
     )
     if ":" not in text:
-        raise InputError(f"fault {spec!r} has no ':'; {usage}")
+        raise InputError(f"fault {echo} has no ':'; {usage}")
     target_text, _, rest = text.partition(":")
     mode_text, has_value, value_text = rest.partition("=")
     target = _resolve_target(target_text.strip(), profile)
     kind = target_kind(target, profile)
     mode_name = mode_text.strip().lower()
-    allowed = modes_for(profile, kind)
-    mode = next((m for m in allowed if m.name == mode_name), None)
-    if mode is None:
-        names = ", ".join(m.name for m in allowed)
-        raise InputError(
-            f"fault {spec!r}: {kind} {target_text.strip()} has no mode "
-            f"{mode_name!r} on this board; modes: {names}"
-        )
+    mode = find_mode(kind, mode_name)
+    if mode is None or not mode.available(profile):
+        raise InputError(f"fault {echo}: {_no_such_mode(kind, target, mode_name, profile)}")
     if mode.unit is None:
         if has_value:
-            raise InputError(f"fault {spec!r}: mode {mode.name} takes no severity; drop '='")
+            raise InputError(f"fault {echo}: mode {mode.name} takes no severity; drop '='")
         return Fault(target, mode.name)
     if not has_value and mode.default_severity is not None:
         return Fault(target, mode.name)  # the mode's typical severity (a short's ohm)
     if not has_value:
         raise InputError(
-            f"fault {spec!r}: mode {mode.name} needs a severity in {mode.unit}, "
-            f"e.g. {target_text.strip()}:{mode.name}={mode.example}"
+            f"fault {echo}: mode {mode.name} needs a severity in {mode.unit}, "
+            f"e.g. {display_name(profile, target)}:{mode.name}={mode.example}"
         )
     try:
         severity = parse_si(value_text)
     except ValueError:
         raise InputError(
-            f"fault {spec!r}: severity {value_text.strip()!r} is not a number; "
+            f"fault {echo}: severity {shown(value_text.strip())} is not a number; "
             f"e.g. {mode.example} ({mode.unit})"
         ) from None
     problem = mode.severity_problem(severity)
     if problem:
-        raise InputError(f"fault {spec!r}: {problem}")
+        raise InputError(f"fault {echo}: {problem}")
     return Fault(target, mode.name, severity)
+
+
+def _no_such_mode(kind: str, target: str, name: str, profile: Profile) -> str:
+    """Why a target has no mode of that name on this board, and what it has."""
+    who = f"the {kind}" if kind in BOARD_TARGETS else f"{kind} {display_name(profile, target)}"
+    mode = find_mode(kind, name)
+    why = mode.unavailable(profile) if mode is not None else None
+    here = ", ".join(m.name for m in modes_for(profile, kind))
+    has = f"its modes here: {here}" if here else "it has no fault modes on this board"
+    if why:
+        return f"{who} cannot be {name!r} on this board ({why}); {has}"
+    return f"{who} has no fault mode {shown(name)}; {has}"
 
 
 def _resolve_target(text: str, profile: Profile) -> str:
@@ -132,9 +142,9 @@ def _resolve_target(text: str, profile: Profile) -> str:
     for ref in refs:
         if ref.lower() == text.lower():
             return ref
-    shown = ", ".join(display_name(profile, r) for r in refs)
+    shown_refs = ", ".join(display_name(profile, r) for r in refs)
     raise InputError(
-        f"fault target {text!r} is not on this board; parts: {shown}; "
+        f"fault target {shown(text)} is not on this board; parts: {shown_refs}; "
         f"board targets: {', '.join(BOARD_TARGETS)}"
     )
 
@@ -190,8 +200,28 @@ def catalog(profile: Profile, circuit: Circuit) -> tuple[Hypothesis, ...]:
     ]
     for target, kind in targets:
         for m in modes_for(profile, kind):
-            hyps.append(Hypothesis(f"{target}:{m.name}", target, m.name, m.grid(profile), kind))
+            hyps.append(Hypothesis(f"{target}:{m.name}", target, m.name, _grid(m, profile), kind))
     return tuple(hyps)
+
+
+def _grid(mode: FaultMode, profile: Profile) -> tuple[float, ...]:
+    """The mode's severity grid, kept inside the severities a spec may name (an extreme board
+    can scale a grid point past them), without repeats."""
+    limit = mode.severity_range
+    if limit is None:
+        return mode.grid(profile)
+    kept: list[float] = []
+    for value in mode.grid(profile):
+        inside = min(max(value, limit.low), limit.high)
+        if not limit.contains(inside):  # an open end: step 0.1 % inside it, so the value
+            step = 1e-3  # survives being written to six figures and read back
+            if inside <= limit.low:
+                inside = limit.low + max(abs(limit.low), 1e-12) * step
+            else:
+                inside = limit.high - max(abs(limit.high), 1e-12) * step
+        if inside not in kept:
+            kept.append(inside)
+    return tuple(kept)
 
 
 def describe(fault: Fault | None, profile: Profile) -> str:

@@ -34,6 +34,7 @@ import numpy as np
 from fieldtool.core.circuit.profile import Profile
 from fieldtool.core.circuit.spec import display_name
 from fieldtool.core.diagnosis.faults import BOARD_TARGETS, Hypothesis
+from fieldtool.core.words import count
 
 PUBLISHED = "RAC FMD-97 mode shares (capacitors via MIL-HDBK-338B; diodes from memory)"
 HEALTHY_PRIOR = 0.10
@@ -151,7 +152,8 @@ def fleet_priors(
     source = list(base.source)
     for i in np.flatnonzero(counts):
         source[i] = (
-            f"fleet: {int(counts[i])} confirmed of {int(total)} repairs on this board type, "
+            f"fleet: {int(counts[i])} confirmed of {count(int(total), 'repair')} on this board "
+            "type, "
             f"blended with published ({PUBLISHED})"
         )
     return Priors(base.keys, p / p.sum(), tuple(source))

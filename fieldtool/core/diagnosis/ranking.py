@@ -22,6 +22,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from fieldtool.core.circuit.reading_range import reading_problem
 from fieldtool.core.circuit.spec import display_name
 from fieldtool.core.diagnosis.dictionary import RIPPLE_SHARE, FaultDictionary
 from fieldtool.core.diagnosis.faults import Fault, describe
@@ -128,6 +129,7 @@ def _columns(d: FaultDictionary, readings: Sequence[Measurement]):
     until the dictionary predicts them.
     """
     cols, ys, mus, sds, names, ignored = [], [], [], [], [], []
+    wrong: list[tuple[str, str]] = []  # (node, note) of readings no node could show
     seen = set()
     for r in readings:
         if r.at not in d.nodes:
@@ -140,7 +142,19 @@ def _columns(d: FaultDictionary, readings: Sequence[Measurement]):
             ignored.append(f"{r.at}: {r.quantity.words} readings are not used by the diagnosis")
             continue
         if r.value is None:
-            ignored.append(f"{r.at}: OL (over range) carries no value; set a higher range")
+            if r.quantity != DC:
+                ignored.append(f"{r.at}: ripple OL (over range) carries no value")
+            elif d.profile.meter_range_volts is None:
+                ignored.append(
+                    f"{r.at}: OL (over range) tells nothing without the meter's range: add "
+                    "[meter] range_volts to the profile, or read it on a higher range"
+                )
+            else:
+                cols.append(j)  # read, as beyond the range: see _overload_loglik
+            continue
+        problem = reading_problem(d.profile, r)
+        if problem:
+            wrong.append((r.at, f"{problem}; left out"))
             continue
         ys.append(r.value)
         if r.quantity == DC:
@@ -153,10 +167,38 @@ def _columns(d: FaultDictionary, readings: Sequence[Measurement]):
             rip = d.ripple[:, j]
             mus.append(rip)
             sds.append(RIPPLE_SHARE * rip + RIPPLE_FLOOR_V + 0.02 * abs(r.value))
+    ignored += [note for _, note in wrong]
     if not ys:
         R = len(d.mean)
-        return cols, np.zeros(0), np.zeros((R, 0)), np.ones((R, 0)), names, ignored
-    return cols, np.array(ys), np.stack(mus, 1), np.stack(sds, 1), names, ignored
+        return cols, np.zeros(0), np.zeros((R, 0)), np.ones((R, 0)), names, ignored, wrong
+    return cols, np.array(ys), np.stack(mus, 1), np.stack(sds, 1), names, ignored, wrong
+
+
+def _overload_loglik(
+    d: FaultDictionary, readings: Sequence[Measurement]
+) -> tuple[np.ndarray, list[str]]:
+    """Per row: log P(|V| > range) summed over the OL readings, and the OL nodes no row can
+    explain. An over-range reading is a censored one: it says the node is beyond the meter's
+    range, which rules out every hypothesis that keeps the node inside it."""
+    total = np.zeros(len(d.mean))
+    unexplained: list[str] = []
+    limit = d.profile.meter_range_volts
+    if limit is None:
+        return total, unexplained
+    for r in readings:
+        if r.quantity != DC or r.value is not None or r.at not in d.nodes:
+            continue
+        j = d.node_index(r.at)
+        mu = d.mean[:, j]
+        sd = np.sqrt(d.sigma[:, j] ** 2 + d.meter_sigma(limit) ** 2) * math.sqrt(2.0)
+        p = 0.5 * (_erfc((limit - mu) / sd) + _erfc((limit + mu) / sd))
+        if p.max() < NO_FIT_P:
+            unexplained.append(r.at)
+        total += np.log(np.maximum(p, 1e-300))
+    return total, unexplained
+
+
+_erfc = np.vectorize(math.erfc, otypes=[float])
 
 
 def _row_loglik(y: np.ndarray, mu: np.ndarray, sd: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -197,8 +239,10 @@ def diagnose(
     """Rank every hypothesis from the measurements taken; suggest the next node to probe."""
     profile = d.profile
     priors = priors or published_priors(profile, d.hypotheses)
-    cols, y, mu, sd, names, ignored = _columns(d, readings)
+    cols, y, mu, sd, names, ignored, wrong = _columns(d, readings)
     loglik, z = _row_loglik(y, mu, sd)
+    over, unexplained = _overload_loglik(d, readings)
+    loglik = loglik + over
     _, counts = _hyp_slices(d)
     log_prior_row = np.log(priors.probability[d.row_hypothesis]) - np.log(counts[d.row_hypothesis])
     log_row = log_prior_row + loglik
@@ -220,6 +264,17 @@ def diagnose(
             next_probe, gain = node, gains[node]
     ambiguity = _ambiguity(d, post, order, best_row, row_w, mu, sd, set(cols))
     fit = _fit(d, loglik, z, names, suspects)
+    if wrong:
+        fit = Fit(0.0, True, wrong[0][0], f"wrong range, unit or node? {wrong[0][1]}")
+    elif unexplained and not fit.no_fit:
+        fit = Fit(
+            0.0,
+            True,
+            unexplained[0],
+            f"{unexplained[0]} reads OL but no hypothesis puts it beyond the meter's "
+            f"{d.profile.meter_range_volts:g} V range: check the range the meter was on, the "
+            "probe, and [meter] range_volts in the profile",
+        )
     return Diagnosis(suspects, next_probe, gain, ambiguity, fit, gains, tuple(ignored))
 
 

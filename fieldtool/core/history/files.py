@@ -8,6 +8,7 @@ from __future__ import annotations
 import errno
 import fcntl
 import os
+import stat
 import uuid
 from collections.abc import Iterator, Sequence
 from contextlib import contextmanager
@@ -46,6 +47,20 @@ def _stat_or_none(path: Path) -> os.stat_result | None:
         return os.stat(path)
     except FileNotFoundError:
         return None
+
+
+def remove_if_empty(path: Path, fd: int) -> None:
+    """Remove the regular file ``path`` (open as ``fd``, locked by the caller) if it is empty.
+
+    Used when the first write to a new file failed, so a full disk leaves no empty history
+    behind; a process waiting for the lock sees the file gone and creates it anew.
+    """
+    held = os.fstat(fd)
+    if held.st_size == 0 and stat.S_ISREG(held.st_mode):
+        try:
+            os.unlink(path)
+        except OSError:
+            pass  # then it stays empty, and readers skip empty files
 
 
 def read_locked(fd: int) -> bytes:

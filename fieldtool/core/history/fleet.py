@@ -109,19 +109,23 @@ class FleetView:
 
 
 def profile_folder(logs_dir: Path | str, profile_name: str) -> Path:
-    """The folder holding one profile's board histories; a clear error if there is none."""
+    """The folder holding one profile's board histories (it may not exist yet); a clear error
+    when the logs folder itself is missing."""
     root = Path(logs_dir)
-    check_name(profile_name, "profile name")
+    profile_name = check_name(profile_name, "profile name", existing=True)
     if not root.exists():
         raise NotFoundError(f"logs folder {root} does not exist; pass --logs DIR")
     if not root.is_dir():
         raise HistoryError(f"logs folder {root} is not a folder; pass --logs DIR")
-    folder = root / profile_name
-    if not folder.is_dir():
-        known = sorted(p.name for p in root.iterdir() if p.is_dir() and p.name[0] != ".")
-        hint = f"profiles with histories: {', '.join(known)}" if known else "it holds none"
-        raise NotFoundError(f"no histories for profile {profile_name!r} in {root}; {hint}")
-    return folder
+    return root / profile_name
+
+
+def profiles_with_histories(logs_dir: Path | str) -> list[str]:
+    """The profile folders of a logs folder, by name."""
+    root = Path(logs_dir)
+    if not root.is_dir():
+        return []
+    return sorted(p.name for p in root.iterdir() if p.is_dir() and not p.name.startswith("."))
 
 
 def _instant(stamp: str) -> datetime:
@@ -134,8 +138,10 @@ def _days(earlier: str, later: str) -> float:
 
 
 def fleet_view(logs_dir: Path | str, profile_name: str, *, use_cache: bool = True) -> FleetView:
-    """The fleet view of one profile (see module docstring)."""
-    boards = summaries(profile_folder(logs_dir, profile_name), use_cache=use_cache)
+    """The fleet view of one profile (see module docstring); a board type with no histories yet
+    has an empty fleet."""
+    folder = profile_folder(logs_dir, profile_name)
+    boards = summaries(folder, use_cache=use_cache) if folder.is_dir() else []
     return build_view(profile_name, boards)
 
 

@@ -133,7 +133,7 @@ def _board_files(folder: Path) -> Iterator[os.DirEntry[str]]:
     with os.scandir(folder) as entries:
         for entry in entries:
             if entry.name.endswith(".jsonl") and not entry.name.startswith("."):
-                if entry.is_file():
+                if entry.is_file() and entry.stat().st_size > 0:  # empty: no board yet
                     yield entry
 
 

@@ -97,8 +97,8 @@ def _merge_file(job: tuple[str, str, str, str]) -> _Outcome:
     profile, serial, src_path, target_path = job
     path, target = Path(src_path), Path(target_path)
     try:
-        check_name(profile, "profile name")
-        check_name(serial)
+        check_name(profile, "profile name", existing=True)
+        check_name(serial, existing=True)
         data = path.read_bytes()
     except BadNameError as exc:
         return _Outcome(skipped=f"{path}: {exc.message}")

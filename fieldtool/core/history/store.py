@@ -25,6 +25,7 @@ from collections.abc import Mapping, Sequence
 from datetime import UTC, datetime, timedelta
 from pathlib import Path
 
+from fieldtool.core.errors import shown
 from fieldtool.core.history.events import (
     EVENT_TYPES,
     BadNameError,
@@ -36,8 +37,9 @@ from fieldtool.core.history.events import (
     event_fields,
     schema_for,
 )
-from fieldtool.core.history.files import append_lines, fsync_dir, locked_file
+from fieldtool.core.history.files import append_lines, fsync_dir, locked_file, remove_if_empty
 from fieldtool.core.history.records import BoardHistory, Damaged, Record, parse_lines
+from fieldtool.core.names import FILE_NAME_ALLOWED, FILE_NAME_MAX_BYTES, file_name_problem
 from fieldtool.core.times import format_time, now_utc, time_key
 
 ENV_VAR = "FIELDTOOL_LOGS"
@@ -46,24 +48,41 @@ ENV_VAR = "FIELDTOOL_LOGS"
 # --- names and places ---------------------------------------------------------------------
 
 
-def check_name(name: object, what: str = "board serial") -> str:
-    """Return ``name`` if it is safe as one file name, else raise BadNameError."""
+def check_name(name: object, what: str = "board serial", *, existing: bool = False) -> str:
+    """``name`` with surrounding spaces removed, if it can be one file name; else BadNameError.
+
+    A serial or profile name becomes a file or folder name, so the rule is
+    ``fieldtool.core.names.file_name_problem`` (the message lists what is allowed). With
+    ``existing``, a name only has to be safe to look up (no path separator, no '..', no leading
+    dot, no control character), so a history an older version wrote under a name that is
+    refused today can still be read and merged.
+    """
     if not isinstance(name, str) or not name.strip():
-        raise BadNameError(f"{what} is empty")
-    problem = None
-    if "/" in name or "\\" in name or (os.altsep and os.altsep in name):
-        problem = "contains a path separator"
-    elif ".." in name:
-        problem = "contains '..'"
-    elif name.startswith("."):
-        problem = "starts with a dot"
-    elif any(unicodedata.category(c) in ("Cc", "Cf", "Zl", "Zp") for c in name):
-        problem = "contains a control character"
-    elif len(name.encode("utf-8")) > 200:
-        problem = "is longer than 200 bytes"
+        raise BadNameError(f"{what} is empty; type the {what}")
+    clean = name.strip()
+    if existing:
+        problem = _lookup_problem(clean)
+    else:
+        problem = file_name_problem(clean)
     if problem:
-        raise BadNameError(f"{what} {name!r} {problem}; use letters, digits, '-' or '_'")
-    return name
+        raise BadNameError(
+            f"{what} {shown(name)} {problem}; it becomes a file name, so use {FILE_NAME_ALLOWED}"
+        )
+    return clean
+
+
+def _lookup_problem(name: str) -> str | None:
+    if "/" in name or "\\" in name or (os.altsep and os.altsep in name):
+        return "contains a path separator"
+    if ".." in name:
+        return "contains '..'"
+    if name.startswith("."):
+        return "starts with a dot"
+    if any(unicodedata.category(c) in ("Cc", "Cf", "Zl", "Zp") for c in name):
+        return "contains a control character"
+    if len(name.encode("utf-8")) > FILE_NAME_MAX_BYTES:
+        return f"is longer than {FILE_NAME_MAX_BYTES} bytes"
+    return None
 
 
 def resolve_logs_dir(option: str | os.PathLike[str] | None, env: Mapping[str, str]) -> Path:
@@ -76,7 +95,7 @@ def resolve_logs_dir(option: str | os.PathLike[str] | None, env: Mapping[str, st
 
 
 def board_path(logs_dir: Path | str, profile: str, serial: str) -> Path:
-    """Where one board's history lives for one profile."""
+    """Where one board's history lives for one profile (names checked as for a new file)."""
     return Path(logs_dir) / check_name(profile, "profile name") / f"{check_name(serial)}.jsonl"
 
 
@@ -125,7 +144,12 @@ def _store(path: Path, records: list[Record]) -> None:
     try:
         with locked_file(path) as fd:
             new_file = os.fstat(fd).st_size == 0
-            append_lines(fd, lines)
+            try:
+                append_lines(fd, lines)
+            except OSError:
+                if new_file:
+                    remove_if_empty(path, fd)  # no empty board file left behind a failure
+                raise
             if new_file:
                 fsync_dir(path.parent)
     except OSError as exc:
@@ -153,6 +177,7 @@ def append(
         session: the id of the session the event belongs to (``SessionOpened.session_id``);
             pass it on every record so sessions from two terminals never mix.
     """
+    profile, serial = check_name(profile, "profile name"), check_name(serial)
     path = board_path(logs_dir, profile, serial)
     stamp = format_time(time) if time else now_utc()
     record = _make_record(profile, serial, event, stamp, session, record_id or uuid.uuid4().hex)
@@ -176,6 +201,7 @@ def append_many(
     """
     if not events:
         return ()
+    profile, serial = check_name(profile, "profile name"), check_name(serial)
     path = board_path(logs_dir, profile, serial)
     if session is None:
         session = next((e.session_id for e in events if isinstance(e, SessionOpened)), None)
@@ -200,7 +226,7 @@ def append_many(
 
 def board_files(logs_dir: Path | str, serial: str) -> list[Path]:
     """Every history file for one serial, across profile folders."""
-    name = f"{check_name(serial)}.jsonl"
+    name = f"{check_name(serial, existing=True)}.jsonl"
     root = Path(logs_dir)
     if not root.is_dir():
         return []
@@ -209,8 +235,8 @@ def board_files(logs_dir: Path | str, serial: str) -> list[Path]:
         for entry in entries:
             if entry.is_dir() and not entry.name.startswith("."):
                 candidate = Path(entry.path) / name
-                if candidate.is_file():
-                    found.append(candidate)
+                if candidate.is_file() and candidate.stat().st_size > 0:
+                    found.append(candidate)  # an empty file (an old failed write) is no history
     return sorted(found)
 
 
@@ -225,6 +251,7 @@ def read_file(path: Path) -> tuple[list[tuple[Record, str]], list[Damaged]]:
 
 def read_board(logs_dir: Path | str, serial: str) -> BoardHistory:
     """One board's whole history, found across profile folders, oldest first."""
+    serial = check_name(serial, existing=True)
     files = board_files(logs_dir, serial)
     if not files:
         raise NotFoundError(f"no history for board {serial!r} in {logs_dir}")

@@ -9,15 +9,23 @@ used with the meter's accuracy alone as the band, and the report says so.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
 
 from fieldtool.core.circuit.profile import Profile
+from fieldtool.core.circuit.reading_range import node_volts_range
 from fieldtool.core.diagnosis.dictionary_cache import load_or_build
+from fieldtool.core.hazard import SIGNAL_WORD, signal_word
 from fieldtool.core.history import BoardHistory, HistoryError, Reading, Record, now_utc
 from fieldtool.core.history.sessions import ConfirmedFailure, Session, confirmed_in
 from fieldtool.core.measurement import DC, Measurement
+from fieldtool.core.plausible import Range
+
+# A reading no node of the board could show (an older version let it into the history): shown,
+# never plotted or compared with a band.
+WRONG_RANGE = "wrong range or unit (not plotted)"
 
 CAUTIONS = (
     "A voltage multiplier stores charge and can hold a dangerous voltage long after "
@@ -49,6 +57,7 @@ class Expectations:
 
     nodes: tuple[Expected, ...]
     source: str
+    plausible: Range | None = None  # what any node of the board could show
 
     def get(self, node: str) -> Expected | None:
         """The expectation for a node, if the profile has that node."""
@@ -63,7 +72,7 @@ class Row:
     label: str
     volts: float | None  # None: over range
     expected: Expected | None
-    status: str  # "in band", "low", "high", "over range", "no expectation"
+    status: str  # "in band", "low", "high", "over range", "no expectation", WRONG_RANGE
     time: str
 
 
@@ -96,6 +105,7 @@ class Report:
     sessions: tuple[SessionPart, ...]
     damaged: int
     cautions: tuple[str, ...] = CAUTIONS
+    signal_word: str = SIGNAL_WORD  # heads the cautions: WARNING, or CAUTION on a low board
 
 
 def expectations_for(profile: Profile) -> Expectations:
@@ -110,14 +120,18 @@ def expectations_for(profile: Profile) -> Expectations:
         tuple(rows),
         "healthy band from the fault dictionary: part tolerances, model and meter accuracy "
         "(about 95 % of healthy boards read inside it)",
+        node_volts_range(profile),
     )
 
 
 def _row(measurement: Measurement, time: str, expectations: Expectations | None) -> Row:
     node, value = str(measurement.at), measurement.value
     exp = expectations.get(node) if expectations else None
+    plausible = expectations.plausible if expectations else None
     if value is None:
         status = "over range"
+    elif plausible is not None and not plausible.contains(value):
+        status = WRONG_RANGE
     elif exp is None:
         status = "no expectation"
     elif value < exp.low:
@@ -193,14 +207,31 @@ def build_report(
     expectations: Expectations | None,
     expectations_note: str = "",
     digest: str = "",
+    safe_volts: float | None = None,
 ) -> Report:
-    """The report for the chosen sessions of one board."""
+    """The report for the chosen sessions of one board.
+
+    ``safe_volts`` (the profile's safe level) lets the cautions say CAUTION instead of
+    WARNING for a board whose every node, expected and read, is below it.
+    """
+    parts = tuple(_part(s, expectations, digest) for s in sessions)
+    word = SIGNAL_WORD
+    if safe_volts is not None and expectations is not None:
+        volts = [abs(v) for e in expectations.nodes for v in (e.volts, e.low, e.high)]
+        rows = [
+            r for p in parts for r in (*p.readings, *p.verifications) if r.status != WRONG_RANGE
+        ]
+        if any(r.volts is None for r in rows):
+            volts.append(math.inf)  # over the meter's range: at least as high as it shows
+        volts += [abs(r.volts) for r in rows if r.volts is not None]
+        word = signal_word(max(volts, default=None), safe_volts)
     return Report(
         board=history.board,
         profile=profile_name,
         generated=now_utc(),
         expectations=expectations,
         expectations_note=expectations_note or (expectations.source if expectations else ""),
-        sessions=tuple(_part(s, expectations, digest) for s in sessions),
+        sessions=parts,
         damaged=len(history.damaged),
+        signal_word=word,
     )

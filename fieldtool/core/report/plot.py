@@ -9,9 +9,21 @@ from __future__ import annotations
 import io
 from collections.abc import Sequence
 
-from fieldtool.core.report.content import Expectations, Row
+from fieldtool.core.report.content import WRONG_RANGE, Expectations, Row
 
 MISSING = "plot left out: matplotlib is not installed (pip install 'fieldtool[plot]')"
+
+# The report's own colours, not the plotting library's defaults: a sea-green band and line for
+# what is expected, brick for what was measured, indigo for after the repair. The marker shape
+# carries the same meaning (filled circles measured, open squares after repair), so the plot
+# reads in grey print and for colour-blind readers; the two colours differ in lightness too.
+PALETTE = {
+    "band": "#cfe6dc",
+    "expected": "#2e6b5e",
+    "measured": "#b8482f",
+    "after": "#34478f",
+    "grid": "#c9c9c9",
+}
 
 
 def plotting_available() -> bool:
@@ -44,21 +56,38 @@ def ladder_plot(
         xs,
         [e.low for e in expectations.nodes],
         [e.high for e in expectations.nodes],
-        color="tab:green",
-        alpha=0.25,
+        color=PALETTE["band"],
         label="healthy band",
     )
-    ax.plot(xs, [e.volts for e in expectations.nodes], "-", color="tab:green", label="expected")
+    ax.plot(
+        xs,
+        [e.volts for e in expectations.nodes],
+        "-",
+        color=PALETTE["expected"],
+        linewidth=1.5,
+        label="expected",
+    )
     top = max((e.high for e in expectations.nodes), default=1.0)
-    for rows, marker, colour, name in (
-        (readings, "o", "tab:red", "measured"),
-        (verifications, "s", "tab:blue", "after repair"),
+    for rows, marker, colour, fill, name in (
+        (readings, "o", PALETTE["measured"], PALETTE["measured"], "measured"),
+        (verifications, "s", PALETTE["after"], "none", "after repair"),
     ):
         pts = [
-            (nodes.index(r.node), r.volts) for r in rows if r.node in nodes and r.volts is not None
+            (nodes.index(r.node), r.volts)
+            for r in rows
+            if r.node in nodes and r.volts is not None and r.status != WRONG_RANGE
         ]
         if pts:
-            ax.plot(*zip(*pts, strict=True), marker, color=colour, label=name, linestyle="none")
+            ax.plot(
+                *zip(*pts, strict=True),
+                marker,
+                color=colour,
+                markerfacecolor=fill,
+                markersize=7,
+                markeredgewidth=1.5,
+                label=name,
+                linestyle="none",
+            )
         for r in rows:
             if r.volts is None and r.node in nodes:
                 ax.annotate("OL", (nodes.index(r.node), top), color=colour, ha="center")
@@ -67,7 +96,7 @@ def ladder_plot(
     ax.set_xlabel("node, along the ladder")
     ax.set_ylabel("DC volts, as the meter reads")
     ax.set_title(title, fontsize=10)
-    ax.grid(True, alpha=0.3)
+    ax.grid(True, color=PALETTE["grid"], linewidth=0.6)
     ax.legend(fontsize=8, loc="best")
     fig.tight_layout()
     buffer = io.BytesIO()

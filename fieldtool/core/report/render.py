@@ -97,7 +97,7 @@ def to_markdown(report: Report, plots: Mapping[str, str | None], plot_note: str)
         f"Profile {md(report.profile)} · generated {_when(report.generated)} · fieldtool "
         f"{md(__version__)}",
         "",
-        "> **Safety**",
+        f"> **{report.signal_word}**",
         ">",
         *[f"> - {md(c)}" for c in report.cautions],
         "",
@@ -178,7 +178,7 @@ def to_html(report: Report, plots: Mapping[str, bytes | None], plot_note: str) -
         f"<h1>Repair report: board {esc(report.board)}</h1>",
         f"<p>Profile {esc(report.profile)} · generated {esc(_when(report.generated))} · "
         f"fieldtool {esc(__version__)}</p>",
-        '<div class="caution"><strong>Safety</strong><ul>',
+        f'<div class="caution"><strong>{esc(report.signal_word)}</strong><ul>',
         *[f"<li>{esc(c)}</li>" for c in report.cautions],
         "</ul></div>",
         f'<p class="note">Expected readings: {esc(report.expectations_note)}</p>',

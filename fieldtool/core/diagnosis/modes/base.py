@@ -18,6 +18,8 @@ import numpy as np
 from fieldtool.core.circuit.netlist import Circuit, Params
 from fieldtool.core.circuit.spec import Profile
 from fieldtool.core.circuit.topologies import topology_of
+from fieldtool.core.plausible import Range
+from fieldtool.core.units import format_si
 
 PART_KINDS = ("diode", "capacitor")
 BOARD_TARGETS = ("drive", "supply", "load")
@@ -32,6 +34,43 @@ SHORT_MAX_OHMS = 100.0  # above this a part is leaky, not shorted
 
 _EXAMPLES = {"ohms": "47k", "fraction": "0.3", "factor": "3"}
 
+# The plausible severity of each kind (see ``fieldtool.core.plausible``). A series resistance
+# above 1 TΩ (what an open diode is modelled as) is an open part. With less than 0.1 % of a
+# capacitance, the drive or the supply left, it is gone. A load a thousand times its rating is
+# a short across the output. A short is at most SHORT_MAX_OHMS and a leak above it; below
+# 0.1 mΩ a short is less than a part's own leads (common practice, no source).
+SEVERITY_RANGES = {
+    "ohms": Range(1e-3, 1e12, "Ω", "above 1 TΩ in series a part is open: write the mode open"),
+    "fraction": Range(
+        1e-3,
+        1.0,
+        "",
+        "the fraction left; below 0.001 it is gone: write open, stuck-low or missing",
+        high_open=True,
+    ),
+    "factor": Range(
+        1.0,
+        1e3,
+        "×",
+        "a thousand times the rated load is a short across the output",
+        low_open=True,
+    ),
+}
+SHORT_RANGE = Range(
+    1e-4,
+    SHORT_MAX_OHMS,
+    "Ω",
+    f"above {SHORT_MAX_OHMS:g} Ω a part leaks rather than shorts: use leaky; below 0.1 mΩ is "
+    "less than the part's own leads",
+)
+LEAKY_OHMS = Range(
+    SHORT_MAX_OHMS,
+    1e18,
+    "Ω",
+    f"at {SHORT_MAX_OHMS:g} Ω or less a part is shorted: use short; above 1e18 Ω it does not leak",
+    low_open=True,
+)
+
 
 class FaultMode(ABC):
     """One catalogued way for a part or the board to fail (see the module docstring)."""
@@ -42,9 +81,17 @@ class FaultMode(ABC):
     words: ClassVar[str]  # plain words: "lost capacitance"
     default_severity: ClassVar[float | None] = None  # used when a spec gives none (else needed)
 
+    def unavailable(self, profile: Profile) -> str | None:
+        """Why the mode cannot happen on this board, or None when it can (default: always can).
+
+        A mode whose fault would leave every node as healthy (a low supply on a board whose
+        supply is 0 V) is unavailable too, so it is never ranked as a hypothesis.
+        """
+        return None
+
     def available(self, profile: Profile) -> bool:
-        """True when the mode can happen on this board (default: always)."""
-        return True
+        """True when the mode can happen on this board."""
+        return self.unavailable(profile) is None
 
     def grid(self, profile: Profile) -> tuple[float, ...]:
         """Severities the fault dictionary tries on this board, mild to gross."""
@@ -66,15 +113,23 @@ class FaultMode(ABC):
         """A severity to show in messages."""
         return _EXAMPLES.get(self.unit or "", "")
 
+    @property
+    def severity_range(self) -> Range | None:
+        """The severities this mode accepts (None: it takes none); see ``SEVERITY_RANGES``."""
+        return SEVERITY_RANGES.get(self.unit or "")
+
     def severity_problem(self, value: float) -> str | None:
         """Why a severity cannot be used for this mode, or None when it can."""
-        if self.unit == "ohms" and value <= 0:
-            return f"{self.name} needs a resistance above 0 ohms"
-        if self.unit == "fraction" and not 0 < value < 1:
-            return f"{self.name} needs the fraction left, between 0 and 1 (e.g. 0.3)"
-        if self.unit == "factor" and value <= 1:
-            return f"{self.name} needs a factor above 1 (e.g. 3)"
-        return None
+        limit = self.severity_range
+        if limit is None:
+            return None
+        problem = limit.problem(value)
+        return f"{self.name} severity {problem}" if problem else None
+
+    def format_severity(self, value: float) -> str:
+        """A severity as a fault spec writes it, to six figures: ``47k`` ohms, ``0.3`` of it
+        left, a factor ``3``."""
+        return format_si(value, digits=6) if self.unit == "ohms" else f"{value:g}"
 
     def severity_words(self, severity: float, si: str) -> str:
         """The severity in words: ``(47kΩ)``, ``(30% left)``, ``(×3)``; ``si`` is it in SI."""
@@ -101,19 +156,11 @@ class ShortMode(FaultMode):
     unit = "ohms"
     words = "shorted"
     default_severity = SHORT_OHMS
+    severity_range = SHORT_RANGE
 
     def grid(self, profile: Profile) -> tuple[float, ...]:
         """10 Ω down to 10 mΩ, five points (mild to gross; ``SHORT_GRID_OHMS``)."""
         return SHORT_GRID_OHMS
-
-    def severity_problem(self, value: float) -> str | None:
-        """A short is above 0 and at most 100 Ω; above that it is a leak."""
-        if not 0 < value <= SHORT_MAX_OHMS:
-            return (
-                f"{self.name} needs a resistance above 0 and at most {SHORT_MAX_OHMS:g} ohms "
-                f"(e.g. 50m); a higher one is a leak: use leaky"
-            )
-        return None
 
     @staticmethod
     def siemens(severity: float | None) -> float:

@@ -8,6 +8,7 @@ from __future__ import annotations
 from fieldtool.core.circuit.netlist import Circuit, Params
 from fieldtool.core.circuit.spec import Profile
 from fieldtool.core.diagnosis.modes.base import (
+    LEAKY_OHMS,
     FaultMode,
     capacitor_index,
     load_ohms_equivalent,
@@ -21,6 +22,8 @@ class CapacitorLeaky(FaultMode):
     applies_to = "capacitor"
     unit = "ohms"
     words = "leaky"
+
+    severity_range = LEAKY_OHMS
 
     def grid(self, profile: Profile) -> tuple[float, ...]:
         """10×, 1× and 0.1× the load resistance."""

@@ -9,6 +9,7 @@ from __future__ import annotations
 from fieldtool.core.circuit.netlist import Circuit, Params
 from fieldtool.core.circuit.spec import Profile
 from fieldtool.core.diagnosis.modes.base import (
+    LEAKY_OHMS,
     FaultMode,
     diode_index,
     load_ohms_equivalent,
@@ -22,6 +23,8 @@ class DiodeLeaky(FaultMode):
     applies_to = "diode"
     unit = "ohms"
     words = "leaky (reverse leakage)"
+
+    severity_range = LEAKY_OHMS
 
     def grid(self, profile: Profile) -> tuple[float, ...]:
         """10×, 1× and 0.1× the load resistance."""

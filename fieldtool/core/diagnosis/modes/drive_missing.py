@@ -16,9 +16,11 @@ class DriveMissing(FaultMode):
     unit = None
     words = "AC input missing"
 
-    def available(self, profile: Profile) -> bool:
+    def unavailable(self, profile: Profile) -> str | None:
         """AC-driven boards only."""
-        return topology_of(profile).ac_drive
+        if topology_of(profile).ac_drive:
+            return None
+        return "the drive here is a square clock: try stuck-low or stuck-high"
 
     def apply(
         self,

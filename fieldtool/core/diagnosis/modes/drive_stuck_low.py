@@ -19,9 +19,11 @@ class DriveStuckLow(FaultMode):
     unit = None
     words = "drive stuck low"
 
-    def available(self, profile: Profile) -> bool:
+    def unavailable(self, profile: Profile) -> str | None:
         """Square-driven boards only."""
-        return not topology_of(profile).ac_drive
+        if not topology_of(profile).ac_drive:
+            return None
+        return "the drive here is an AC input: try missing or low"
 
     def apply(
         self,

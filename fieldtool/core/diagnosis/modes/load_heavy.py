@@ -15,6 +15,12 @@ class LoadHeavy(FaultMode):
     unit = "factor"
     words = "load heavier than rated"
 
+    def unavailable(self, profile: Profile) -> str | None:
+        """Boards with a load (a constant-current load of 0 A draws nothing to multiply)."""
+        if profile.load_ohms is None and not profile.load_amps:
+            return "this board's load is 0 A, so a heavier load would change nothing"
+        return None
+
     def grid(self, profile: Profile) -> tuple[float, ...]:
         """1.5× to 20× the rated load current."""
         return (1.5, 2.0, 3.0, 5.0, 10.0, 20.0)

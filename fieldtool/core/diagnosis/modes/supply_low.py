@@ -16,9 +16,13 @@ class SupplyLow(FaultMode):
     unit = "fraction"
     words = "supply low"
 
-    def available(self, profile: Profile) -> bool:
-        """Boards with a DC input only."""
-        return topology_of(profile).dc_input
+    def unavailable(self, profile: Profile) -> str | None:
+        """Boards with a DC input above 0 V only (a fraction of 0 V is still 0 V)."""
+        if not topology_of(profile).dc_input:
+            return "this board has no DC input"
+        if profile.supply_volts == 0:
+            return "this board's DC input is 0 V, so a low supply would change nothing"
+        return None
 
     def grid(self, profile: Profile) -> tuple[float, ...]:
         """90 % down to 30 % of the supply left."""
