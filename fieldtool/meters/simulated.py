@@ -422,6 +422,8 @@ class SimulatedMeter(Meter):
             shown = self._display(self.clock())
             value = float(shown + self._rng.normal(0.0, self.noise_sigma(shown)))
             over = self._landing.facts.overload
+        if mode_of(self.quantity) in (AC_VOLTS, PEAK_TO_PEAK):
+            value = abs(value)  # an RMS or a peak-to-peak reading of noise is still positive
         in_volts = self.quantity.unit == "V"
         if over or in_volts and self.range_volts is not None and abs(value) > self.range_volts:
             return self.sample_of(None)

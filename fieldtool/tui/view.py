@@ -8,6 +8,7 @@ from dataclasses import dataclass
 from fieldtool.core.circuit.spec import display_name
 from fieldtool.core.diagnosis.faults import Fault, describe
 from fieldtool.core.diagnosis.ranking import Diagnosis
+from fieldtool.core.measurement import DC, Quantity
 from fieldtool.core.plausible import Range
 from fieldtool.core.session import BoardSession
 
@@ -141,9 +142,20 @@ def ladder_ranks(diagnosis: Diagnosis) -> dict[str, int]:
     return ranks
 
 
-def entry_hint(node: str | None) -> str:
-    """What to type into the reading entry at ``node``."""
-    return f"volts at {node}: 12.9, 890mV, 1.2kV or OL, then Enter"
+_EXAMPLES = {
+    "current": "0.35mA, 350uA or OL",
+    "diode-test": "0.61, 610mV or OL",
+    "ripple-pp": "31mV, 0.031 or OL",
+    "ac-rms": "9mV, 0.009 or OL",
+}
+
+
+def entry_hint(at: str | None, quantity: Quantity = DC) -> str:
+    """What to type into the reading entry for ``quantity`` at ``at``."""
+    if quantity == DC:
+        return f"volts at {at}: 12.9, 890mV, 1.2kV or OL, then Enter"
+    examples = _EXAMPLES.get(quantity.name, "12.9, 890mV or OL")
+    return f"{quantity.words} at {at}: {examples}, then Enter"
 
 
 def reveal_text(session: BoardSession, fault: Fault) -> str:

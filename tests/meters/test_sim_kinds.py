@@ -272,3 +272,14 @@ def test_console_clips_a_load_and_refuses_nonsense(board, readouts):
         assert served.type("load off", "meter on") == "meter on DC volts, board powered"
     finally:
         served.stop()
+
+
+def test_ripple_and_ac_volts_of_noise_are_never_negative(board, readouts):
+    # S0 sits on the supply: its ripple (tens of µV) is below the scope's noise; a peak-to-peak
+    # or RMS reading is a magnitude all the same
+    meter, clock = settled_meter(board, readouts, noise_fraction=1.0)
+    meter.place_probe("S0")
+    for kind in (RIPPLE_PP, AC_RMS):
+        meter.set_quantity(kind)
+        clock.sleep(20 * METER_TAU_S)
+        assert all(meter.read().value >= 0 for _ in range(50))
