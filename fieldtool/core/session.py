@@ -117,6 +117,7 @@ class BoardSession:
         self.resumed_from: str | None = None  # when the session picked up again was opened
         self.at_repairs: list[tuple[str, float]] = []  # top suspect (words, odds) at each repair
         self.powered = True  # False from a confirmed power-off step until powered again
+        self.before_repair: tuple[Measurement, ...] = ()  # the probing phase's, in order taken
         circuit, _ = build_circuit(profile)
         rails = ((SUPPLY,) if supply_index(circuit) is not None else ()) + (
             (DRIVE,) if rail_sources(circuit) else ()
@@ -238,6 +239,24 @@ class BoardSession:
         at_nodes = [m for m in measurements if m.quantity.taken_at == "node"]
         return diagnose(self.dictionary, at_nodes, self.priors)
 
+    def deciding(self, key: str) -> tuple[Measurement | None, float]:
+        """The probing reading that raised hypothesis ``key`` most (replayed in the order
+        taken) and its probability after them all: which measurement found the fault."""
+        taken = self.before_repair or tuple(
+            sorted(self.taken.values(), key=lambda m: m.taken or "")
+        )
+        best, best_rise, before = None, 0.0, self._odds(key, ())
+        for i, m in enumerate(taken):
+            after = self._odds(key, taken[: i + 1])
+            if after - before > best_rise:
+                best, best_rise = m, after - before
+            before = after
+        return best, before
+
+    def _odds(self, key: str, measurements: Sequence[Measurement]) -> float:
+        d = self._diagnose(measurements)
+        return float(sum(s.probability for s in d.suspects if s.key == key))
+
     def _rediagnose(self) -> Diagnosis:
         self.diagnosis = self._diagnose(self.measurements())
         return self.diagnosis
@@ -259,6 +278,8 @@ class BoardSession:
 
     def record_repair(self, *actions: hist.Action) -> None:
         """Save the diagnosis that led here and what was done; verification starts afresh."""
+        if self.phase == "probing":
+            self.before_repair = tuple(sorted(self.taken.values(), key=lambda m: m.taken or ""))
         self._save(self.snapshot())
         for action in actions:
             self._save(action)

@@ -11,6 +11,7 @@ from fieldtool.core.diagnosis.ranking import Diagnosis
 from fieldtool.core.measurement import DC, Quantity
 from fieldtool.core.plausible import Range
 from fieldtool.core.session import BoardSession
+from fieldtool.core.words import conditions_words, reading_words
 
 # Each state has a symbol and a word, so it never rests on colour alone.
 UNREAD, IN_BAND, HIGH, LOW, OVERLOAD = "unread", "in band", "high", "low", "over range"
@@ -176,4 +177,15 @@ def reveal_text(session: BoardSession, fault: Fault) -> str:
         after = f"Readings after the last repair: {read or 'none'}."
     else:
         after = f"No repair was recorded. Readings: {read or 'none'}."
-    return f"The hidden fault was {hidden}. {verdict}{ranked} {after}"
+    return f"The hidden fault was {hidden}. {verdict}{ranked}{found_by(session, fault)} {after}"
+
+
+def found_by(session: BoardSession, fault: Fault) -> str:
+    """Which reading found the hidden fault (raised its odds most), in a sentence with a
+    leading space; "" when none raised it."""
+    m, odds = session.deciding(fault.key)
+    if m is None:
+        return ""
+    value = "OL" if m.value is None else reading_words(m.value, m.unit)
+    what = m.quantity.words + conditions_words(m.conditions)
+    return f" The reading that found it: {what} at {m.at} = {value} ({odds:.0%} after all)."

@@ -153,3 +153,20 @@ def test_every_kind_is_taken_where_it_is_measured_and_saved(session, saved):
     assert taken[1].condition("test_load_ohms") == 1e5
     # nodes first in ladder order, then rails, then parts
     assert [m.at for m in session.measurements()] == ["OUT", rail, "D2"]
+
+
+def test_the_reading_that_found_the_fault_is_the_one_that_raised_it_most(session):
+    """Replaying the probing readings in the order taken: with D3 open the output reads 0 V
+    instead of about 15 V, and that reading is what moves the odds onto D3 open; S0 (the
+    supply, unchanged) before it and P1 after it move them little."""
+    session.open()
+    volts = faulted("D3:open")
+    for n in ("S0", "OUT", "P1"):
+        session.take(dc(n, volts[n], taken=f"2026-01-01T00:00:0{len(session.taken)}Z"))
+    m, odds = session.deciding("D3:open")
+    assert m is not None and m.at == "OUT"
+    assert odds == pytest.approx(
+        sum(s.probability for s in session.diagnosis.suspects if s.key == "D3:open")
+    )
+    session.record_repair(h.Action("D3", "replaced", "open"))
+    assert session.deciding("D3:open")[0] == m  # still the probing phase's readings
