@@ -39,13 +39,20 @@ from fieldtool.core.session import BoardSession
 from fieldtool.core.units import format_si
 
 Conditions = tuple[tuple[str, float], ...]
-SHORT_NAMES = {
+SHORT_NAMES = {  # for the glance line
     DC.name: "DC",
     RIPPLE_PP.name: "ripple",
     AC_RMS.name: "AC",
     DC_LOADED.name: "loaded",
     CURRENT.name: "current",
     DIODE_TEST.name: "diode",
+}
+STRIP_NAMES = {  # for the meter strip, beside where the probe is
+    RIPPLE_PP.name: "ripple p-p",
+    AC_RMS.name: "AC volts",
+    DC_LOADED.name: "under test load",
+    CURRENT.name: "current",
+    DIODE_TEST.name: "diode test",
 }
 
 
@@ -160,7 +167,9 @@ class KindDialog(ModalScreen[Choice | None]):
 
     def __init__(self, session: BoardSession, node: str | None) -> None:
         super().__init__()
-        self.choices = measurement_choices(session, node)
+        every = measurement_choices(session, node)
+        # what can be taken with the board as it is comes first
+        self.choices = sorted(every, key=lambda c: c.quantity.powered != session.powered)
         worth = worth_map(session.diagnosis)
         self.best = max(worth.values(), default=0.0)
         self.scores = [worth.get((c.at, c.quantity.name)) for c in self.choices]
@@ -184,8 +193,12 @@ class KindDialog(ModalScreen[Choice | None]):
     def on_mount(self) -> None:
         """Start on the most worth taking."""
         options = self.query_one(OptionList)
-        known = [(s or 0.0, -i) for i, s in enumerate(self.scores)]
-        options.highlighted = -max(known)[1] if known else 0
+        now = [
+            (score or 0.0, -i)
+            for i, (c, score) in enumerate(zip(self.choices, self.scores, strict=True))
+            if c.quantity.powered == self.powered
+        ]
+        options.highlighted = -max(now)[1] if now else 0
         options.focus()
 
     def on_option_list_option_selected(self, event: OptionList.OptionSelected) -> None:
@@ -199,7 +212,7 @@ class PowerOffDialog(ModalScreen[bool]):
     BINDINGS = [Binding("escape", "dismiss(False)", "Cancel")]
     STEPS = (
         "Supply disconnected (and the drive, where it has its own rail)",
-        "Every capacitor discharged through a resistor rated for the voltage",
+        "Every capacitor discharged through a rated resistor",
         "Every node verified below {safe:g} V with the meter on DC volts",
     )
 

@@ -25,7 +25,7 @@ from fieldtool.core.circuit.safety import node_hazard, safety_figures
 from fieldtool.core.circuit.spec import display_name
 from fieldtool.core.errors import FieldtoolError
 from fieldtool.core.history import Action
-from fieldtool.core.measurement import DC, Measurement
+from fieldtool.core.measurement import Measurement
 from fieldtool.core.session import BoardSession
 from fieldtool.core.times import now_utc
 from fieldtool.core.units import format_si
@@ -41,7 +41,7 @@ from fieldtool.tui.dialogs import (
     part_choices,
 )
 from fieldtool.tui.history import FleetScreen, HistoryScreen
-from fieldtool.tui.kinds import glance, suggested
+from fieldtool.tui.kinds import STRIP_NAMES, glance, suggested
 from fieldtool.tui.ladder import LadderView
 from fieldtool.tui.measuring import MEASURING_BINDINGS, MEASURING_PALETTE, MeasuringFlow
 from fieldtool.tui.meter_strip import MeterChoice, MeterLink, MeterStrip, open_meter
@@ -170,7 +170,7 @@ class ProbingScreen(MeasuringFlow, Commands, Screen):
         """The kind or the board's power changed: show it."""
         strip = self.query_one(MeterStrip)
         q = self.measuring.quantity
-        strip.kind_words = "" if q == DC else q.words
+        strip.kind_words = STRIP_NAMES.get(q.name, "")
         strip.probe_node = self.place
         self.query_one("#entry", Input).placeholder = entry_hint(self.place, q)
         self.refresh_all()

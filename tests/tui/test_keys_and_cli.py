@@ -34,7 +34,8 @@ async def test_palette_offers_the_main_actions(profile, cache_dir, tmp_path):
         titles = {c.title for c in app.get_system_commands(screen)}
         for title, _, action in ProbingScreen.PALETTE:
             assert title in titles and callable(getattr(screen, f"action_{action}"))
-        assert "Jump to the next probe" in titles and "Record a repair" in titles
+        assert "Go to the next measurement" in titles and "Record a repair" in titles
+        assert "Choose what to measure" in titles and "Power off or on" in titles
         assert "Start a session" not in titles  # the start screen's own command
         # The footer shows only what works now: no meter, so no accept and no reconnect.
         assert screen.check_action("accept", ()) is False
