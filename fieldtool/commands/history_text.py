@@ -7,6 +7,7 @@ from typing import Any
 
 from fieldtool.core.history import UNSETTLED, BoardHistory, Reading, Record, time_key
 from fieldtool.core.history.fleet import FleetView
+from fieldtool.core.history.merge import MergeReport
 from fieldtool.core.history.sessions import Session, confirmed_in
 from fieldtool.core.measurement import DC, Measurement
 from fieldtool.core.words import conditions_words, count
@@ -168,4 +169,39 @@ def fleet_text(view: FleetView) -> str:
             "",
             f"{view.damaged_lines} damaged line(s) skipped; 'fieldtool history SERIAL' shows where",
         ]
+    return "\n".join(lines)
+
+
+def merge_json(report: MergeReport) -> dict[str, Any]:
+    """What a merge (or a push, or a pull) did, as the JSON of ``logs merge --json``."""
+    return {
+        "added": report.added,
+        "already_present": report.already_present,
+        "boards": report.boards,
+        "conflicts": [vars(c) for c in report.conflicts],
+        "damaged": [vars(d) for d in report.damaged],
+        "skipped": list(report.skipped),
+    }
+
+
+def merge_text(report: MergeReport, head: str, not_done: str) -> str:
+    """What a merge (or a push, or a pull) did, in the words of ``logs merge``."""
+    lines = [
+        f"{head}: {report.added} new record(s) on {report.boards} board(s), "
+        f"{report.already_present} already present"
+    ]
+    if report.conflicts:
+        lines.append(
+            f"{len(report.conflicts)} conflict(s): same id, different content; both versions kept:"
+        )
+        lines += [f"  {safe(c.profile)}/{safe(c.board)}: {safe(c.id)}" for c in report.conflicts]
+    if report.damaged:
+        lines.append(
+            f"{len(report.damaged)} damaged line(s) in the source, {not_done} "
+            "(left there untouched):"
+        )
+        lines += [f"  {safe(d.path)}:{d.line}: {safe(d.reason)}" for d in report.damaged]
+    if report.skipped:
+        lines.append("skipped:")
+        lines += [f"  {safe(s)}" for s in report.skipped]
     return "\n".join(lines)
