@@ -9,7 +9,9 @@ import pytest
 from fieldtool.cli import main
 
 
-def _meter(fd, replies):
+def _meter(fd, replies, heard=None):
+    """A SCPI meter on the pty's master: its identity, an empty error queue, ``replies`` to
+    READ? in turn; every command goes into ``heard`` (when given)."""
     buf = b""
     while replies:
         try:
@@ -18,6 +20,8 @@ def _meter(fd, replies):
             return
         while b"\n" in buf and replies:
             line, buf = buf.split(b"\n", 1)
+            if heard is not None:
+                heard.append(line.strip().decode())
             if line.strip() == b"*IDN?":
                 os.write(fd, b"ACME,DMM-1,42,2.0\n")
             elif line.strip() == b"SYST:ERR?":
@@ -85,29 +89,11 @@ def test_ports_json(capsys):
     assert isinstance(json.loads(capsys.readouterr().out), list)
 
 
-def _recording_meter(fd, replies, heard):
-    """Like ``_meter``, keeping every command heard."""
-    buf = b""
-    while replies:
-        try:
-            buf += os.read(fd, 256)
-        except OSError:
-            return
-        while b"\n" in buf and replies:
-            line, buf = buf.split(b"\n", 1)
-            heard.append(line.strip().decode())
-            answer = {b"*IDN?": b"ACME,DMM-1,42,2.0\n", b"SYST:ERR?": b'0,"No error"\n'}
-            if line.strip() == b"READ?":
-                os.write(fd, replies.pop(0))
-            elif line.strip() in answer:
-                os.write(fd, answer[line.strip()])
-
-
 def test_read_a_current_sets_the_meter_up_and_prints_amps(pty_meter, capsys):
     master, name = pty_meter
     heard = []
     args = (master, [b"+2.804E-04\n"], heard)
-    threading.Thread(target=_recording_meter, args=args, daemon=True).start()
+    threading.Thread(target=_meter, args=args, daemon=True).start()
     assert main(["read", "--port", name, "--kind", "current"]) == 0
     assert capsys.readouterr().out == "0.0002804 A\n"
     assert "CONF:CURR:DC" in heard and heard[-1] == "READ?"

@@ -75,22 +75,8 @@ class ScriptedScpi:
                     return
 
 
-@pytest.fixture
-def pty_ends():
-    master, slave = os.openpty()
-    port = serial.Serial(os.ttyname(slave), timeout=0.1)
-    transport = SerialTransport(port, name="pty")
-    yield master, transport
-    transport.close()
-    os.close(slave)
-    try:
-        os.close(master)
-    except OSError:
-        pass
-
-
-def test_each_kind_is_set_up_once_and_read_in_its_unit(pty_ends):
-    master, transport = pty_ends
+def test_each_kind_is_set_up_once_and_read_in_its_unit(pty_pair):
+    master, transport = pty_pair
     peer = ScriptedScpi(master, dict(VALUES))
     meter = ScpiMeter(transport, MeterSettings(timeout_s=2))
     meter.connect()
@@ -113,8 +99,8 @@ def test_each_kind_is_set_up_once_and_read_in_its_unit(pty_ends):
     assert peer.heard[4:8] == ["CONF:VOLT:AC", "SYST:ERR?", "READ?", "CONF:CURR:DC"]
 
 
-def test_a_refused_setup_names_the_meter_its_error_and_the_setting(pty_ends):
-    master, transport = pty_ends
+def test_a_refused_setup_names_the_meter_its_error_and_the_setting(pty_pair):
+    master, transport = pty_pair
     functions = {k: v for k, v in VALUES.items() if k != "CONF:DIOD"}  # no diode test
     ScriptedScpi(master, functions)
     meter = ScpiMeter(transport, MeterSettings(timeout_s=2))
@@ -129,8 +115,8 @@ def test_a_refused_setup_names_the_meter_its_error_and_the_setting(pty_ends):
     assert meter.quantity == DC and meter.read().value == pytest.approx(125.7718)
 
 
-def test_the_settings_file_gives_a_meters_own_commands(pty_ends):
-    master, transport = pty_ends
+def test_the_settings_file_gives_a_meters_own_commands(pty_pair):
+    master, transport = pty_pair
     peer = ScriptedScpi(master, {"CONF:VOLT:DC": "+1.0E+00", "SENS:FUNC DIOD": "+6.1E-01"})
     settings = parse_settings(
         '[configure]\ndiode-test = "SENS:FUNC DIOD"\nac-rms = ""\ncurrent = ""\n', "dmm.toml"
@@ -147,16 +133,16 @@ def test_the_settings_file_gives_a_meters_own_commands(pty_ends):
         meter.set_quantity(RIPPLE_PP)
 
 
-def test_a_meter_without_an_error_queue(pty_ends):
-    master, transport = pty_ends
+def test_a_meter_without_an_error_queue(pty_pair):
+    master, transport = pty_pair
     ScriptedScpi(master, dict(VALUES), error_answer="ERR")
     meter = ScpiMeter(transport, MeterSettings(timeout_s=2))
     with pytest.raises(MeterGarbage, match="set check_errors = false in the meter settings"):
         meter.connect()
 
 
-def test_without_error_checks_only_the_setups_are_sent(pty_ends):
-    master, transport = pty_ends
+def test_without_error_checks_only_the_setups_are_sent(pty_pair):
+    master, transport = pty_pair
     peer = ScriptedScpi(master, dict(VALUES))
     meter = ScpiMeter(transport, MeterSettings(timeout_s=2, check_errors=False))
     meter.connect()

@@ -5,7 +5,6 @@ import threading
 import time
 
 import pytest
-import serial
 
 from fieldtool.core.measurement import DC, RIPPLE_PP, Source
 from fieldtool.meters.connect import PROTOCOL_DRIVERS
@@ -21,22 +20,8 @@ from fieldtool.meters.scpi import ScpiMeter
 from fieldtool.meters.settings import PROTOCOLS, MeterSettings
 from fieldtool.meters.simulated import SimulatedMeter
 from fieldtool.meters.stream import StreamMeter
-from fieldtool.meters.transport import SerialTransport, open_port
+from fieldtool.meters.transport import open_port
 from tests.pty_lines import pty_lines
-
-
-@pytest.fixture
-def pty_pair():
-    master, slave = os.openpty()
-    port = serial.Serial(os.ttyname(slave), timeout=0.1)
-    transport = SerialTransport(port, name="pty")
-    yield master, transport
-    transport.close()
-    os.close(slave)
-    try:
-        os.close(master)
-    except OSError:
-        pass
 
 
 def play_scpi(fd, answers, log):
