@@ -41,9 +41,9 @@ from fieldtool.core.units import format_si
 Conditions = tuple[tuple[str, float], ...]
 SHORT_NAMES = {  # for the glance line
     DC.name: "DC",
-    RIPPLE_PP.name: "ripple",
+    RIPPLE_PP.name: "rip",
     AC_RMS.name: "AC",
-    DC_LOADED.name: "loaded",
+    DC_LOADED.name: "load",
     CURRENT.name: "current",
     DIODE_TEST.name: "diode",
 }
@@ -92,12 +92,20 @@ def suggested(session: BoardSession) -> Choice | None:
     return Choice(d.next_probe, DC, (), f"DC volts at {d.next_probe}")
 
 
+def level(score: float | None, best: float) -> int:
+    """0–3: how worth taking a measurement is, against the best one (3: about as good)."""
+    if score is None or best <= 0 or score <= 0.02 * best:
+        return 0
+    return 1 + int(score >= best / 3) + int(score >= 0.8 * best)
+
+
 def glyphs(score: float | None, best: float) -> str:
-    """Three cells: how worth taking a measurement is, against the best one (▮▮▮ best)."""
-    if score is None or best <= 0:
-        return "···"
-    filled = 0 if score <= 0.02 * best else 1 + int(score >= best / 3) + int(score >= 0.8 * best)
+    """Three cells: ▮▮▮ the most worth taking, ··· not worth it (or not known)."""
+    filled = level(score, best)
     return "▮" * filled + "·" * (3 - filled)
+
+
+BAR = "·▂▅█"  # one cell: level 0–3, for the glance line
 
 
 def output_volts(session: BoardSession) -> tuple[str, float]:
@@ -114,8 +122,12 @@ def load_words(session: BoardSession, ohms: float) -> str:
     rated = next((r.rated_watts for r in session.profile.test_loads if r.ohms == ohms), None)
     rating = ""
     if rated is not None:
-        verdict = "within" if watts <= rated / 2 else "NOT within half of"
-        rating = f" The profile rates this resistor {rated:g} W: {verdict} its rating."
+        # common practice, no source: run a resistor at half its rating or less
+        verdict = "within half" if watts <= rated / 2 else "MORE than half"
+        rating = (
+            f" The profile rates this resistor {rated:g} W: that is {verdict} its rating "
+            "(keep a load at half its rating or less)."
+        )
     return (
         f"The {format_si(ohms)}Ω test load from {out} to ground takes about {watts:.3g} W at "
         f"{volts:.4g} V.{rating} {TEST_LOAD_CAUTION}"
@@ -145,18 +157,19 @@ def measurement_choices(session: BoardSession, node: str | None) -> list[Choice]
 
 
 def glance(session: BoardSession, node: str | None) -> Content:
-    """One line: which kinds are worth taking at ``node`` (against the best anywhere)."""
+    """One short line: how worth taking each kind is at ``node`` (one cell each, against the
+    best measurement anywhere), e.g. ``S3 DC▂ rip█ AC▅ load· [k]``."""
     if node is None:
         return Content("")
     worth = worth_map(session.diagnosis)
     best = max(worth.values(), default=0.0)
-    parts: list[Content | str] = [f"At {node}: "]
+    parts: list[Content | str | tuple[str, str]] = [f"{node} "]
     for kind in (DC, RIPPLE_PP, AC_RMS, DC_LOADED):
         score = worth.get((node, kind.name))
         if score is None and kind is not DC:
             continue
-        parts += [f"{SHORT_NAMES[kind.name]} ", (glyphs(score, best), "$text-accent"), " "]
-    parts += [("[k]", "bold"), " kinds"]
+        parts += [SHORT_NAMES[kind.name], (BAR[level(score, best)], "bold $text-accent"), " "]
+    parts.append(("[k]", "bold"))
     return Content.assemble(*parts)
 
 

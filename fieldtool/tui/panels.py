@@ -47,11 +47,11 @@ class SuspectsPanel(Static):
             return Content("")
         best = getattr(d, "next_measurement", None)  # on a diagnosis over every kind
         if best is not None:
+            bits = f" {best.gain_bits:.2f} bits "
+            if len(best.words) + len(bits) + 10 > self.size.width:
+                bits = " "  # a narrow panel keeps the words on as few lines as it can
             return Content.assemble(
-                "Next ▸ ",
-                (best.words, "bold $text-accent"),
-                f" {best.gain_bits:.2f} bits ",
-                ("[n]", "bold"),
+                "Next ▸ ", (best.words, "bold $text-accent"), bits, ("[n]", "bold")
             )
         if d.next_probe is None:
             top = d.suspects[0] if d.suspects else None
