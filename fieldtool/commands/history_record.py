@@ -17,6 +17,7 @@ from __future__ import annotations
 import argparse
 import json
 import os
+from dataclasses import replace
 
 from fieldtool.commands.boards import PROFILE_HELP, login_name, profile_arg
 from fieldtool.commands.diagnosis import READINGS_ARG, next_lines, part_names
@@ -28,6 +29,7 @@ from fieldtool.core.circuit.profile import Profile
 from fieldtool.core.circuit.spec import display_name
 from fieldtool.core.diagnosis.dictionary_cache import load_or_build
 from fieldtool.core.diagnosis.faults import BOARD_TARGETS, parse_fault
+from fieldtool.core.diagnosis.ranking import Diagnosis
 from fieldtool.core.errors import InputError
 from fieldtool.core.history import (
     Action,
@@ -152,10 +154,10 @@ def run_record(args: argparse.Namespace) -> int:
         technician=args.technician or login_name(),
     )
     session_id = session.open()
-    diagnosis = session.take(*readings)
+    diagnosis = take_in_steps(session, readings)
     if actions:
         session.record_repair(*actions)
-        session.take(*after)
+        take_in_steps(session, after)
     elif not args.outcome:
         session.save_diagnosis()  # a session left open still says what the engine thought
     if args.outcome:
@@ -202,3 +204,23 @@ def run_record(args: argparse.Namespace) -> int:
     lines += next_lines(dictionary, diagnosis)
     print("\n".join(lines))
     return 0
+
+
+def take_in_steps(session: BoardSession, readings) -> Diagnosis:
+    """A file's readings taken as the technician took them: the powered ones, then (when there
+    are diode tests) the power-off step, which the file's diode tests show was taken and
+    verified, then the readings with the board off; a diode test's part by its default
+    designator, as the session keeps parts."""
+    d = session.dictionary
+    powered = [m for m in readings if m.quantity.powered]
+    off = [replace(m, at=d.resolve_part(m.at)) for m in readings if not m.quantity.powered]
+    diagnosis = session.diagnosis
+    if powered:
+        if not session.powered:
+            session.power(True)
+        diagnosis = session.take(*powered)
+    if off:
+        if session.powered:
+            session.power(False)
+        diagnosis = session.take(*off)
+    return diagnosis

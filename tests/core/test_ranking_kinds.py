@@ -169,7 +169,7 @@ def test_readings_that_fit_nothing_at_all_still_get_a_next_measurement(d):
     assert result.next_measurement.gain_bits > 0
 
 
-def test_a_session_takes_every_kind_and_knows_when_the_board_is_off(d):
+def test_a_session_off_prices_diode_tests_cheap_and_powered_readings_dear(d):
     from fieldtool.core.session import BoardSession
 
     saved = []
@@ -177,16 +177,14 @@ def test_a_session_takes_every_kind_and_knows_when_the_board_is_off(d):
     s.open()
     h = d.rows_of("healthy")[0]
     s.take(dc("S1", float(d.mean[h, 1])))
-    assert s.powered
+    on = s.diagnosis.worth
+    s.power(False)  # off, discharged, every node verified below the safe level
     diode = next(k for k in d.channel_keys() if k[1] == "diode-test")
     s.take(_reading(d, h, diode))
-    assert not s.powered  # a diode test: the board is off until a powered reading
-    # diode tests are now the cheap step; powered readings cost the re-power
     other = [k for k in d.channel_keys() if k[1] == "diode-test" and k != diode][0]
-    worth = s.diagnosis.worth
-    on = diagnose(d, s.measurements(), powered=True).worth
-    assert worth[other[0], "diode-test"] > on[other[0], "diode-test"]
-    assert worth["S2", "dc"] < on["S2", "dc"]
+    off = s.diagnosis.worth
+    assert off[other[0], "diode-test"] > 0
+    assert off["S2", "dc"] < on["S2", "dc"]  # a powered reading now costs the re-power
+    s.power(True)
     s.take(_reading(d, h, ("supply", "current", ())))
-    assert s.powered
     assert {m.quantity.name for m in s.measurements()} == {"dc", "diode-test", "current"}
