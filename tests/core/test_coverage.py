@@ -73,3 +73,12 @@ def test_more_demanding_thresholds_find_fewer(sigmas):
     loose = sum(len(f.kinds(sigmas)) for f in c.faults)
     strict = sum(len(f.kinds(sigmas * 2)) for f in c.faults)
     assert strict <= loose
+
+
+def test_a_fault_is_found_by_the_designator_the_board_shows_or_the_default_one():
+    board = make_profile(
+        load={"ohms": 10000.0}, test_loads={"ohms": [10000.0]}, designators={"C4": "C104"}
+    )
+    c = coverage(build(board))
+    assert c.of("C104:lowcap") == c.of("C4:lowcap") and c.of("C4:lowcap")
+    assert c.findable("C4:lowcap", 0.1) and c.findable("C104:lowcap", 0.1)

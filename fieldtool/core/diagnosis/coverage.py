@@ -40,6 +40,7 @@ class FaultCoverage:
     words: str  # e.g. "C4 lost capacitance (10% left)"
     separation: dict[str, float]  # kind → the best measurement's |Δ| / spread (inf: OL)
     where: dict[str, str]  # kind → where that best measurement is taken
+    default_key: str = ""  # the same with the default designator, e.g. "C4:lowcap" for "C104"
 
     def kinds(self, sigmas: float = SIGMAS) -> tuple[str, ...]:
         """The kinds that find this fault beyond ``sigmas`` spreads, in kind order."""
@@ -61,8 +62,9 @@ class Coverage:
     lift_one_leg: dict[str, str]  # diodes whose in-circuit test tells nothing, and why
 
     def of(self, key: str) -> tuple[FaultCoverage, ...]:
-        """The rows of one fault (every severity)."""
-        return tuple(f for f in self.faults if f.key == key)
+        """The rows of one fault (every severity), by its designator as the board shows it or
+        by the default one (``Fault.key``)."""
+        return tuple(f for f in self.faults if key in (f.key, f.default_key))
 
     def findable(self, key: str, severity: float | None = None) -> bool:
         """Whether a fault (at a severity, or at its severity nearest to it) can be found."""
@@ -138,6 +140,7 @@ def coverage(d: FaultDictionary) -> Coverage:
                 words=describe(Fault(hyp.target, hyp.mode, sev), d.profile),
                 separation={k: float(best[k][r]) for k in order},
                 where={k: str(where[k][r]) for k in order if best[k][r] > 0},
+                default_key=hyp.key,
             )
         )
     return Coverage(d.profile.name, tuple(order), tuple(rows), d.lift_one_leg())
