@@ -401,6 +401,15 @@ static void advance(const variant *w, const double *x_prev, double *x_new) {
     }
 }
 
+/* True when the step just solved stayed within one n·Vt of the earlier period at every
+ * junction (solver.GUESS_NVT): the earlier period's next instant is then the better Newton
+ * start; otherwise the step's own previous solution is. */
+static int near_guess(const variant *w, const double *guess_vj) {
+    for (int i = 0; i < w->bd->k; i++)
+        if (!(fabs(w->vj[i] - guess_vj[i]) <= w->nvt[i])) return 0;
+    return 1;
+}
+
 static void fill_nan(double *p, size_t count) {
     for (size_t i = 0; i < count; i++) p[i] = NAN;
 }
@@ -409,7 +418,7 @@ static void fill_nan(double *p, size_t count) {
 
 /* Arrays are row-major: inj, guess_v, V (B, T, n) in original node order; x0 (B, m);
  * v_state (B, n), vj_state (B, k) are the Newton start and are left at the period's end;
- * guess_v, guess_vj may be NULL; X (B, T, m); VJ (B, T, k); M (B, m, m) or NULL gets the
+ * guess_v, guess_vj may be NULL (each step's Newton start, see near_guess); X (B, T, m); VJ (B, T, k); M (B, m, m) or NULL gets the
  * monodromy, the product of the steps' ∂x_t/∂x_(t-1); newton (B) gets each variant's Newton
  * iteration total. Returns 0, or -1 when memory ran out. A variant whose matrix lost
  * definiteness gets NaN (the shooting then reports it as not converged). */
@@ -443,7 +452,7 @@ int ft_period(const ft_board *bd, int T, const double *h, const double *inj, con
                 hprev = h[t];
             }
             size_t bt = (size_t)b * T + t;
-            if (guess_v) {
+            if (guess_v && (t == 0 || near_guess(&w, guess_vj + (bt - 1) * k))) {
                 for (int i = 0; i < n; i++) w.v[i] = guess_v[bt * n + bd->perm[i]];
                 memcpy(w.vj, guess_vj + bt * k, sizeof(double) * (size_t)k);
             }
