@@ -402,8 +402,9 @@ static void advance(const variant *w, const double *x_prev, double *x_new) {
 }
 
 /* True when the step just solved stayed within one n·Vt of the earlier period at every
- * junction (solver.GUESS_NVT): the earlier period's next instant is then the better Newton
- * start; otherwise the step's own previous solution is. */
+ * junction: the next step's Newton iteration then starts from this step's solution plus the
+ * earlier period's change over the next step; otherwise from this step's solution alone
+ * (solver.run_period does the same). */
 static int near_guess(const variant *w, const double *guess_vj) {
     for (int i = 0; i < w->bd->k; i++)
         if (!(fabs(w->vj[i] - guess_vj[i]) <= w->nvt[i])) return 0;
@@ -452,9 +453,13 @@ int ft_period(const ft_board *bd, int T, const double *h, const double *inj, con
                 hprev = h[t];
             }
             size_t bt = (size_t)b * T + t;
-            if (guess_v && (t == 0 || near_guess(&w, guess_vj + (bt - 1) * k))) {
+            if (guess_v && t == 0) {
                 for (int i = 0; i < n; i++) w.v[i] = guess_v[bt * n + bd->perm[i]];
                 memcpy(w.vj, guess_vj + bt * k, sizeof(double) * (size_t)k);
+            } else if (guess_v && near_guess(&w, guess_vj + (bt - 1) * k)) {
+                const double *gv = guess_v + bt * n, *gj = guess_vj + bt * k;
+                for (int i = 0; i < n; i++) w.v[i] += gv[bd->perm[i]] - gv[bd->perm[i] - n];
+                for (int i = 0; i < k; i++) w.vj[i] += gj[i] - gj[i - k];
             }
             int it = newton(&w, inj + bt * n, x);
             if (it < 0) {

@@ -310,10 +310,11 @@ def run_period(
 ) -> Period:
     """Integrate one period from capacitor voltages x0.
 
-    With ``guess`` (an earlier period on the same grid), each step's Newton iteration starts
-    from that period's solution at the same instant, as long as the previous step ended within
-    one n·Vt of that period at every junction; a variant that has moved farther (an early
-    shooting iterate) starts each step from its own previous step, which is then closer.
+    With ``guess`` (an earlier period on the same grid, e.g. the previous shooting iterate),
+    the first step's Newton iteration starts from that period's first solution, and each later
+    one from the previous step's solution plus the guess's change over this step, as long as
+    the previous step ended within one n·Vt of the guess at every junction; a variant that has
+    moved farther (an early shooting iterate) starts from its previous step's solution alone.
     """
     SRC = net.sources_on(times[1:])
     inj = net.injections(SRC)
@@ -335,21 +336,18 @@ def run_period(
     x = x0
     total = 0
     for k in range(T):
-        if guess is not None:
-            near = np.ones(B, dtype=bool) if k == 0 else _near(state.vj, guess.vj[:, k - 1], net)
-            state.v = np.where(near[:, None], guess.v[:, k], state.v)
-            state.vj = np.where(near[:, None], guess.vj[:, k], state.vj)
+        if guess is not None and k == 0:
+            state.v, state.vj = guess.v[:, 0], guess.vj[:, 0]
+        elif guess is not None:
+            near = (np.abs(state.vj - guess.vj[:, k - 1]) <= net.params.d_nvt).all(axis=1)[:, None]
+            state.v = state.v + near * (guess.v[:, k] - guess.v[:, k - 1])
+            state.vj = state.vj + near * (guess.vj[:, k] - guess.vj[:, k - 1])
         x, S, it = step(net, x, state, inj[:, k], steps[k], sens)
         total += it
         if sens:
             M = S @ M
         V[:, k], X[:, k], VJ[:, k] = state.v, x, state.vj
     return Period(times, x0, x, V, X, SRC, M, total, VJ)
-
-
-def _near(vj: np.ndarray, guess_vj: np.ndarray, net: Network) -> np.ndarray:
-    """Rows whose junction voltages are all within one n·Vt of the guess's."""
-    return (np.abs(vj - guess_vj) <= net.params.d_nvt).all(axis=1)
 
 
 @dataclass(frozen=True)
