@@ -408,7 +408,7 @@ def steady_state(
             # The Newton correction estimates the distance to the fixed point; the residual
             # alone does not (slow reservoir modes have monodromy eigenvalues near 1).
             ok = (res <= tol * scale) & (np.abs(dx).max(axis=1) <= 10 * tol * scale)
-            _store_rows(store, per, active, B)
+            _store_rows(store, per, active, B, ok)
             ok_all[active] = ok
             res_all[active] = np.maximum(res, np.abs(dx).max(axis=1))
             if progress is not None:
@@ -427,6 +427,8 @@ def steady_state(
                 net = Network(circuit, params.take(active), reltol)
                 state = StepState(state.v[keep], state.vj[keep])
                 per = _take_period(per, keep)
+        if not ok_all.all():
+            _store_rows(store, per, active, B, ~ok_all[active])  # the last iterate of the rest
         if ok_all.all() or fallback_periods == 0:
             break
         if attempt == 0:
@@ -469,13 +471,22 @@ def _damp(
 _PERIOD_ROWS = ("x_start", "x_end", "v", "x", "src", "monodromy", "vj")
 
 
-def _store_rows(store: dict[str, np.ndarray], per: Period, rows: np.ndarray, B: int) -> None:
-    """Copy one period's rows into the full-batch result arrays."""
+def _store_rows(
+    store: dict[str, np.ndarray], per: Period, rows: np.ndarray, B: int, pick: np.ndarray
+) -> None:
+    """Copy the picked rows of one period into the full-batch result arrays.
+
+    Only rows that are final are copied (those that converged, and at the end the rest), not
+    every active row at every iteration.
+    """
     for name in _PERIOD_ROWS:
         value = getattr(per, name)
         if name not in store:
             store[name] = np.zeros((B, *value.shape[1:]))
-        store[name][rows] = value
+        if pick.all():
+            store[name][rows] = value
+        elif pick.any():
+            store[name][rows[pick]] = value[pick]
     store["newton_iterations"] = per.newton_iterations
 
 
