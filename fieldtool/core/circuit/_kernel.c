@@ -164,6 +164,12 @@ static void variant_select(variant *w, int row) {
     w->v[n] = w->vnew[n] = 0.0;
 }
 
+#if defined(__GNUC__) && !defined(__clang__) && defined(__x86_64__) && defined(__linux__)
+#define FT_WIDE __attribute__((target_clones("avx2", "default")))
+#else
+#define FT_WIDE
+#endif
+
 /* ---- skyline L·D·Lᵀ ----------------------------------------------------------------------- */
 
 /* Entry (i, j), j <= i, of a packed envelope. */
@@ -220,7 +226,7 @@ static void solve(const ft_board *bd, const double *env, const double *D, double
 
 /* Solve (L·D·Lᵀ) X = B in place for the columns of X (n rows of `cols`, row-major): the same
  * sweeps as solve() with each row operation running along all right-hand sides at once. */
-static void solve_many(const ft_board *bd, const double *env, const double *D, double *X, int cols) {
+FT_WIDE static void solve_many(const ft_board *bd, const double *env, const double *D, double *X, int cols) {
     int n = bd->n;
     for (int i = 0; i < n; i++) {
         int fi = bd->first[i];
@@ -250,7 +256,7 @@ static void solve_many(const ft_board *bd, const double *env, const double *D, d
 }
 
 /* R = Acᵀ·diag(gc)·Y for Y (m rows of `cols`), R (n rows of `cols`), both row-major. */
-static void spread_rows(const variant *w, const double *Y, double *R, int cols) {
+FT_WIDE static void spread_rows(const variant *w, const double *Y, double *R, int cols) {
     const ft_board *bd = w->bd;
     memset(R, 0, sizeof(double) * (size_t)bd->n * cols);
     for (int j = 0; j < bd->m; j++) {
@@ -269,7 +275,7 @@ static void spread_rows(const variant *w, const double *Y, double *R, int cols) 
 }
 
 /* Ynew = diag(1 - a)·Y + diag(a)·Ac·Z, rows of `cols` (the capacitor update's derivative). */
-static void gather_rows(const variant *w, const double *Y, const double *Z, double *Ynew, int cols) {
+FT_WIDE static void gather_rows(const variant *w, const double *Y, const double *Z, double *Ynew, int cols) {
     const ft_board *bd = w->bd;
     for (int j = 0; j < bd->m; j++) {
         int p = bd->c_p[j], q = bd->c_q[j];
@@ -423,7 +429,7 @@ static void fill_nan(double *p, size_t count) {
  * monodromy, the product of the steps' ∂x_t/∂x_(t-1); newton (B) gets each variant's Newton
  * iteration total. Returns 0, or -1 when memory ran out. A variant whose matrix lost
  * definiteness gets NaN (the shooting then reports it as not converged). */
-int ft_period(const ft_board *bd, int T, const double *h, const double *inj, const double *x0,
+FT_WIDE int ft_period(const ft_board *bd, int T, const double *h, const double *inj, const double *x0,
               double *v_state, double *vj_state, const double *guess_v, const double *guess_vj,
               double *V, double *X, double *VJ, double *M, int64_t *newton_total) {
     int n = bd->n, k = bd->k, m = bd->m;
@@ -515,7 +521,7 @@ int ft_period(const ft_board *bd, int T, const double *h, const double *inj, con
  * (B, P). Each step's Newton iteration starts from the previous step's solution (the first from
  * zero), as the reference does. Returns 0, or -1 when memory ran out; a variant whose matrix
  * lost definiteness gets NaN. */
-int ft_response(const ft_board *bd, int T, const double *h, const double *inj,
+FT_WIDE int ft_response(const ft_board *bd, int T, const double *h, const double *inj,
                 const double *inj_drive, const double *inj_supply, const double *x0,
                 int c, int P, const int *probe, double *phi, double *avg, double *v_avg,
                 double *v_min, double *v_max) {
