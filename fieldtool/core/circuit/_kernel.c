@@ -429,7 +429,7 @@ static void fill_nan(double *p, size_t count) {
  * monodromy, the product of the steps' ∂x_t/∂x_(t-1); newton (B) gets each variant's Newton
  * iteration total. Returns 0, or -1 when memory ran out. A variant whose matrix lost
  * definiteness gets NaN (the shooting then reports it as not converged). */
-FT_WIDE int ft_period(const ft_board *bd, int T, const double *h, const double *inj, const double *x0,
+int ft_period(const ft_board *bd, int T, const double *h, const double *inj, const double *x0,
               double *v_state, double *vj_state, const double *guess_v, const double *guess_vj,
               double *V, double *X, double *VJ, double *M, int64_t *newton_total) {
     int n = bd->n, k = bd->k, m = bd->m;
@@ -521,7 +521,7 @@ FT_WIDE int ft_period(const ft_board *bd, int T, const double *h, const double *
  * (B, P). Each step's Newton iteration starts from the previous step's solution (the first from
  * zero), as the reference does. Returns 0, or -1 when memory ran out; a variant whose matrix
  * lost definiteness gets NaN. */
-FT_WIDE int ft_response(const ft_board *bd, int T, const double *h, const double *inj,
+int ft_response(const ft_board *bd, int T, const double *h, const double *inj,
                 const double *inj_drive, const double *inj_supply, const double *x0,
                 int c, int P, const int *probe, double *phi, double *avg, double *v_avg,
                 double *v_min, double *v_max) {
