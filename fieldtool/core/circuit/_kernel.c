@@ -164,6 +164,9 @@ static void variant_select(variant *w, int row) {
     w->v[n] = w->vnew[n] = 0.0;
 }
 
+/* The sensitivity sweeps run along rows of many right-hand sides; on GCC for x86-64 Linux they
+ * are also compiled for AVX2 and the loader picks the clone the CPU runs (target_clones). No
+ * FMA is enabled and no reduction is reordered, so either clone gives the same bits. */
 #if defined(__GNUC__) && !defined(__clang__) && defined(__x86_64__) && defined(__linux__)
 #define FT_WIDE __attribute__((target_clones("avx2", "default")))
 #else
