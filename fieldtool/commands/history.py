@@ -27,6 +27,7 @@ from fieldtool.core.history import (
 from fieldtool.core.history.fleet import fleet_view, profiles_with_histories
 from fieldtool.core.history.merge import merge
 from fieldtool.core.history.sessions import confirmed_in, group_sessions
+from fieldtool.core.words import count
 
 LOGS_HELP = f"logs folder (default: ${ENV_VAR}, else ./logs)"
 
@@ -136,17 +137,18 @@ def run_merge(args: argparse.Namespace) -> int:
         print(json.dumps(out, indent=2, ensure_ascii=False))
         return 0
     lines = [
-        f"merged {safe(args.src_dir)} into {safe(dst)}: {report.added} new record(s) on "
-        f"{report.boards} board(s), {report.already_present} already present"
+        f"merged {safe(args.src_dir)} into {safe(dst)}: {count(report.added, 'new record')} on "
+        f"{count(report.boards, 'board')}, {report.already_present} already present"
     ]
     if report.conflicts:
         lines.append(
-            f"{len(report.conflicts)} conflict(s): same id, different content; both versions kept:"
+            f"{count(len(report.conflicts), 'conflict')}: same id, different content; both versions"
+            " kept:"
         )
         lines += [f"  {safe(c.profile)}/{safe(c.board)}: {safe(c.id)}" for c in report.conflicts]
     if report.damaged:
         lines.append(
-            f"{len(report.damaged)} damaged line(s) in the source, not merged "
+            f"{count(len(report.damaged), 'damaged line')} in the source, not merged "
             "(left there untouched):"
         )
         lines += [f"  {safe(d.path)}:{d.line}: {safe(d.reason)}" for d in report.damaged]

@@ -72,7 +72,7 @@ def test_html_report_has_everything_and_escapes_the_history(tmp_path, capsys, ex
     out = tmp_path / "report.html"
     code, stdout, _ = _report(capsys, HOSTILE_SERIAL, "--logs", str(logs), "--out", str(out))
     page = out.read_text()
-    assert code == 0 and "1 session(s) written" in stdout
+    assert code == 0 and "1 session written" in stdout
     for raw in ("<script", "<img src=x", "<b>DL", "<ana>"):
         assert raw not in page
     assert "&lt;script&gt;alert(&quot;x&quot;)&lt;/script&gt;" in page
@@ -126,7 +126,7 @@ def test_one_session_by_id_prefix(tmp_path, capsys, expected):
         capsys, "DL-0001", "--logs", str(logs), "--out", str(out), "--session", first[:6]
     )
     page = out.read_text()
-    assert code == 0 and "1 session(s)" in stdout
+    assert code == 0 and "1 session written" in stdout
     assert "not-fixed" in page and page.count("<h2>Session") == 1
 
 
