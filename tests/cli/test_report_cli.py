@@ -204,3 +204,36 @@ def test_a_reading_no_node_could_show_is_reported_not_plotted(tmp_path, capsys, 
     assert "wrong range or unit (not plotted)" in page
     assert page.count("data:image/png;base64,") == 1
     assert "<strong>CAUTION</strong>" in page  # a 15 V pump: the absurd value does not count
+
+
+_FULL_DISK = """
+import resource, signal, sys
+from fieldtool.cli import main
+signal.signal(signal.SIGXFSZ, signal.SIG_IGN)  # the kernel then fails the write with EFBIG
+resource.setrlimit(resource.RLIMIT_FSIZE, (0, resource.RLIM_INFINITY))
+sys.exit(main(sys.argv[1:]))
+"""
+
+
+@pytest.mark.parametrize("name", ["r.md"])  # the Markdown page and its plot beside it
+def test_a_report_that_cannot_be_written_leaves_no_file(tmp_path, expected, name):
+    """A process allowed no file growth (RLIMIT_FSIZE = 0, POSIX setrlimit) fails its writes as
+    a full disk does: one line, exit 2, and no empty or half-written report (nor a temporary
+    file) left behind to be mistaken for one."""
+    import subprocess
+
+    logs = tmp_path / "logs"
+    _write_session(logs, "DL-0100", expected, day(1))
+    out_dir = tmp_path / "out"
+    out_dir.mkdir()
+    run = subprocess.run(
+        [sys.executable, "-c", _FULL_DISK, "report", "DL-0100", "--logs", str(logs)]
+        + ["--out", str(out_dir / name)],
+        cwd=ROOT,
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
+    assert run.returncode == 2, run.stderr
+    assert run.stderr.count("\n") == 1 and "disk full; nothing was written" in run.stderr
+    assert list(out_dir.iterdir()) == []
