@@ -23,6 +23,7 @@ COMMAND_MODULES = (
     "fieldtool.commands.history",
     "fieldtool.commands.diagnosis",
     "fieldtool.commands.tui",
+    "fieldtool.commands.store",
 )
 
 # The module that registers each subcommand, so that a command loads only its own module and
@@ -36,6 +37,7 @@ COMMAND_MODULE = {
     **dict.fromkeys(("fleet", "history", "logs", "record", "report"), "fieldtool.commands.history"),
     **dict.fromkeys(("calibrate", "diagnose", "inject"), "fieldtool.commands.diagnosis"),
     **dict.fromkeys(("demo", "probe", "tui"), "fieldtool.commands.tui"),
+    "store": "fieldtool.commands.store",
 }
 
 

@@ -1,7 +1,9 @@
 """The house's import rules (architecture rule; see DEVELOPERS.md).
 
-- ``core`` never imports the UI toolkit, the serial library, ``meters``, ``commands`` or
-  ``tui``; ``meters`` never imports textual, ``commands`` or ``tui``.
+- ``core`` never imports the UI toolkit, the serial library, ``meters``, ``store``,
+  ``commands`` or ``tui``; ``meters`` never imports textual, ``commands`` or ``tui``.
+- ``store`` (the shared fleet store, beside ``meters``) imports only ``core`` (and psycopg, only
+  when it connects): never textual, ``meters``, ``commands`` or ``tui``.
 - Inside ``core``, the subsystems stack one way: ``circuit`` ← ``diagnosis`` ← ``history`` ←
   ``report`` (``session`` on top); no subsystem imports one above it.
 """
@@ -48,18 +50,22 @@ def test_core_has_subsystems():
         assert f"fieldtool.core.{name}" in modules
 
 
-def test_core_imports_neither_textual_nor_serial():
-    modules = _modules(fieldtool.core)
+def _loaded(modules: list[str], roots: tuple[str, ...]) -> str:
+    """Which of ``roots`` importing ``modules`` loads, in a fresh interpreter."""
     code = (
         "import importlib, sys\n"
         f"for m in {modules!r}:\n"
         "    importlib.import_module(m)\n"
-        "roots = ('textual', 'serial', 'rich')\n"
+        f"roots = {roots!r}\n"
         "print(','.join(sorted(m for m in sys.modules if m.split('.')[0] in roots)))\n"
     )
-    out = subprocess.run(
+    return subprocess.run(
         [sys.executable, "-c", code], capture_output=True, text=True, check=True
     ).stdout.strip()
+
+
+def test_core_imports_neither_textual_nor_serial():
+    out = _loaded(_modules(fieldtool.core), ("textual", "serial", "rich"))
     assert out == "", f"core pulled in {out}"
 
 
@@ -86,7 +92,7 @@ def test_imports_point_one_way():
         bad = {
             n
             for n in _imports(module)
-            if n.split(".")[1:2] and n.split(".")[1] in ("meters", "commands", "tui")
+            if n.split(".")[1:2] and n.split(".")[1] in ("meters", "store", "commands", "tui")
         }
         assert not bad, f"{module} imports {sorted(bad)}"
     for module in _modules(fieldtool.meters):
@@ -96,6 +102,20 @@ def test_imports_point_one_way():
             if n.split(".")[1:2] and n.split(".")[1] in ("commands", "tui")
         }
         assert not bad, f"{module} imports {sorted(bad)}"
+
+
+def test_store_imports_only_core():
+    import fieldtool.store
+
+    for module in _modules(fieldtool.store):
+        bad = {
+            n
+            for n in _imports(module)
+            if n.split(".")[1:2] and n.split(".")[1] in ("meters", "commands", "tui")
+        }
+        assert not bad, f"{module} imports {sorted(bad)}"
+    out = _loaded(_modules(fieldtool.store), ("textual", "serial", "psycopg"))
+    assert out == "", f"importing the store pulled in {out} (psycopg only when connecting)"
 
 
 SUBSYSTEMS = ("circuit", "diagnosis", "history", "report", "session")

@@ -14,6 +14,7 @@ from fieldtool.commands.boards import PROFILE_HELP, profile_arg
 from fieldtool.commands.expect import full_json as expectation_json
 from fieldtool.commands.expect import full_text as expectation_text
 from fieldtool.commands.output import check_out, write_whole
+from fieldtool.commands.store import PRIORS_STORE_HELP, add_store_option, notice, store_of
 from fieldtool.core.circuit.library import ProfileEntry, locate, user_profiles_dir
 from fieldtool.core.circuit.profile import Profile, profile_from_dict
 from fieldtool.core.circuit.profile_write import to_toml
@@ -30,6 +31,8 @@ from fieldtool.core.measurement import DC
 from fieldtool.core.readings import load_readings
 from fieldtool.core.session import choose_priors, history_failures
 from fieldtool.core.words import count
+from fieldtool.store import StoreAddress
+from fieldtool.store.priors import store_failures
 
 FAULT_HELP = (
     "TARGET:MODE[=SEVERITY], e.g. D5:open, C4:short, C3:lowcap=0.3 (fraction left), "
@@ -59,6 +62,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     dia.add_argument("profile", help=PROFILE_HELP)
     dia.add_argument("--readings", required=True, help="CSV file: node,volts[,ripple_vpp]")
     dia.add_argument("--logs", help="history folder whose confirmed repairs set the priors")
+    add_store_option(dia, PRIORS_STORE_HELP)
     dia.add_argument("--cache", help="dictionary cache folder (default: $FIELDTOOL_CACHE)")
     dia.add_argument("--json", action="store_true", help="one JSON object on stdout")
     dia.set_defaults(handler=run_diagnose)
@@ -125,11 +129,16 @@ def dictionary_for(profile: Profile, cache: str | None) -> FaultDictionary:
         )
 
 
-def priors_for(profile: Profile, d: FaultDictionary, logs: str | None) -> Priors:
-    """Fleet priors from the ``--logs`` history folder, or the published ones without it."""
+def priors_for(
+    profile: Profile, d: FaultDictionary, logs: str | None, store: StoreAddress | None = None
+) -> Priors:
+    """Fleet priors from the store or the ``--logs`` history folder, or the published ones
+    without either (a store that cannot be reached: the folder, with a notice on stderr)."""
     if logs and not Path(logs).is_dir():
         raise InputError(f"--logs {logs}: no such folder")
-    return choose_priors(profile, d.hypotheses, history_failures(logs) if logs else None)
+    if store is None:
+        return choose_priors(profile, d.hypotheses, history_failures(logs) if logs else None)
+    return choose_priors(profile, d.hypotheses, store_failures(store, logs, notice))
 
 
 def run_diagnose(args: argparse.Namespace) -> int:
@@ -137,7 +146,7 @@ def run_diagnose(args: argparse.Namespace) -> int:
     profile = profile_arg(args.profile)
     d = dictionary_for(profile, args.cache)
     readings = load_readings(args.readings, d.nodes, d.labels)
-    result = diagnose(d, readings, priors_for(profile, d, args.logs))
+    result = diagnose(d, readings, priors_for(profile, d, args.logs, store_of(args)))
     if args.json:
         print(json.dumps(result.to_json(), indent=2))
     else:

@@ -12,8 +12,10 @@ import json
 import os
 from pathlib import Path
 
+from fieldtool.commands import store as store_commands
 from fieldtool.commands.boards import existing_logs, load_board, profile_arg
-from fieldtool.commands.history_text import fleet_text, safe, timeline
+from fieldtool.commands.history_text import fleet_text, merge_json, merge_text, safe, timeline
+from fieldtool.commands.store import add_store_option, notice, store_of
 from fieldtool.core.circuit.library import available, looks_like_path, user_profiles_dir
 from fieldtool.core.errors import InputError, shown
 from fieldtool.core.history import (
@@ -24,12 +26,25 @@ from fieldtool.core.history import (
     check_name,
     resolve_logs_dir,
 )
-from fieldtool.core.history.fleet import fleet_view, profiles_with_histories
+from fieldtool.core.history.fleet import (
+    FleetView,
+    ViewParts,
+    finish_view,
+    fleet_view,
+    profiles_with_histories,
+)
 from fieldtool.core.history.merge import merge
 from fieldtool.core.history.sessions import confirmed_in, group_sessions
-from fieldtool.core.words import count
+from fieldtool.store import ENV_VAR as STORE_ENV
+from fieldtool.store import StoreAddress, StoreUnavailable
+from fieldtool.store import fleet as store_fleet
+from fieldtool.store import read as store_read
 
 LOGS_HELP = f"logs folder (default: ${ENV_VAR}, else ./logs)"
+STORE_READ_HELP = (
+    f"read the fleet store instead of the files (default: ${STORE_ENV} unless --logs is given); "
+    "a postgresql:// URL, a libpq connection string or a store settings .toml"
+)
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:
@@ -39,6 +54,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     )
     p.add_argument("serial", help="board serial, e.g. TG-0042")
     p.add_argument("--logs", help=LOGS_HELP)
+    add_store_option(p, STORE_READ_HELP)
     p.add_argument("--json", action="store_true", help="one JSON object on stdout")
     p.set_defaults(handler=run_history)
 
@@ -55,6 +71,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     m.add_argument("--logs", help=f"the folder to merge into (default: ${ENV_VAR}, else ./logs)")
     m.add_argument("--json", action="store_true", help="one JSON object on stdout")
     m.set_defaults(handler=run_merge)
+    store_commands.register_logs(actions, LOGS_HELP)
 
     f = subparsers.add_parser(
         "fleet",
@@ -64,6 +81,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     )
     f.add_argument("profile", help="profile name (e.g. tidegauge-apd-bias) or its .toml file")
     f.add_argument("--logs", help=LOGS_HELP)
+    add_store_option(f, STORE_READ_HELP)
     f.add_argument("--json", action="store_true", help="one JSON object on stdout")
     f.set_defaults(handler=run_fleet)
 
@@ -74,7 +92,9 @@ def register(subparsers: argparse._SubParsersAction) -> None:
 
 
 def _logs_without_subcommand(args: argparse.Namespace) -> int:
-    raise InputError("'fieldtool logs' needs a subcommand: merge (see 'fieldtool logs --help')")
+    raise InputError(
+        "'fieldtool logs' needs a subcommand: merge, push or pull (see 'fieldtool logs --help')"
+    )
 
 
 def _conflicts(history) -> list[str]:
@@ -88,9 +108,36 @@ def _conflicts(history) -> list[str]:
     return clashes
 
 
+def _reading_store(args: argparse.Namespace) -> StoreAddress | None:
+    """The store ``history`` and ``fleet`` read: ``--store``, else the environment's unless
+    ``--logs`` names a folder."""
+    if args.logs and not args.store:
+        return None
+    return store_of(args)
+
+
+def _from_store(args: argparse.Namespace, read_store, read_files):
+    """``read_store(address)`` when a store is set; the local files when it is unreachable."""
+    address = _reading_store(args)
+    if address is None:
+        return read_files()
+    try:
+        return read_store(address)
+    except StoreUnavailable as exc:
+        local = resolve_logs_dir(args.logs, os.environ)
+        if not local.is_dir():
+            raise
+        notice(f"{exc.message}; showing the local files in {local}")
+        return read_files()
+
+
 def run_history(args: argparse.Namespace) -> int:
     """Handle ``fieldtool history``."""
-    history = load_board(existing_logs(args.logs), args.serial)
+    history = _from_store(
+        args,
+        lambda address: store_read.read_board(address, args.serial),
+        lambda: load_board(existing_logs(args.logs), args.serial),
+    )
     sessions = group_sessions(history.events)
     conflicts = _conflicts(history)
     if not args.json:
@@ -124,38 +171,11 @@ def run_merge(args: argparse.Namespace) -> int:
         raise HistoryError(f"cannot merge into {dst}: it is a file, not a logs folder")
     report = merge(args.src_dir, dst)
     if args.json:
-        out = {
-            "src": str(args.src_dir),
-            "dst": str(dst),
-            "added": report.added,
-            "already_present": report.already_present,
-            "boards": report.boards,
-            "conflicts": [vars(c) for c in report.conflicts],
-            "damaged": [vars(d) for d in report.damaged],
-            "skipped": list(report.skipped),
-        }
+        out = {"src": str(args.src_dir), "dst": str(dst), **merge_json(report)}
         print(json.dumps(out, indent=2, ensure_ascii=False))
         return 0
-    lines = [
-        f"merged {safe(args.src_dir)} into {safe(dst)}: {count(report.added, 'new record')} on "
-        f"{count(report.boards, 'board')}, {report.already_present} already present"
-    ]
-    if report.conflicts:
-        lines.append(
-            f"{count(len(report.conflicts), 'conflict')}: same id, different content; both versions"
-            " kept:"
-        )
-        lines += [f"  {safe(c.profile)}/{safe(c.board)}: {safe(c.id)}" for c in report.conflicts]
-    if report.damaged:
-        lines.append(
-            f"{count(len(report.damaged), 'damaged line')} in the source, not merged "
-            "(left there untouched):"
-        )
-        lines += [f"  {safe(d.path)}:{d.line}: {safe(d.reason)}" for d in report.damaged]
-    if report.skipped:
-        lines.append("skipped:")
-        lines += [f"  {safe(s)}" for s in report.skipped]
-    print("\n".join(lines))
+    head = f"merged {safe(args.src_dir)} into {safe(dst)}"
+    print(merge_text(report, head, "not merged"))
     return 0
 
 
@@ -174,10 +194,31 @@ def profile_name_of(text: str, logs: Path) -> str:
     raise NotFoundError(f"no profile named {shown(name)} and no histories for it in {logs}; {hint}")
 
 
+def _store_fleet(address: StoreAddress, text: str) -> FleetView:
+    """The fleet of a board type from the store, which may know board types this laptop has
+    no profile for; a board type this laptop knows but the store holds nothing for has an
+    empty fleet, as from files."""
+    if looks_like_path(text):
+        name = profile_arg(text).name
+    else:
+        name = check_name(text, "profile name", existing=True)
+    try:
+        return store_fleet.fleet_view(address, name)
+    except NotFoundError:
+        if name in (e.name for e in available(user_profiles_dir(os.environ))):
+            return finish_view(name, ViewParts())
+        raise
+
+
 def run_fleet(args: argparse.Namespace) -> int:
     """Handle ``fieldtool fleet``; a board type with no histories yet has an empty fleet."""
-    logs = existing_logs(args.logs)
-    view = fleet_view(logs, profile_name_of(args.profile, logs))
+    view = _from_store(
+        args,
+        lambda address: _store_fleet(address, args.profile),
+        lambda: fleet_view(
+            existing_logs(args.logs), profile_name_of(args.profile, existing_logs(args.logs))
+        ),
+    )
     if args.json:
         print(json.dumps(view.to_json(), indent=2, ensure_ascii=False))
     else:

@@ -21,6 +21,7 @@ import os
 from fieldtool.commands.boards import PROFILE_HELP, login_name, profile_arg
 from fieldtool.commands.history_text import safe
 from fieldtool.commands.options import technician
+from fieldtool.commands.store import PRIORS_STORE_HELP, add_store_option, notice, store_of
 from fieldtool.core.circuit.netlist import default_designators
 from fieldtool.core.circuit.profile import Profile
 from fieldtool.core.circuit.spec import display_name
@@ -37,7 +38,9 @@ from fieldtool.core.history import (
     resolve_logs_dir,
 )
 from fieldtool.core.readings import load_readings
-from fieldtool.core.session import BoardSession, choose_priors, history_failures
+from fieldtool.core.session import BoardSession, choose_priors
+from fieldtool.core.words import count
+from fieldtool.store.priors import store_failures
 
 TOP_SUSPECTS = 5  # suspects printed
 
@@ -67,6 +70,7 @@ def register(subparsers: argparse._SubParsersAction, logs_help: str, outcomes) -
         "--technician", type=technician, help="who did the work (default: your login name)"
     )
     p.add_argument("--logs", help=logs_help)
+    add_store_option(p, PRIORS_STORE_HELP)
     p.add_argument("--json", action="store_true", help="one JSON object on stdout")
     p.set_defaults(handler=run_record)
 
@@ -127,7 +131,8 @@ def run_record(args: argparse.Namespace) -> int:
     dictionary = load_or_build(profile)
     readings = load_readings(args.readings, dictionary.nodes, profile.labels)
     after = load_readings(args.verify, dictionary.nodes, profile.labels) if args.verify else ()
-    priors = choose_priors(profile, dictionary.hypotheses, history_failures(logs))
+    failures = store_failures(store_of(args), logs, notice)
+    priors = choose_priors(profile, dictionary.hypotheses, failures)
     events: list[Event] = []
     session = BoardSession(
         profile,
@@ -167,7 +172,7 @@ def run_record(args: argparse.Namespace) -> int:
     nodes = len({m.at for m in readings})
     lines = [
         f"saved session {session_id[:12]} for board {safe(serial)} ({profile.name}) in "
-        f"{path}: {nodes} reading(s), {len(actions)} action(s), "
+        f"{path}: {count(nodes, 'reading')}, {count(len(actions), 'action')}, "
         f"{len({m.at for m in after})} after repair, "
         f"outcome {args.outcome or 'none (session left open)'}",
         "suspects ("

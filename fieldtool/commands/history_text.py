@@ -18,6 +18,7 @@ from fieldtool.core.history import (
     time_key,
 )
 from fieldtool.core.history.fleet import FleetView
+from fieldtool.core.history.merge import MergeReport
 from fieldtool.core.history.sessions import Session, confirmed_in
 from fieldtool.core.measurement import DC, Measurement
 from fieldtool.core.words import count
@@ -175,4 +176,40 @@ def fleet_text(view: FleetView) -> str:
             f"{count(view.damaged_lines, 'damaged line')} skipped; "
             "'fieldtool history SERIAL' shows where",
         ]
+    return "\n".join(lines)
+
+
+def merge_json(report: MergeReport) -> dict[str, Any]:
+    """What a merge (or a push, or a pull) did, as the JSON of ``logs merge --json``."""
+    return {
+        "added": report.added,
+        "already_present": report.already_present,
+        "boards": report.boards,
+        "conflicts": [vars(c) for c in report.conflicts],
+        "damaged": [vars(d) for d in report.damaged],
+        "skipped": list(report.skipped),
+    }
+
+
+def merge_text(report: MergeReport, head: str, not_done: str) -> str:
+    """What a merge (or a push, or a pull) did, in the words of ``logs merge``."""
+    lines = [
+        f"{head}: {count(report.added, 'new record')} on {count(report.boards, 'board')}, "
+        f"{report.already_present} already present"
+    ]
+    if report.conflicts:
+        lines.append(
+            f"{count(len(report.conflicts), 'conflict')}: same id, different content; "
+            "both versions kept:"
+        )
+        lines += [f"  {safe(c.profile)}/{safe(c.board)}: {safe(c.id)}" for c in report.conflicts]
+    if report.damaged:
+        lines.append(
+            f"{count(len(report.damaged), 'damaged line')} in the source, {not_done} "
+            "(left there untouched):"
+        )
+        lines += [f"  {safe(d.path)}:{d.line}: {safe(d.reason)}" for d in report.damaged]
+    if report.skipped:
+        lines.append("skipped:")
+        lines += [f"  {safe(s)}" for s in report.skipped]
     return "\n".join(lines)

@@ -12,6 +12,7 @@ from pathlib import Path
 from fieldtool.commands.boards import PROFILE_HELP, login_name, profile_arg
 from fieldtool.commands.meters import BAUD
 from fieldtool.commands.options import SEED, technician
+from fieldtool.commands.store import PRIORS_STORE_HELP, add_store_option, store_of
 from fieldtool.core import history as hist
 from fieldtool.core.circuit.library import user_profiles_dir
 from fieldtool.core.circuit.netlist import build_circuit
@@ -51,7 +52,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     )
     demo = subparsers.add_parser(
         "demo",
-        parents=[_common(demo_logs)],
+        parents=[_common(demo_logs, store=False)],
         help="practise on an invented board with a hidden fault",
         description="Practise on an invented demo board with a simulated meter and a hidden "
         "fault: follow the next-node hints, name the part, record the repair and see whether "
@@ -70,7 +71,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     subparsers.container.set_defaults(handler=run_default)
 
 
-def _common(logs_help: str) -> argparse.ArgumentParser:
+def _common(logs_help: str, store: bool = True) -> argparse.ArgumentParser:
     """The options every terminal-UI command takes."""
     common = argparse.ArgumentParser(add_help=False)
     common.add_argument("--logs", metavar="DIR", help=logs_help)
@@ -81,6 +82,8 @@ def _common(logs_help: str) -> argparse.ArgumentParser:
         "screen can change it)",
     )
     common.add_argument("--cache", metavar="DIR", help="fault dictionary cache folder")
+    if store:
+        add_store_option(common, PRIORS_STORE_HELP)
     return common
 
 
@@ -115,6 +118,8 @@ def _run(args: argparse.Namespace, request=None, settings: MeterSettings | None 
         cache_dir=getattr(args, "cache", None),
         technician=getattr(args, "technician", None) or login_name(),
         settings=settings,
+        # practice boards never read or feed a real fleet's store
+        store=None if getattr(args, "demo_logs", False) else store_of(args),
     )
     app.run()
     if app.writer_left_unsaved:

@@ -25,6 +25,7 @@ from fieldtool.core.history.sessions import Session
 from fieldtool.core.session import BoardSession
 from fieldtool.core.words import count
 from fieldtool.meters.settings import MeterSettings
+from fieldtool.store import StoreAddress
 from fieldtool.tui.config import AppConfig, SessionRequest
 from fieldtool.tui.dialogs import (
     ActionDialog,
@@ -260,6 +261,7 @@ def make_app(
     technician: str = "",
     settings: MeterSettings | None = None,
     rescue_dir: str | os.PathLike[str] | None = None,
+    store: StoreAddress | None = None,
 ) -> FieldtoolApp:
     """The app, shared by the CLI and the tests."""
     config = AppConfig(
@@ -269,5 +271,6 @@ def make_app(
         technician=technician,
         settings=settings or MeterSettings(),
         rescue_dir=Path(rescue_dir) if rescue_dir else None,
+        store=store,
     )
     return FieldtoolApp(config, request)

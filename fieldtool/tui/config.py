@@ -9,6 +9,7 @@ from pathlib import Path
 from fieldtool.core.circuit.profile import Profile
 from fieldtool.core.diagnosis.faults import Fault
 from fieldtool.meters.settings import MeterSettings
+from fieldtool.store import StoreAddress
 from fieldtool.tui.meter_strip import MeterChoice
 
 
@@ -24,6 +25,7 @@ class AppConfig:
     rescue_dir: Path | None = (
         None  # where unsaveable events go at quit (default ~/fieldtool-rescue)
     )
+    store: StoreAddress | None = None  # the fleet store for the priors (None: files only)
 
 
 @dataclass(frozen=True)

@@ -23,7 +23,8 @@ from fieldtool.core.errors import FieldtoolError
 from fieldtool.core.hazard import SAFETY_WARNING
 from fieldtool.core.history import HistoryError
 from fieldtool.core.history.sessions import Session
-from fieldtool.core.session import choose_priors, history_failures, unfinished_session
+from fieldtool.core.session import choose_priors, unfinished_session
+from fieldtool.store.priors import store_failures
 from fieldtool.tui.config import AppConfig, SessionRequest
 
 
@@ -94,7 +95,11 @@ class LoadingScreen(Screen):
         # A history folder that cannot be read must not stop the probing: published priors,
         # no resume, and the writer says so (and keeps every reading) when it cannot save.
         try:
-            failures = history_failures(self.config.logs_dir)
+            failures = store_failures(
+                self.config.store,
+                self.config.logs_dir,
+                lambda text: self.app.call_from_thread(self._warn, f"Priors: {text}"),
+            )
             priors = choose_priors(r.profile, dictionary.hypotheses, failures)
         except HistoryError as exc:
             priors = choose_priors(r.profile, dictionary.hypotheses)

@@ -34,6 +34,7 @@ from fieldtool.core.history.records import (
     Record,
     loads_line,
     parse_lines,
+    parse_object,
     parse_record,
     record_id_time,
 )
@@ -83,6 +84,7 @@ __all__ = [
     "measurement_from_v1",
     "now_utc",
     "parse_lines",
+    "parse_object",
     "parse_record",
     "read_board",
     "read_file",

@@ -63,6 +63,24 @@ def remove_if_empty(path: Path, fd: int) -> None:
             pass  # then it stays empty, and readers skip empty files
 
 
+def identity(st: os.stat_result) -> list[int]:
+    """A file's identity: inode, device, size, modification and change times (any append or
+    rewrite changes one of them)."""
+    return [st.st_ino, st.st_dev, st.st_size, st.st_mtime_ns, st.st_ctime_ns]
+
+
+def read_with_identity(path: Path) -> tuple[list[int], bytes]:
+    """A file's identity, taken before its bytes are read (bytes appended after that make the
+    identity stale, never the other way round), and those bytes."""
+    fd = os.open(path, os.O_RDONLY | os.O_CLOEXEC)
+    try:
+        st = os.fstat(fd)
+        data = os.pread(fd, st.st_size, 0) if st.st_size else b""
+    finally:
+        os.close(fd)
+    return identity(st), data[: st.st_size]
+
+
 def read_locked(fd: int) -> bytes:
     """The whole content of an open file descriptor."""
     size = os.fstat(fd).st_size

@@ -17,7 +17,7 @@ from __future__ import annotations
 
 import statistics
 from collections import Counter, defaultdict
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any
@@ -147,68 +147,105 @@ def fleet_view(logs_dir: Path | str, profile_name: str, *, use_cache: bool = Tru
 
 def build_view(profile_name: str, boards: list[BoardSummary]) -> FleetView:
     """Aggregate per-board summaries into the fleet view."""
-    outcomes: Counter[str] = Counter()
-    counts: Counter[tuple[str, str]] = Counter()
-    verified: Counter[tuple[str, str]] = Counter()
-    on_boards: dict[tuple[str, str], set[str]] = defaultdict(set)
-    repeats: list[RepeatRepair] = []
-    recurring: list[RecurringBoard] = []
-    gaps: list[float] = []
-    repairs = 0
+    return finish_view(profile_name, view_parts(boards))
+
+
+@dataclass
+class ViewParts:
+    """What some boards add to a fleet view, before it is ordered (``finish_view``)."""
+
+    boards: int = 0
+    outcomes: Counter[str] = field(default_factory=Counter)
+    repairs: int = 0
+    # (designator, mode) -> [repairs that confirmed it, boards, of those repairs verified]
+    failures: dict[tuple[str, str], list[int]] = field(default_factory=dict)
+    repeats: list[RepeatRepair] = field(default_factory=list)
+    recurring: list[RecurringBoard] = field(default_factory=list)
+    gaps: list[float] = field(default_factory=list)  # days between successive repairs
+    damaged: int = 0
+
+    def add(self, other: ViewParts) -> None:
+        """Take in the parts of other boards (never the same boards)."""
+        self.boards += other.boards
+        self.outcomes.update(other.outcomes)
+        self.repairs += other.repairs
+        for key, (count, boards, verified) in other.failures.items():
+            mine = self.failures.setdefault(key, [0, 0, 0])
+            mine[0], mine[1], mine[2] = mine[0] + count, mine[1] + boards, mine[2] + verified
+        self.repeats += other.repeats
+        self.recurring += other.recurring
+        self.gaps += other.gaps
+        self.damaged += other.damaged
+
+
+def view_parts(boards: list[BoardSummary]) -> ViewParts:
+    """What per-board summaries add to a fleet view (see module docstring for the terms)."""
+    parts = ViewParts(boards=len(boards), damaged=sum(b.damaged for b in boards))
     epoch = datetime(1970, 1, 1, tzinfo=UTC)
     for board in boards:
-        outcomes.update(board.outcomes)
+        parts.outcomes.update(board.outcomes)
         if not board.repairs:
             continue
-        repairs += len(board.repairs)
+        parts.repairs += len(board.repairs)
         by_part: dict[str, list[tuple[str, str]]] = defaultdict(list)
+        tally: Counter[tuple[str, str]] = Counter()
         for start, found in board.repairs:
             for designator, mode, checked in found:
                 key = (designator, mode)
-                counts[key] += 1
-                verified[key] += checked
-                on_boards[key].add(board.board)
+                counts = parts.failures.setdefault(key, [0, 0, 0])
+                counts[0] += 1
+                counts[1] += key not in tally  # one more board with this failure
+                counts[2] += checked
+                tally[key] += 1
                 by_part[designator].append((start, mode))
         starts = [start for start, _ in board.repairs]
         days = [(_instant(t) - epoch).total_seconds() / 86400.0 for t in starts]
-        gaps.extend(b - a for a, b in zip(days, days[1:], strict=False))
+        parts.gaps.extend(b - a for a, b in zip(days, days[1:], strict=False))
         for designator, seen in by_part.items():
             if len(seen) > 1:
                 times = tuple(t for t, _ in seen)
                 shortest = min(_days(a, b) for a, b in zip(times, times[1:], strict=False))
                 modes = tuple(m for _, m in seen)
-                repeats.append(RepeatRepair(board.board, designator, modes, times, shortest))
+                parts.repeats.append(RepeatRepair(board.board, designator, modes, times, shortest))
         if len(board.repairs) > 1:
-            tally = Counter((d, m) for _, found in board.repairs for d, m, _ in found)
             failures = tuple((d, m, n) for (d, m), n in sorted(tally.items()))
-            recurring.append(
+            parts.recurring.append(
                 RecurringBoard(board.board, len(board.repairs), failures, starts[0], starts[-1])
             )
-    failures = tuple(
-        FailureCount(d, m, n, len(on_boards[(d, m)]), verified[(d, m)])
-        for (d, m), n in sorted(counts.items(), key=lambda kv: (-kv[1], kv[0]))
+    return parts
+
+
+def finish_view(profile_name: str, parts: ViewParts) -> FleetView:
+    """Order and total the parts into the view (shared with the store's queries)."""
+    failures = sorted(
+        (FailureCount(d, m, *counts) for (d, m), counts in parts.failures.items()),
+        key=lambda f: (-f.count, f.designator, f.mode),
     )
-    repeats.sort(key=lambda r: (-len(r.times), r.shortest_days, r.board, r.designator))
-    recurring.sort(key=lambda b: (-b.repairs, b.board))
+    repeats = sorted(
+        parts.repeats, key=lambda r: (-len(r.times), r.shortest_days, r.board, r.designator)
+    )
+    recurring = sorted(parts.recurring, key=lambda b: (-b.repairs, b.board))
+    gaps = parts.gaps
     intervals = Intervals(
         count=len(gaps),
         median_days=statistics.median(gaps) if gaps else None,
         mean_days=statistics.fmean(gaps) if gaps else None,
         shortest_days=min(gaps) if gaps else None,
     )
+    outcomes = parts.outcomes
     ordered = {k: outcomes[k] for k in OUTCOME_ORDER if outcomes[k]}
     ordered.update({k: v for k, v in sorted(outcomes.items()) if k not in ordered})
     return FleetView(
         profile=profile_name,
-        boards=len(boards),
+        boards=parts.boards,
         sessions=sum(outcomes.values()),
         outcomes=ordered,
-        repairs=repairs,
-        failures=failures,
+        repairs=parts.repairs,
+        failures=tuple(failures),
         repeat_repairs=tuple(repeats),
         intervals=intervals,
         recurring_boards=tuple(recurring),
-        damaged_lines=sum(b.damaged for b in boards),
+        damaged_lines=parts.damaged,
     )
 
 

@@ -28,13 +28,14 @@ from pathlib import Path
 from typing import Any
 
 from fieldtool.core.history import Record, parse_record, time_key
-from fieldtool.core.history.files import rewrite
+from fieldtool.core.history.files import identity, read_with_identity, rewrite
 from fieldtool.core.history.sessions import confirmed_in, group_sessions
 
 CACHE_NAME = ".fleet-cache.json"
 CACHE_FORMAT = 2  # bump when the summary's meaning changes: old caches are then ignored
 _KIND = b'"kind":"'
-_NOT_NEEDED = frozenset((b"reading", b"diagnosis"))
+SKIPPED_KINDS = ("reading", "diagnosis")  # kinds the fleet view never needs (also the store's)
+_NOT_NEEDED = frozenset(k.encode() for k in SKIPPED_KINDS)
 
 
 Repair = tuple[str, tuple[tuple[str, str, bool], ...]]  # (start, ((designator, mode, verified),))
@@ -115,20 +116,6 @@ def summarize_bytes(board: str, data: bytes) -> BoardSummary:
     return BoardSummary(board, outcomes, tuple(repairs), damaged)
 
 
-def _read_with_identity(path: Path) -> tuple[list[int], bytes]:
-    fd = os.open(path, os.O_RDONLY | os.O_CLOEXEC)
-    try:
-        st = os.fstat(fd)  # identity first: bytes appended after this make it stale
-        data = os.pread(fd, st.st_size, 0) if st.st_size else b""
-    finally:
-        os.close(fd)
-    return _identity(st), data[: st.st_size]
-
-
-def _identity(st: os.stat_result) -> list[int]:
-    return [st.st_ino, st.st_dev, st.st_size, st.st_mtime_ns, st.st_ctime_ns]
-
-
 def _board_files(folder: Path) -> Iterator[os.DirEntry[str]]:
     with os.scandir(folder) as entries:
         for entry in entries:
@@ -169,7 +156,7 @@ PARALLEL_FILES = 200  # from this many files to read, the summaries use every co
 def _summarize_path(path: str) -> tuple[list[int], BoardSummary] | None:
     """Read and summarise one board file (runs in a worker too); None if it is unreadable."""
     try:
-        identity, data = _read_with_identity(Path(path))
+        identity, data = read_with_identity(Path(path))
     except OSError:
         return None  # vanished or unreadable: `history` on that board says why
     return identity, summarize_bytes(Path(path).name[: -len(".jsonl")], data)
@@ -192,7 +179,7 @@ def summaries(folder: Path, *, use_cache: bool = True) -> list[BoardSummary]:
     fresh: dict[str, Any] = {}
     stale: list[str] = []
     for entry in _board_files(folder):
-        summary = _cached(cache.get(entry.name), _identity(entry.stat()))
+        summary = _cached(cache.get(entry.name), identity(entry.stat()))
         if summary is None:
             stale.append(entry.path)
         else:
@@ -200,10 +187,10 @@ def summaries(folder: Path, *, use_cache: bool = True) -> list[BoardSummary]:
             fresh[entry.name] = cache[entry.name]
     for path, result in zip(stale, _summarize_all(stale), strict=True):
         if result is not None:
-            identity, summary = result
+            read_as, summary = result
             name = Path(path).name
             found[name] = summary
-            fresh[name] = {"identity": identity, "summary": summary.to_json()}
+            fresh[name] = {"identity": read_as, "summary": summary.to_json()}
     if use_cache and (stale or len(fresh) != len(cache)):
         _save_cache(folder, fresh)
     return [found[name] for name in sorted(found)]

@@ -60,7 +60,8 @@ def _canonical(text: str) -> str:
     return json.dumps(json.loads(text), sort_keys=True, separators=(",", ":"))
 
 
-def _source_files(src: Path) -> list[tuple[str, str, Path]]:
+def source_files(src: Path) -> list[tuple[str, str, Path]]:
+    """Every board file of a logs folder as (profile folder, serial, path), sorted."""
     try:
         folders = sorted(p for p in src.iterdir() if p.is_dir() and not p.name.startswith("."))
     except OSError as exc:
@@ -130,7 +131,7 @@ def merge(src_dir: Path | str, dst_dir: Path | str, *, workers: int | None = Non
         raise HistoryError(f"cannot merge {src} into itself")
     jobs = [
         (profile, serial, str(path), str(dst / profile / path.name))
-        for profile, serial, path in _source_files(src)
+        for profile, serial, path in source_files(src)
     ]
     cores = os.cpu_count() or 1
     if workers is None:
@@ -268,7 +269,8 @@ class _Destination:
         return out
 
 
-def _same_record(a: bytes, b: bytes) -> bool:
+def same_record(a: bytes, b: bytes) -> bool:
+    """True when two lines hold the same record (the same JSON, however spelled)."""
     try:
         return _canonical(a.decode("utf-8")) == _canonical(b.decode("utf-8"))
     except ValueError:  # a damaged destination line can equal nothing
@@ -292,7 +294,7 @@ def _merge_into(fd: int, target: Path, source: _Source) -> tuple[int, int, list[
         dst.index()
         rid, key = found[0].encode("utf-8"), _sort_key(found[1].encode("utf-8"))
         versions = dst.ids.get(rid)
-        if versions and any(_same_record(raw, v) for v in versions):
+        if versions and any(same_record(raw, v) for v in versions):
             present += 1  # the same record, spelled differently
             continue
         if versions:

@@ -9,6 +9,7 @@ never read as an event. Re-exported by ``fieldtool.core.history``; import them f
 from __future__ import annotations
 
 import json
+from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
 
@@ -105,25 +106,27 @@ def _envelope_problem(obj: Any) -> str | None:
     return None
 
 
-def record_id_time(text: str) -> tuple[str, str] | str:
-    """A line's record id and time (checked exactly as ``parse_record`` does), or the reason."""
+def parse_object(text: str) -> dict[str, Any] | str:
+    """One line as a JSON object whose envelope is a record's, or the reason it is not one."""
     try:
         obj = loads_line(text)
     except ValueError:
         return "not valid JSON (torn or corrupted line)"
     problem = _envelope_problem(obj)
-    return problem if problem else (obj["id"], obj["time"])
+    return problem if problem else obj
+
+
+def record_id_time(text: str) -> tuple[str, str] | str:
+    """A line's record id and time (checked exactly as ``parse_record`` does), or the reason."""
+    obj = parse_object(text)
+    return obj if isinstance(obj, str) else (obj["id"], obj["time"])
 
 
 def parse_record(text: str) -> Record | str:
     """One JSON line as a Record, or the reason it is not one."""
-    try:
-        obj = loads_line(text)
-    except ValueError:
-        return "not valid JSON (torn or corrupted line)"
-    problem = _envelope_problem(obj)
-    if problem:
-        return problem
+    obj = parse_object(text)
+    if isinstance(obj, str):
+        return obj
     schema, rid, stamp, kind = obj.pop("schema"), obj.pop("id"), obj.pop("time"), obj.pop("kind")
     session = obj.get("session")
     if isinstance(session, str) and session:
@@ -144,9 +147,16 @@ def parse_record(text: str) -> Record | str:
     )
 
 
-def parse_lines(data: bytes, path: str) -> tuple[list[tuple[Record, str]], list[Damaged]]:
-    """Split file bytes into (record, raw line) pairs and damaged lines."""
-    records: list[tuple[Record, str]] = []
+def parse_lines(
+    data: bytes, path: str, parse: Callable[[str], Any] = parse_record
+) -> tuple[list[tuple[Any, str]], list[Damaged]]:
+    """Split file bytes into (record, raw line) pairs and damaged lines.
+
+    Args:
+        parse: how a line becomes a record (``parse_record``, or ``parse_object`` for the
+            JSON object alone); it returns the reason as a string for a line that is not one.
+    """
+    records: list[tuple[Any, str]] = []
     damaged: list[Damaged] = []
     lines = data.split(b"\n")
     torn_tail = bool(lines[-1])
@@ -158,8 +168,8 @@ def parse_lines(data: bytes, path: str) -> tuple[list[tuple[Record, str]], list[
         except UnicodeDecodeError:
             damaged.append(Damaged(path, number, "not UTF-8", raw.decode("utf-8", "replace")))
             continue
-        parsed = parse_record(text)
-        if isinstance(parsed, Record):
+        parsed = parse(text)
+        if not isinstance(parsed, str):
             records.append((parsed, text))
         else:
             last = number == len(lines) and torn_tail
