@@ -24,8 +24,8 @@ def event_words(record: hist.Record) -> str:
     e = record.event
     if e is None:
         if record.newer_schema:
-            return f"({record.kind}: from a newer fieldtool, kept as it is)"
-        return f"({record.kind}: fields this version cannot read, kept as they are)"
+            return "from a newer fieldtool, kept as is"
+        return "unreadable by this version, kept as is"
     if isinstance(e, hist.SessionOpened):
         who = f" by {e.technician}" if e.technician else ""
         return f"session opened{who} (fieldtool {e.tool_version})"

@@ -147,7 +147,7 @@ def test_one_odd_field_never_stops_a_history_loading_showing_or_resuming(
         words = event_words(record)  # the UI's timeline line
         event = record.event
         if event is None and not record.newer_schema:
-            assert "fields this version cannot read" in words
+            assert words == "unreadable by this version, kept as is"
         if isinstance(event, h.Reading):
             value_read = event.measurement.value
             assert value_read is None or math.isfinite(value_read)
@@ -188,7 +188,7 @@ def test_a_value_no_float_holds_is_one_unreadable_record_not_a_lost_history(
     assert history.damaged == () and len(history.events) == len(LINES)
     odd = history.events[line_no]
     assert odd.event is None and not odd.newer_schema
-    assert event_words(odd) == "(reading: fields this version cannot read, kept as they are)"
+    assert event_words(odd) == "unreadable by this version, kept as is"
     readable = [r for i, r in enumerate(history.events) if i != line_no]
     assert all(r.event is not None for r in readable)
     session = BoardSession(BOARD, SERIAL, _dictionary(dictionary_cache), lambda e, sid: None)
