@@ -62,7 +62,7 @@ class Quantity:
 DC = Quantity("dc", "V", "DC volts", "node", powered=True)
 RIPPLE_PP = Quantity("ripple-pp", "V", "ripple peak to peak", "node", powered=True)
 AC_RMS = Quantity("ac-rms", "V", "AC volts (true RMS)", "node", powered=True)
-CURRENT = Quantity("current", "A", "supply current", "rail", powered=True)
+CURRENT = Quantity("current", "A", "current", "rail", powered=True)  # "supply current"
 DC_LOADED = Quantity(
     "dc-loaded",
     "V",
