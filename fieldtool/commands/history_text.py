@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import unicodedata
+from collections.abc import Callable
 from typing import Any
 
 from fieldtool.core.history import (
@@ -55,18 +56,23 @@ def _measurement_words(record: Record, m: Measurement) -> str:
     return f"{label} {safe(m.at)}{what} = {value_text(m)} ({source}{extra})"
 
 
-def describe(record: Record) -> str:
-    """One record in a line of plain words."""
+NOT_THIS_BOARD = " — not a reading of this board (wrong range or unit?)"
+
+
+def describe(record: Record, beyond: Callable[[Measurement], bool] | None = None) -> str:
+    """One record in a line of plain words; ``beyond`` says whether a reading is one no node of
+    the board could show (an older version let such values through)."""
     kind = record.kind
     if record.newer_schema:
         return f"{safe(kind)} (from a newer fieldtool, schema {record.schema}; kept as is)"
     event = record.event
     if event is None:
         if kind in EVENT_TYPES:  # a known kind whose fields are not what this version wrote
-            return f"{safe(kind)} (fields this version cannot read; kept as is)"
+            return f"{safe(kind)} (unreadable by this version; kept as is)"
         return safe(kind)
     if isinstance(event, Reading):
-        return _measurement_words(record, event.measurement)
+        flag = NOT_THIS_BOARD if beyond is not None and beyond(event.measurement) else ""
+        return _measurement_words(record, event.measurement) + flag
     if isinstance(event, SessionOpened):
         extra = f", {event.ambient_c:g} °C" if event.ambient_c is not None else ""
         return (
@@ -88,8 +94,13 @@ def _suspect(s: SnapshotSuspect) -> str:
     return f"{name} {s.probability:.0%}"
 
 
-def timeline(history: BoardHistory, sessions: tuple[Session, ...], conflicts: list[str]) -> str:
-    """The board's history grouped by session, oldest first."""
+def timeline(
+    history: BoardHistory,
+    sessions: tuple[Session, ...],
+    conflicts: list[str],
+    beyond: Callable[[Measurement], bool] | None = None,
+) -> str:
+    """The board's history grouped by session, oldest first (``beyond``: see ``describe``)."""
     real = [s for s in sessions if s.id is not None]
     profiles = sorted({r.profile for r in history.events if r.profile})
     lines = [
@@ -106,7 +117,7 @@ def timeline(history: BoardHistory, sessions: tuple[Session, ...], conflicts: li
             state = s.outcome or "open (not closed yet)"
             lines.append(f"Session {when(s.start)} UTC · {who} · {state} · id {safe(s.id)[:12]}")
         for record in s.records:
-            lines.append(f"  {when(record.time)[11:]}  {describe(record)}")
+            lines.append(f"  {when(record.time)[11:]}  {describe(record, beyond)}")
         found = confirmed_in(s)
         if found:
             words = [

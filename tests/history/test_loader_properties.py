@@ -193,3 +193,21 @@ def test_a_value_no_float_holds_is_one_unreadable_record_not_a_lost_history(
     assert all(r.event is not None for r in readable)
     session = BoardSession(BOARD, SERIAL, _dictionary(dictionary_cache), lambda e, sid: None)
     assert session.resume(unfinished_session(logs, SERIAL)) == restored
+
+
+def test_the_history_command_flags_a_value_no_node_could_show(tmp_path, capsys):
+    """1e300 at S6 (an older version let it through) is shown with what it must be; a reading
+    no version writes is shown as unreadable; the rest reads as before."""
+    logs = _write(tmp_path, 3, "volts", 1e300, None)
+    lines = (logs / PROFILE / f"{SERIAL}.jsonl").read_text().splitlines()
+    odd = json.loads(lines[-1])
+    lines[-1] = json.dumps({**odd, "value": "RAW"}).replace('"RAW"', "NaN")
+    (logs / PROFILE / f"{SERIAL}.jsonl").write_text("\n".join(lines) + "\n")
+    assert main(["history", SERIAL, "--logs", str(logs)]) == 0
+    out = capsys.readouterr().out
+    assert (
+        "reading S6 = 1e+300 V (BENCH,DMM-9,0042,1.0 (unsettled), spread 0.9 V) — not a reading "
+        "of this board (wrong range or unit?)" in out
+    )
+    assert "reading (unreadable by this version; kept as is)" in out
+    assert out.count("not a reading of this board") == 1
