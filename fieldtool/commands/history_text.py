@@ -22,7 +22,7 @@ from fieldtool.core.history.fleet import FleetView
 from fieldtool.core.history.merge import MergeReport
 from fieldtool.core.history.sessions import Session, confirmed_in
 from fieldtool.core.measurement import DC, Measurement
-from fieldtool.core.words import count
+from fieldtool.core.words import conditions_words, count
 
 LIST_LIMIT = 15  # rows per list in text output; --json has them all
 
@@ -47,7 +47,7 @@ def value_text(m: Measurement) -> str:
 
 def _measurement_words(record: Record, m: Measurement) -> str:
     label = "reading" if record.kind == "reading" else "verification (after repair)"
-    what = "" if m.quantity == DC else f" {m.quantity.words}"
+    what = ("" if m.quantity == DC else f" {m.quantity.words}") + conditions_words(m.conditions)
     extra = f", spread {m.spread:.3g} {m.unit}" if m.spread is not None else ""
     ripple = record.fields.get("ripple_vpp")  # schema 1 kept a ripple beside the DC value
     if record.schema == 1 and isinstance(ripple, int | float):

@@ -11,7 +11,12 @@ import sys
 from fieldtool.commands.boards import PROFILE_HELP, profile_arg
 from fieldtool.commands.options import SEED, number, whole
 from fieldtool.core.diagnosis.faults import describe, parse_fault
+from fieldtool.core.errors import InputError, shown
+from fieldtool.core.measurement import DC, QUANTITIES, Quantity, quantity
+from fieldtool.core.units import parse_si
 from fieldtool.meters.connect import open_serial_meter
+from fieldtool.meters.errors import WrongMode
+from fieldtool.meters.modes import mode_of
 from fieldtool.meters.settings import (
     BAUD_RATES,
     COMMAND_DELAY_S,
@@ -55,6 +60,17 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     read.add_argument("--baud", type=BAUD, help="serial speed (default 9600, or the settings')")
     read.add_argument("--settings", help="meter settings TOML file")
     read.add_argument("--settle", action="store_true", help="wait for the reading to settle")
+    read.add_argument(
+        "--kind",
+        default=DC.name,
+        help=f"what to measure: {', '.join(QUANTITIES)} (default dc); a SCPI meter is set up"
+        " for it, a streaming meter's line says which it shows",
+    )
+    read.add_argument(
+        "--test-load",
+        metavar="OHMS",
+        help="the test load clipped from the output to ground, for --kind dc-loaded (e.g. 47k)",
+    )
     read.add_argument("--json", action="store_true", help="print JSON")
     read.set_defaults(handler=run_read)
 
@@ -122,23 +138,55 @@ def run_ports(args: argparse.Namespace) -> int:
     return 0
 
 
+def _kind(args: argparse.Namespace) -> tuple[Quantity, tuple[tuple[str, float], ...]]:
+    """The kind asked for with --kind and its conditions (--test-load)."""
+    kind = quantity(args.kind)
+    if kind.conditions and args.test_load is None:
+        raise InputError(f"--kind {kind.name} needs --test-load OHMS (the load clipped on)")
+    if not kind.conditions and args.test_load is not None:
+        raise InputError(f"--test-load goes with --kind dc-loaded, not --kind {kind.name}")
+    if not kind.conditions:
+        return kind, ()
+    try:
+        ohms = parse_si(args.test_load)
+    except ValueError:
+        raise InputError(
+            f"--test-load {shown(args.test_load)}: expected ohms such as 47k"
+        ) from None
+    if not ohms > 0:
+        raise InputError(f"--test-load {shown(args.test_load)}: a resistance above 0 ohms")
+    return kind, (("test_load_ohms", ohms),)
+
+
 def run_read(args: argparse.Namespace) -> int:
-    """Take one (optionally settled) reading and print it."""
+    """Take one (optionally settled) reading of the kind asked for and print it."""
+    kind, conditions = _kind(args)
     base = load_settings(args.settings) if args.settings else MeterSettings()
     settings = with_overrides(base, protocol=args.protocol, baud=args.baud)
     meter = open_serial_meter(args.port, settings)
     try:
         meter.connect()
+        meter.set_quantity(kind, conditions)
         reading = settle(meter.read, settings.settle) if args.settle else meter.read()
     finally:
         meter.close()
+    if reading.quantity != kind:
+        raise WrongMode(
+            f"the meter shows {reading.quantity.words}, not {kind.words}: turn its dial to "
+            f"{mode_of(kind).name}, or ask for --kind {reading.quantity.name}"
+        )
     out = {
-        "volts": reading.value,
+        "kind": reading.quantity.name,
+        "value": reading.value,
+        "unit": reading.unit,
+        "volts": reading.value if reading.unit == "V" else None,
         "overload": reading.overload,
         "spread": reading.spread,
         "count": reading.samples,
         "meter": meter.identity,
     }
+    if reading.conditions:
+        out["conditions"] = dict(reading.conditions)
     if args.settle:
         out["settled"] = reading.settled
     if args.json:
@@ -146,7 +194,7 @@ def run_read(args: argparse.Namespace) -> int:
     elif reading.overload:
         print("OL (overload)")
     else:
-        print(f"{reading.value:.6g} V")
+        print(f"{reading.value:.6g} {reading.unit}")
     return 0
 
 
@@ -179,6 +227,10 @@ def run_sim_meter(args: argparse.Namespace) -> int:
         meter.connect()
         extra = " --protocol stream" if args.protocol == "stream" else ""
         _say(f"ready; connect with: fieldtool read --port {server.port}{extra} --settle")
+        _say(
+            "other kinds: --kind ac-rms, current (probe on 'supply'), diode-test (after "
+            "'power off', probe on a diode), dc-loaded --test-load 47k (after 'load 47k')"
+        )
         server.console("nodes")
         _say(server.where())
         server.serve(sys.stdin.fileno())

@@ -7,7 +7,11 @@ import os
 import random
 import sys
 import tempfile
+from collections.abc import Callable
+from functools import partial
 from pathlib import Path
+
+import numpy as np
 
 from fieldtool.commands.boards import PROFILE_HELP, login_name, profile_arg
 from fieldtool.commands.meters import BAUD
@@ -17,11 +21,15 @@ from fieldtool.core import history as hist
 from fieldtool.core.circuit.library import user_profiles_dir
 from fieldtool.core.circuit.netlist import build_circuit
 from fieldtool.core.circuit.profile import Profile
+from fieldtool.core.diagnosis.dictionary import FaultDictionary
+from fieldtool.core.diagnosis.dictionary_cache import load_or_build
 from fieldtool.core.diagnosis.faults import Fault, catalog
 from fieldtool.core.errors import InputError
 from fieldtool.meters.settings import MeterSettings, load_settings, with_overrides
 
 DEMO_PROFILE = "tidegauge-apd-bias"  # a shipped profile, by name
+FINDABLE_SIGMAS = 3.0  # a fault is findable where a reading moves beyond 3× its spread
+Findable = Callable[[Fault], bool]
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:
@@ -153,14 +161,40 @@ def run_probe(args: argparse.Namespace) -> int:
     return _run(args, SessionRequest(profile, serial, meter, resume=resume), settings)
 
 
-def demo_fault(profile: Profile, seed: int) -> Fault:
-    """A fault drawn from the board's catalog by the seed, at the grosser end of its grid."""
+def demo_fault(profile: Profile, seed: int, findable: Findable | None = None) -> Fault:
+    """A fault drawn from the board's catalog by the seed, at the grosser end of its grid,
+    among those ``findable`` says the board's measurements can find (all, without it)."""
     rng = random.Random(seed)
     circuit, _ = build_circuit(profile)
     hyps = [h for h in catalog(profile, circuit) if h.target is not None]
+    if findable is not None:
+        hyps = [h for h in hyps if any(findable(f) for f in h.faults())]
     hyp = rng.choice(hyps)
     faults = hyp.faults()
-    return rng.choice(faults[len(faults) // 2 :])
+    gross = [f for f in faults[len(faults) // 2 :] if findable is None or findable(f)]
+    return rng.choice(gross or [f for f in faults if findable(f)])
+
+
+def demo_findable(profile: Profile, cache_dir: str | None = None) -> Findable:
+    """Which faults the demo may hide: those the board's measurement kinds can find, per
+    ``coverage`` of the board's fault dictionary (built and cached on first use)."""
+    dictionary = load_or_build(profile, cache_dir=cache_dir)
+    try:
+        from fieldtool.core.diagnosis.coverage import coverage
+    except ImportError:  # a diagnosis over DC nodes only: what DC volts can find
+        return partial(_dc_findable, dictionary)
+    cover = coverage(dictionary)
+    return lambda fault: cover.findable(fault.key, fault.severity)
+
+
+def _dc_findable(d: FaultDictionary, fault: Fault) -> bool:
+    """True when some node's DC reading moves beyond 3× its spread from healthy."""
+    rows = d.rows_of(fault.key)
+    if fault.severity is not None and len(rows) > 1:
+        rows = rows[[int(np.argmin(np.abs(np.log(d.row_severity[rows] / fault.severity))))]]
+    h = d.rows_of("healthy")[0]
+    spread = np.sqrt(d.sigma[rows] ** 2 + d.sigma[h] ** 2 + d.meter_sigma(d.mean[h]) ** 2)
+    return bool((np.abs(d.mean[rows] - d.mean[h]) > FINDABLE_SIGMAS * spread).any())
 
 
 def run_demo(args: argparse.Namespace) -> int:
@@ -169,7 +203,7 @@ def run_demo(args: argparse.Namespace) -> int:
     from fieldtool.tui.meter_strip import MeterChoice
 
     profile = profile_arg(args.profile)
-    fault = demo_fault(profile, args.seed)
+    fault = demo_fault(profile, args.seed, demo_findable(profile, getattr(args, "cache", None)))
     meter = MeterChoice("simulated", fault=fault, seed=args.seed)
     serial = f"DEMO-{args.seed:04d}"
     request = SessionRequest(profile, serial, meter, resume=None, demo_fault=fault)

@@ -15,6 +15,7 @@ confirmed failures that any store can provide.
 
 from __future__ import annotations
 
+import inspect
 from collections.abc import Callable, Mapping, Sequence
 from pathlib import Path
 
@@ -23,6 +24,7 @@ from fieldtool.core import history as hist
 from fieldtool.core.circuit.netlist import build_circuit
 from fieldtool.core.circuit.profile import Profile
 from fieldtool.core.circuit.reading_range import reading_problem
+from fieldtool.core.circuit.readouts.current import rail_sources, supply_index
 from fieldtool.core.diagnosis.dictionary import FaultDictionary
 from fieldtool.core.diagnosis.faults import Hypothesis
 from fieldtool.core.diagnosis.priors import Priors, fleet_priors
@@ -33,6 +35,10 @@ from fieldtool.core.history.sessions import Session, group_sessions, open_sessio
 from fieldtool.core.measurement import DC, Measurement, Quantity
 
 SNAPSHOT_SUSPECTS = 5  # how many suspects a diagnosis snapshot keeps
+SUPPLY, DRIVE = "supply", "drive"  # the rails a meter goes in series with
+# A diagnosis over every kind also learns whether the board is powered (its efforts change);
+# one over DC nodes only is given the readings at nodes.
+_DIAGNOSIS_OVER_KINDS = "powered" in inspect.signature(diagnose).parameters
 
 FailureCounts = Mapping[tuple[str, str], int]
 FailureSource = Callable[[str], FailureCounts]
@@ -110,7 +116,18 @@ class BoardSession:
         self.outcome: str | None = None
         self.resumed_from: str | None = None  # when the session picked up again was opened
         self.at_repairs: list[tuple[str, float]] = []  # top suspect (words, odds) at each repair
-        self.diagnosis: Diagnosis = diagnose(dictionary, (), priors)
+        self.powered = True  # False from a confirmed power-off step until powered again
+        self.before_repair: tuple[Measurement, ...] = ()  # the probing phase's, in order taken
+        circuit, _ = build_circuit(profile)
+        rails = ((SUPPLY,) if supply_index(circuit) is not None else ()) + (
+            (DRIVE,) if rail_sources(circuit) else ()
+        )
+        self.places: dict[str, tuple[str, ...]] = {
+            "node": tuple(dictionary.nodes),
+            "rail": rails,
+            "part": tuple(circuit.diode_refs),
+        }
+        self.diagnosis: Diagnosis = self._diagnose(())
 
     def _save(self, event: hist.Event) -> None:
         self._submit(event, self.session_id)
@@ -157,12 +174,22 @@ class BoardSession:
     # --- measurements --------------------------------------------------------------------
 
     def _known(self, m: Measurement) -> bool:
-        return m.quantity.taken_at == "node" and m.at in self.dictionary.nodes
+        return m.at in self.places[m.quantity.taken_at]
+
+    def _order(self, m: Measurement) -> tuple[int, int, str]:
+        where = self.places[m.quantity.taken_at]
+        kind = ("node", "rail", "part").index(m.quantity.taken_at)
+        return kind, where.index(m.at), m.quantity.name
 
     def measurements(self) -> tuple[Measurement, ...]:
-        """The current phase's measurements, in ladder order, as the diagnosis takes them."""
-        nodes = self.dictionary.nodes
-        return tuple(sorted(self.taken.values(), key=lambda m: nodes.index(m.at)))
+        """The current phase's measurements, nodes in ladder order, then rails, then parts."""
+        return tuple(sorted(self.taken.values(), key=self._order))
+
+    def power(self, powered: bool) -> Diagnosis:
+        """The board is powered again (True) or off, discharged and verified below the safe
+        level (False: the technician confirmed the checklist); the diagnosis's efforts follow."""
+        self.powered = powered
+        return self._rediagnose()
 
     def latest(self, at: str, quantity: Quantity = DC) -> Measurement | None:
         """This phase's measurement of ``quantity`` at ``at``, if one was taken."""
@@ -173,18 +200,30 @@ class BoardSession:
         return {m.at: m.value for m in self.taken.values() if m.quantity == DC}
 
     def take(self, *measurements: Measurement) -> Diagnosis:
-        """Take measurements (placed at nodes of this board): save each, then rank again.
+        """Take measurements (placed at a node, rail or part of this board, as the kind is
+        taken): save each, then rank again.
 
         Raises:
-            InputError: one is not placed, not at a node of this board, or beyond what any
-                node of this board could show (a wrong range or unit); nothing is saved.
+            InputError: one is not placed where its kind is taken on this board, is taken
+                with the board in the other power state (a diode test needs the power-off
+                step first; a powered kind needs the board powered again), or is beyond what
+                this board could show (a wrong range or unit); nothing is saved.
         """
         for m in measurements:
             if not self._known(m):
-                nodes = ", ".join(self.dictionary.nodes)
+                kind = m.quantity.taken_at
+                where = ", ".join(self.places[kind]) or "none on this board"
                 raise InputError(
-                    f"{m.quantity.words} at {m.at!r}: not a node of this board ({nodes})"
+                    f"{m.quantity.words} at {m.at!r}: not a {kind} of this board ({where})"
                 )
+            if m.quantity.powered != self.powered:
+                step = (
+                    "power the board again first"
+                    if self.powered is False
+                    else "take the power-off step first (off, discharged, every node verified "
+                    "below the safe level)"
+                )
+                raise InputError(f"{m.quantity.words} at {m.at}: {step}; not taken, nothing saved")
             problem = reading_problem(self.profile, m)
             if problem:
                 raise InputError(f"{problem}; not taken, nothing saved")
@@ -194,8 +233,32 @@ class BoardSession:
             self.taken[m.at, m.quantity.name] = m
         return self._rediagnose()
 
+    def _diagnose(self, measurements: Sequence[Measurement]) -> Diagnosis:
+        if _DIAGNOSIS_OVER_KINDS:
+            return diagnose(self.dictionary, measurements, self.priors, powered=self.powered)
+        at_nodes = [m for m in measurements if m.quantity.taken_at == "node"]
+        return diagnose(self.dictionary, at_nodes, self.priors)
+
+    def deciding(self, key: str) -> tuple[Measurement | None, float]:
+        """The probing reading that raised hypothesis ``key`` most (replayed in the order
+        taken) and its probability after them all: which measurement found the fault."""
+        taken = self.before_repair or tuple(
+            sorted(self.taken.values(), key=lambda m: m.taken or "")
+        )
+        best, best_rise, before = None, 0.0, self._odds(key, ())
+        for i, m in enumerate(taken):
+            after = self._odds(key, taken[: i + 1])
+            if after - before > best_rise:
+                best, best_rise = m, after - before
+            before = after
+        return best, before
+
+    def _odds(self, key: str, measurements: Sequence[Measurement]) -> float:
+        d = self._diagnose(measurements)
+        return float(sum(s.probability for s in d.suspects if s.key == key))
+
     def _rediagnose(self) -> Diagnosis:
-        self.diagnosis = diagnose(self.dictionary, self.measurements(), self.priors)
+        self.diagnosis = self._diagnose(self.measurements())
         return self.diagnosis
 
     # --- repair and outcome --------------------------------------------------------------
@@ -215,6 +278,8 @@ class BoardSession:
 
     def record_repair(self, *actions: hist.Action) -> None:
         """Save the diagnosis that led here and what was done; verification starts afresh."""
+        if self.phase == "probing":
+            self.before_repair = tuple(sorted(self.taken.values(), key=lambda m: m.taken or ""))
         self._save(self.snapshot())
         for action in actions:
             self._save(action)

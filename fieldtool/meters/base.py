@@ -6,12 +6,19 @@ capability: a class flag saying whether it has it and a method whose default doe
 
 - ``places_probe`` / ``place_probe(at)``: the tool says where the probe is (the simulated
   meter); on a real meter a person holds the probe and the call does nothing.
-- ``quantities`` / ``set_quantity(q)``: the kinds of reading the meter can be set to; asking
-  for another is a ``MeterSettingsError``. A SCPI meter sends its set-up command; others only
-  note the kind their samples carry.
+- ``quantities`` / ``set_quantity(q, conditions)``: the kinds of reading the meter can be set
+  to (a class default a driver may narrow per instance, from its settings); asking for another
+  is a ``MeterSettingsError``. A SCPI meter sends the kind's set-up command when it differs
+  from the one in force and checks the meter's error queue; a streaming meter notes the kind
+  and reads the one each line's unit shows; the simulated meter plays it. The conditions
+  (a test load's ohms for ``dc-loaded``) travel on each sample.
+- ``plays_board`` / ``set_board(powered, test_load_ohms)``: the tool switches the board on
+  and off and clips a test load on (the simulated board); a real board is handled by a
+  person and the call does nothing.
 
-A reading is a ``Measurement`` sample: the meter's quantity, the value, the meter as its
-source (its identity once it has said it, else its name), not placed and not settled.
+A reading is a ``Measurement`` sample: the meter's quantity and conditions, the value, the
+meter as its source (its identity once it has said it, else its name), not placed and not
+settled.
 """
 
 from __future__ import annotations
@@ -33,13 +40,15 @@ class Meter(ABC):
     """
 
     places_probe: ClassVar[bool] = False
-    quantities: ClassVar[frozenset[str]] = frozenset({DC.name})
+    plays_board: ClassVar[bool] = False
+    quantities: frozenset[str] = frozenset({DC.name})  # a driver may set its own per instance
     source_kind: ClassVar[str] = "meter"
 
     def __init__(self, name: str) -> None:
         self.name = name
         self.identity: str | None = None
         self.quantity: Quantity = DC
+        self.conditions: tuple[tuple[str, float], ...] = ()
 
     @property
     def source(self) -> Source:
@@ -73,18 +82,44 @@ class Meter(ABC):
     def place_probe(self, at: str | None) -> None:  # noqa: B027 (an optional capability)
         """Put the probe on a node (None: lift it). Does nothing unless ``places_probe``."""
 
-    def set_quantity(self, quantity: Quantity) -> None:
-        """Set the meter to measure ``quantity``.
+    def set_board(  # noqa: B027 (an optional capability)
+        self, powered: bool, test_load_ohms: float | None = None
+    ) -> None:
+        """Switch the board on or off, with a test load of ``test_load_ohms`` from the output
+        to ground (None: none). Does nothing unless ``plays_board``."""
+
+    def set_quantity(
+        self, quantity: Quantity, conditions: tuple[tuple[str, float], ...] = ()
+    ) -> None:
+        """Set the meter to measure ``quantity``; its samples carry ``conditions``.
 
         Raises:
-            MeterSettingsError: the meter cannot measure that kind.
+            MeterSettingsError: the meter cannot measure that kind, the conditions are not
+                the kind's settings, or the meter refused its set-up.
         """
         if quantity.name not in self.quantities:
             kinds = ", ".join(sorted(self.quantities))
             raise MeterSettingsError(
                 f"{self.identity or self.name} cannot measure {quantity.words}; it reads {kinds}"
             )
+        names = sorted(name for name, _ in conditions)
+        if names != sorted(quantity.conditions):
+            wanted = ", ".join(quantity.conditions) or "none"
+            raise MeterSettingsError(
+                f"{quantity.words} needs the settings {wanted}, not {', '.join(names) or 'none'}"
+            )
+        self._setup(quantity)
         self.quantity = quantity
+        self.conditions = tuple(conditions)
+
+    def _setup(self, quantity: Quantity) -> None:  # noqa: B027 (drivers that send a set-up)
+        """Put the meter in the mode for ``quantity`` (raise MeterSettingsError if refused)."""
+
+    def sample_of(self, value: float | None) -> Measurement:
+        """A sample of the meter's quantity (None: over range), stamped now."""
+        return self.stamped(
+            Measurement(None, self.quantity, value, self.source, conditions=self.conditions)
+        )
 
     def stamped(self, sample: Measurement) -> Measurement:
         """A sample with the time it was taken."""

@@ -4,6 +4,7 @@ FieldtoolError
 └── MeterError                  anything about getting a reading
     ├── MeterTransientError     try again: the next reading may well work
     │   ├── MeterTimeout        no complete line arrived in time
+    │   ├── WrongMode           the meter is in a mode no kind is read in (AC current)
     │   └── ReadingParseError   a typed reading that cannot be understood: type it again
     ├── MeterConnectionError    reconnect: plug the meter in or free its port, then connect
     │   ├── PortMissing         the port does not exist (unplugged, wrong name or address)
@@ -64,6 +65,12 @@ class MeterTimeout(MeterTransientError):
     """No complete line came from the meter before the timeout."""
 
     title = "Meter timeout"
+
+
+class WrongMode(MeterTransientError):
+    """The meter shows a mode no measurement kind is read in; turning its dial fixes it."""
+
+    title = "Meter in another mode"
 
 
 class ReadingParseError(MeterTransientError):

@@ -3,9 +3,14 @@
 The loop is kept apart from what handles its samples, in the way pyserial's ``ReaderThread``
 hands data to a ``Protocol``: a ``MeterLoop`` does the I/O and calls its ``MeterListener``
 with what happened: ``connected``, each ``received`` sample (placed at the node the probe was
-on), a reading that ``failed`` and will be tried again, and ``lost`` when the loop stops
-because the meter went away or is set up wrongly. ``run`` blocks, so the caller chooses the
-thread (a Textual thread worker in the terminal UI, ``start`` for a plain daemon thread).
+on), a reading that ``failed`` and will be tried again, a kind the meter ``refused`` (it goes
+on reading the kind it is in), and ``lost`` when the loop stops because the meter went away
+or is set up wrongly. ``run`` blocks, so the caller chooses the thread (a Textual thread
+worker in the terminal UI, ``start`` for a plain daemon thread).
+
+Where the probe is, which kind to read and whether the board is powered are asked for from any
+thread (``place_probe``, ``set_quantity``, ``set_board``) and handed to the meter on the loop's
+own thread before its next reading.
 """
 
 from __future__ import annotations
@@ -14,9 +19,9 @@ import threading
 from collections.abc import Callable
 
 from fieldtool.core.errors import FieldtoolError
-from fieldtool.core.measurement import Measurement, Source
+from fieldtool.core.measurement import DC, Measurement, Quantity, Source
 from fieldtool.meters.base import Meter
-from fieldtool.meters.errors import MeterTransientError
+from fieldtool.meters.errors import MeterSettingsError, MeterTransientError
 
 PAUSE_S = 0.2  # between samples; each read's own timeout bounds how long one can take
 _UNPLACED = object()
@@ -37,6 +42,9 @@ class MeterListener:
 
     def failed(self, error: MeterTransientError) -> None:
         """This reading failed (a timeout); the loop goes on and asks again."""
+
+    def refused(self, error: MeterSettingsError) -> None:
+        """The meter cannot be set to the kind asked for; it goes on reading the one it is in."""
 
     def lost(self, error: FieldtoolError) -> None:
         """The loop has stopped: the meter could not be opened, went away, or sends what is
@@ -63,11 +71,24 @@ class MeterLoop:
         self.listener = listener
         self.pause_s = pause_s
         self._at: str | None = None
+        self._kind: tuple[Quantity, tuple[tuple[str, float], ...]] = (DC, ())
+        self._board: tuple[bool, float | None] = (True, None)
         self._stop = threading.Event()
 
     def place_probe(self, at: str | None) -> None:
         """Where the probe is from now on (any thread); samples are placed there."""
         self._at = at
+
+    def set_quantity(
+        self, quantity: Quantity, conditions: tuple[tuple[str, float], ...] = ()
+    ) -> None:
+        """The kind to read from now on (any thread), with its conditions."""
+        self._kind = (quantity, tuple(conditions))
+
+    def set_board(self, powered: bool, test_load_ohms: float | None = None) -> None:
+        """Whether the board is powered and which test load is clipped on, from now on (any
+        thread; the simulated board)."""
+        self._board = (powered, test_load_ohms)
 
     def stop(self) -> None:
         """Ask the loop to end after the read under way; nothing more is told."""
@@ -107,7 +128,19 @@ class MeterLoop:
 
     def _read(self, meter: Meter) -> None:
         placed: object = _UNPLACED
+        kind: object = _UNPLACED
+        board: object = _UNPLACED
         while not self._stop.is_set():
+            if self._board != board:
+                board = self._board
+                if meter.plays_board:
+                    meter.set_board(*self._board)
+            if self._kind != kind:
+                kind = self._kind
+                try:
+                    meter.set_quantity(*self._kind)
+                except MeterSettingsError as exc:
+                    self._tell(self.listener.refused, exc)
             at = self._at
             if at != placed:
                 if meter.places_probe:

@@ -8,14 +8,20 @@ from dataclasses import dataclass, field, fields, replace
 from pathlib import Path
 
 from fieldtool.core.errors import shown
+from fieldtool.core.measurement import QUANTITIES, Quantity
 from fieldtool.core.plausible import Range
 from fieldtool.meters.errors import MeterSettingsError
+from fieldtool.meters.modes import DC_VOLTS, mode_of
 
 PROTOCOLS = ("scpi", "stream")
 TERMINATORS = ("\n", "\r\n", "\r")
+# The number (or OL), then the unit with what a meter prints after it: "V", "mV DC", "VAC",
+# "V~", "mA", "uA", "V DIODE", "V ->|", "Vpp" (``modes.unit_marking`` says which is which).
 DEFAULT_STREAM_REGEX = (
-    r"(?P<value>[-+]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][-+]?\d+)?|\bOL\b)\s*(?P<unit>[mkuµ]?V)?"
+    r"(?P<value>[-+]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][-+]?\d+)?|\bOL\b)\s*"
+    r"(?P<unit>[nmkuµμ]?[VA](?:\s*(?:AC|DC|~|=|⎓|DIODE|->\||▶\||p-?p)(?![A-Za-z]))?)?"
 )
+STREAM_KINDS = ("auto", *QUANTITIES)  # auto: the kind from the unit each line prints
 
 
 @dataclass(frozen=True)
@@ -32,6 +38,13 @@ class SettleRule:
     volts: float = 0.005
     timeout_s: float = 10.0
     trend: bool = True
+    # The fixed part of the band for a current (volts is for every reading in volts): a
+    # handheld's µA range resolves 0.1 µA, a few counts of it (common practice, no source).
+    amps: float = 1e-6
+
+    def fixed(self, unit: str) -> float:
+        """The fixed part of the band for a reading in ``unit`` ("V" or "A")."""
+        return self.amps if unit == "A" else self.volts
 
 
 @dataclass(frozen=True)
@@ -47,6 +60,20 @@ class MeterSettings:
     timeout_s: float = 2.0
     command_delay_s: float = 0.0  # pause between commands, for meters that drop fast ones
     settle: SettleRule = field(default_factory=SettleRule)
+    # [configure]: kind → its set-up command, "" where the meter has no such mode; kinds not
+    # listed use the mode's SCPI command (``modes``), dc-loaded the one for dc.
+    configure: tuple[tuple[str, str], ...] = ()
+    check_errors: bool = True  # ask SYST:ERR? after each set-up and refuse what it reports
+    stream_kind: str = "auto"  # a streaming meter's kind: from its unit, or always this one
+
+    def setup_command(self, quantity: Quantity) -> str:
+        """The SCPI command that sets the meter up for ``quantity`` ("" where it cannot)."""
+        given = dict(self.configure)
+        mode = mode_of(quantity)
+        for kind in (quantity.name, mode.kinds[0]):
+            if kind in given:
+                return given[kind]
+        return self.configure_command if mode is DC_VOLTS else mode.scpi
 
 
 def _check_type(where: str, key: str, value: object, kind: type) -> object:
@@ -75,6 +102,9 @@ def _build(cls: type, table: dict, where: str, prefix: str = "") -> dict:
             allowed = ", ".join(sorted(known))
             raise MeterSettingsError(f"{where}: unknown key '{name}' (known keys: {allowed})")
         kind = known[key].type
+        if key == "configure" and cls is MeterSettings:
+            kwargs[key] = _configure_table(value, where)
+            continue
         if kind == "SettleRule":
             if not isinstance(value, dict):
                 raise MeterSettingsError(f"{where}: key '{name}' must be a table [settle]")
@@ -84,6 +114,21 @@ def _build(cls: type, table: dict, where: str, prefix: str = "") -> dict:
             where, name, value, {"str": str, "int": int, "float": float, "bool": bool}[kind]
         )
     return kwargs
+
+
+def _configure_table(table: object, where: str) -> tuple[tuple[str, str], ...]:
+    """The ``[configure]`` table: a known kind → a set-up command (a string)."""
+    if not isinstance(table, dict):
+        raise MeterSettingsError(f"{where}: key 'configure' must be a table [configure]")
+    out = []
+    for kind, command in table.items():
+        if kind not in QUANTITIES:
+            known = ", ".join(QUANTITIES)
+            raise MeterSettingsError(
+                f"{where}: [configure] has unknown kind {shown(kind)} (known kinds: {known})"
+            )
+        out.append((kind, str(_check_type(where, f"configure.{kind}", command, str))))
+    return tuple(out)
 
 
 # Plausible values (see fieldtool.core.plausible), each with its reason.
@@ -100,6 +145,7 @@ SETTLE_TIMEOUT_S = Range(
 COMMAND_DELAY_S = Range(0.0, 10.0, "s", "slow meters need up to a few hundred milliseconds")
 SETTLE_PERCENT = Range(0.0, 100.0, "%", "percent of the reading: 0.2 means 0.2 %")
 SETTLE_VOLTS = Range(0.0, 1000.0, "V", "the fixed part of the settle band")
+SETTLE_AMPS = Range(0.0, 1.0, "A", "the fixed part of the settle band for a current")
 SETTLE_COUNT = (1, 100)  # readings in a row that must agree
 COMMAND_MAX_CHARACTERS = 100
 
@@ -122,6 +168,7 @@ def _problems(settings: MeterSettings) -> list[str]:
         ("settle.timeout_s", settings.settle.timeout_s, SETTLE_TIMEOUT_S),
         ("settle.percent", settings.settle.percent, SETTLE_PERCENT),
         ("settle.volts", settings.settle.volts, SETTLE_VOLTS),
+        ("settle.amps", settings.settle.amps, SETTLE_AMPS),
     ):
         problem = limit.problem(value)
         if problem:
@@ -129,9 +176,15 @@ def _problems(settings: MeterSettings) -> list[str]:
     low, high = SETTLE_COUNT
     if not low <= settings.settle.count <= high:
         found.append(f"settle.count must be {low} to {high}, not {shown(settings.settle.count)}")
+    if settings.stream_kind not in STREAM_KINDS:
+        found.append(
+            f"stream_kind must be one of {', '.join(STREAM_KINDS)}, "
+            f"not {shown(settings.stream_kind)}"
+        )
     for key, command in (
         ("read_command", settings.read_command),
         ("configure_command", settings.configure_command),
+        *((f"configure.{kind}", text) for kind, text in settings.configure),
     ):
         if len(command) > COMMAND_MAX_CHARACTERS or not all(" " <= c <= "~" for c in command):
             found.append(

@@ -2,7 +2,8 @@
 
 ``judge`` looks at the samples taken since the probe landed and says where the value stands:
 the latest value, how far the last ``rule.count`` samples spread, and whether the rule is met
-(``count`` in a row within percent·|v|/100 + volts and, with ``rule.trend``, the ``count``
+(``count`` in a row within percent·|v|/100 + volts (+ amps for a current) and, with
+``rule.trend``, the ``count``
 before them agreeing too at a mean no more than half a band away, so a slow creep is not
 called settled; ``count`` overloads in a row are a settled overload). The terminal UI calls it
 on every new sample; ``settle`` reads until it is met or the rule's timeout passes (``fieldtool
@@ -19,22 +20,22 @@ from fieldtool.core.measurement import Measurement
 from fieldtool.meters.settings import SettleRule
 
 
-def _band(values: Sequence[float], rule: SettleRule) -> float:
+def _band(values: Sequence[float], rule: SettleRule, unit: str) -> float:
     centre = sum(values) / len(values)
-    return rule.percent / 100.0 * abs(centre) + rule.volts
+    return rule.percent / 100.0 * abs(centre) + rule.fixed(unit)
 
 
-def _agree(values: Sequence[float], rule: SettleRule) -> bool:
+def _agree(values: Sequence[float], rule: SettleRule, unit: str) -> bool:
     """True when every value lies within the rule's band around their mean."""
-    return max(values) - min(values) <= _band(values, rule)
+    return max(values) - min(values) <= _band(values, rule, unit)
 
 
-def _steady(before: Sequence[float], window: Sequence[float], rule: SettleRule) -> bool:
+def _steady(before: Sequence[float], window: Sequence[float], rule: SettleRule, unit: str) -> bool:
     """True when the window before agrees too and the mean has not moved by half a band."""
-    if len(before) < rule.count or not _agree(before, rule):
+    if len(before) < rule.count or not _agree(before, rule, unit):
         return False
     shift = abs(sum(window) / len(window) - sum(before) / len(before))
-    return shift <= 0.5 * _band(window, rule)
+    return shift <= 0.5 * _band(window, rule, unit)
 
 
 def judge(samples: Sequence[Measurement], rule: SettleRule) -> Measurement | None:
@@ -43,7 +44,20 @@ def judge(samples: Sequence[Measurement], rule: SettleRule) -> Measurement | Non
     return _verdict(samples, rule) if samples else None
 
 
+def _same_kind(samples: Sequence[Measurement]) -> Sequence[Measurement]:
+    """The trailing run of samples of the last one's kind (the dial may have turned)."""
+    last = samples[-1]
+    start = len(samples) - 1
+    while start > 0 and (samples[start - 1].quantity, samples[start - 1].conditions) == (
+        last.quantity,
+        last.conditions,
+    ):
+        start -= 1
+    return samples[start:]
+
+
 def _verdict(samples: Sequence[Measurement], rule: SettleRule) -> Measurement:
+    samples = _same_kind(samples)
     last = samples[-1]
     recent = samples[-rule.count :]
     full = len(recent) == rule.count
@@ -52,9 +66,9 @@ def _verdict(samples: Sequence[Measurement], rule: SettleRule) -> Measurement:
     numbers = [s.value for s in recent if s.value is not None]
     earlier = [s.value for s in samples[-2 * rule.count : -rule.count] if s.value is not None]
     spread = max(numbers) - min(numbers) if len(numbers) > 1 else None
-    ok = full and len(numbers) == rule.count and _agree(numbers, rule)
+    ok = full and len(numbers) == rule.count and _agree(numbers, rule, last.unit)
     if ok and rule.trend:
-        ok = _steady(earlier, numbers, rule)
+        ok = _steady(earlier, numbers, rule, last.unit)
     return replace(last, spread=spread, settled=ok, samples=len(samples))
 
 

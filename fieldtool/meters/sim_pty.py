@@ -1,9 +1,13 @@
 """A simulated meter served on a pseudo-terminal, so the whole serial path runs without hardware.
 
-The far end of the pty behaves as a SCPI meter (answers ``*IDN?``, ``CONF:VOLT:DC``, ``READ?``,
-``MEAS:VOLT:DC?``, ``SYST:ERR?``; unknown commands go to the SCPI error queue) or as a streaming
-meter (a "value unit" line at a fixed rate). The person running it says where the probe is by
-typing a node name on the console.
+The far end of the pty behaves as a SCPI meter (answers ``*IDN?``, the set-up of every kind,
+``CONF:VOLT:DC``, ``CONF:VOLT:AC``, ``CONF:CURR:DC``, ``CONF:DIOD`` and ``CONF:VOLT:PTP``, and
+their ``MEAS:...?`` forms, ``READ?``, ``SYST:ERR?``; unknown commands go to the SCPI error
+queue) or as a streaming meter (a "value unit" line at a fixed rate, its unit marked with the
+mode: ``V``, ``V AC``, ``uA``, ``V DIODE``, ``mV pp``). The person running it says on the
+console where the probe is (a node, a rail or a diode), switches the board (``power off``,
+``power on``), clips a test load on (``load 47k``, ``load off``) and, for a streaming meter,
+turns the dial (``dc``, ``ac-rms``, ``current``, ``diode-test``, ``ripple-pp``).
 """
 
 from __future__ import annotations
@@ -15,10 +19,21 @@ import time
 import tty
 from collections import deque
 from collections.abc import Callable
+from functools import partial
 
 from fieldtool.core.errors import InputError
-from fieldtool.core.measurement import Measurement
+from fieldtool.core.measurement import (
+    AC_RMS,
+    CURRENT,
+    DC,
+    DIODE_TEST,
+    RIPPLE_PP,
+    Measurement,
+    Quantity,
+)
+from fieldtool.core.units import parse_si
 from fieldtool.meters.errors import UnknownNode
+from fieldtool.meters.modes import AC_VOLTS, DIODE, PEAK_TO_PEAK, mode_of
 from fieldtool.meters.simulated import SimulatedMeter
 
 # SCPI-99 error numbers (SCPI Consortium, SCPI 1999.0 Vol. 2, ch. 21; from memory).
@@ -41,7 +56,19 @@ _SHORT = {
     "INITIATE": "INIT",
     "REMOTE": "REM",
     "LOCAL": "LOC",
+    "CURRENT": "CURR",
+    "DIODE": "DIOD",
+    "PTPEAK": "PTP",
 }
+# The kind each SCPI function selects (the set-up commands of ``modes``).
+SCPI_FUNCTIONS: dict[str, Quantity] = {
+    "VOLT:DC": DC,
+    "VOLT:AC": AC_RMS,
+    "CURR:DC": CURRENT,
+    "DIOD": DIODE_TEST,
+    "VOLT:PTP": RIPPLE_PP,
+}
+DIAL_WORDS: dict[str, Quantity] = {q.name: q for q in (DC, AC_RMS, CURRENT, DIODE_TEST, RIPPLE_PP)}
 _LIFT_WORDS = {"lift", "off", "none", "-"}
 _QUIT_WORDS = {"quit", "exit", "q"}
 _HELP_WORDS = {"help", "?", "nodes"}
@@ -55,7 +82,7 @@ def canonical_header(command: str) -> str:
     header = command.strip().split(maxsplit=1)[0].upper().lstrip(":") if command.strip() else ""
     query = header.endswith("?")
     parts = [_SHORT.get(p, p) for p in header.rstrip("?").split(":")]
-    if parts[0] in ("CONF", "MEAS") and parts[1:] == ["VOLT"]:
+    if parts[0] in ("CONF", "MEAS") and parts[1:] in (["VOLT"], ["CURR"]):
         parts.append("DC")
     if parts == ["SYST", "ERR", "NEXT"]:
         parts = ["SYST", "ERR"]
@@ -69,15 +96,23 @@ def scpi_number(sample: Measurement) -> str:
     return f"{sample.value:+.8E}"
 
 
+_MARKS = {AC_VOLTS.name: " AC", DIODE.name: " DIODE", PEAK_TO_PEAK.name: " pp"}
+
+
 def stream_text(sample: Measurement) -> str:
-    """A sample as a 5-digit meter's logging line: ``125.77 V``, ``12.345 mV`` or ``OL``."""
+    """A sample as a 5-digit meter's logging line, the unit marked with the mode:
+    ``125.77 V``, ``12.345 mV``, ``6.985 V AC``, ``280.40 uA``, ``0.5808 V DIODE``,
+    ``6.5090 mV pp``; ``OL`` (with the unit where it is not DC volts)."""
+    mark = _MARKS.get(mode_of(sample.quantity).name, "")
     if sample.value is None:
-        return "OL"
+        return "OL" if sample.quantity.unit == "V" and not mark else f"OL {sample.unit}{mark}"
     value, unit = sample.value, sample.unit
-    if abs(value) < 1.0:
-        value, unit = value * 1000.0, "m" + unit
+    for prefix in ("m", "u"):
+        if abs(value) >= 1.0 or value == 0.0 or sample.unit == "V" and prefix == "u":
+            break
+        value, unit = value * 1000.0, prefix + sample.unit
     digits = max(0, 5 - len(str(int(abs(value)))))
-    return f"{value:.{digits}f} {unit}"
+    return f"{value:.{digits}f} {unit}{mark}"
 
 
 class ScpiResponder:
@@ -98,6 +133,14 @@ class ScpiResponder:
     def _measure(self) -> str:
         self.last = self.meter.read()
         return scpi_number(self.last)
+
+    def _configure(self, quantity: Quantity) -> None:
+        """Turn the meter to ``quantity`` (DC volts under a clipped test load stays DC)."""
+        self.meter.set_quantity(quantity)
+
+    def _measure_as(self, quantity: Quantity) -> str:
+        self._configure(quantity)
+        return self._measure()
 
     def _fetch(self) -> str | None:
         if self.last is None:
@@ -131,15 +174,16 @@ class ScpiResponder:
             "*OPC?": lambda: "1",
             "*RST": self._reset,
             "*CLS": self.errors.clear,
-            "CONF:VOLT:DC": lambda: None,
             "READ?": self._measure,
-            "MEAS:VOLT:DC?": self._measure,
             "INIT": self._initiate,
             "FETC?": self._fetch,
             "SYST:ERR?": self._next_error,
             "SYST:REM": lambda: None,
             "SYST:LOC": lambda: None,
         }
+        for function, quantity in SCPI_FUNCTIONS.items():
+            table[f"CONF:{function}"] = partial(self._configure, quantity)
+            table[f"MEAS:{function}?"] = partial(self._measure_as, quantity)
         action = table.get(header)
         if action is None:
             self.error(UNDEFINED_HEADER)
@@ -179,19 +223,42 @@ class PtyMeter:
         node = self.meter.probe
         return "probe lifted" if node is None else f"probe on {self.meter.describe_node(node)}"
 
+    def board_state(self) -> str:
+        """The meter's mode and the board's state, in words."""
+        m = self.meter
+        load = f", test load {m.test_load_ohms:g} Ω clipped on" if m.test_load_ohms else ""
+        power = "board powered" if m.powered else "board off and discharged"
+        return f"meter on {mode_of(m.quantity).name}, {power}{load}"
+
     def console(self, line: str) -> None:
-        """Act on one console line: a node, ``lift``, ``nodes`` or ``quit``."""
+        """Act on one console line: a place, ``lift``, a dial position, ``power on|off``,
+        ``load OHMS|off``, ``status``, ``nodes`` or ``quit``."""
         word = line.strip()
+        words = word.lower().split()
         if not word:
             self.say(self.where())
         elif word.lower() in _QUIT_WORDS:
             self.running = False
         elif word.lower() in _HELP_WORDS:
-            self.say("nodes: " + ", ".join(self.meter.describe_node(n) for n in self.meter.nodes))
-            self.say("type a node or test point (or GND) to move the probe, 'lift' or 'quit'")
+            self.say(self.meter.places())
+            self.say(
+                "type a place to move the probe, 'lift', 'power off' / 'power on', "
+                "'load 47k' / 'load off', a dial position (" + ", ".join(DIAL_WORDS) + "), "
+                "'status' or 'quit'"
+            )
         elif word.lower() in _LIFT_WORDS:
             self.meter.place_probe(None)
             self.say(self.where())
+        elif word.lower() == "status":
+            self.say(f"{self.where()}; {self.board_state()}")
+        elif word.lower() in DIAL_WORDS:
+            self.meter.set_quantity(DIAL_WORDS[word.lower()])
+            self.say(self.board_state())
+        elif words[0] == "power" and words[1:] in (["on"], ["off"]):
+            self.meter.set_board(words[1] == "on", self.meter.test_load_ohms)
+            self.say(self.board_state())
+        elif words[0] == "load" and len(words) == 2:
+            self._clip(word.split()[1])
         else:
             try:
                 self.meter.place_probe(word)
@@ -199,6 +266,23 @@ class PtyMeter:
                 self.say(exc.message)
                 return
             self.say(self.where())
+
+    def _clip(self, value: str) -> None:
+        """Clip a test load of ``value`` ohms from the output to ground, or take it off."""
+        if value in ("off", "none", "-"):
+            ohms = None
+        else:
+            try:
+                ohms = parse_si(value)
+            except ValueError:
+                self.say(f"'{value}' is not a resistance; type e.g. 'load 47k' or 'load off'")
+                return
+            if not ohms > 0:
+                self.say("a test load needs a resistance above 0; type e.g. 'load 47k'")
+                return
+        self.say("solving the board with the test load..." if ohms else "test load off")
+        self.meter.set_board(self.meter.powered, ohms)
+        self.say(self.board_state())
 
     # -- the serial side ------------------------------------------------------------------
 

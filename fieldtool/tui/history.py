@@ -15,7 +15,7 @@ from fieldtool.core.errors import FieldtoolError
 from fieldtool.core.history.fleet import confirmed_failures
 from fieldtool.core.history.sessions import group_sessions
 from fieldtool.core.measurement import DC
-from fieldtool.core.words import count
+from fieldtool.core.words import conditions_words, count
 from fieldtool.tui.view import volts_text
 
 
@@ -31,7 +31,7 @@ def event_words(record: hist.Record) -> str:
         return f"session opened{who} (fieldtool {e.tool_version})"
     if isinstance(e, hist.Reading):  # verification included
         m = e.measurement
-        what = "" if m.quantity == DC else f" {m.quantity.words}"
+        what = ("" if m.quantity == DC else f" {m.quantity.words}") + conditions_words(m.conditions)
         value = "OL" if m.value is None else f"{volts_text(m.value)} {m.unit}"
         spread = f" ±{volts_text(m.spread / 2, 2)}" if m.spread else ""
         source = f"{m.source}{'' if m.settled else hist.UNSETTLED}"

@@ -22,10 +22,11 @@ from textual.widgets import Sparkline, Static
 from fieldtool.core.circuit.profile import Profile
 from fieldtool.core.diagnosis.faults import Fault
 from fieldtool.core.errors import FieldtoolError
-from fieldtool.core.measurement import Measurement, Source
+from fieldtool.core.measurement import DC, Measurement, Source
+from fieldtool.core.words import reading_words
 from fieldtool.meters.base import Meter
 from fieldtool.meters.connect import open_serial_meter
-from fieldtool.meters.errors import MeterTransientError
+from fieldtool.meters.errors import MeterSettingsError, MeterTransientError
 from fieldtool.meters.loop import MeterListener, MeterLoop
 from fieldtool.meters.settings import MeterSettings
 from fieldtool.meters.settle import judge
@@ -108,6 +109,10 @@ class MeterLink(MeterListener):
         """Tell the screen a reading failed; the loop goes on."""
         self._post(self.Problem(self, error, lost=False))
 
+    def refused(self, error: MeterSettingsError) -> None:
+        """Tell the screen the meter cannot be set to that kind; it reads on in its own."""
+        self._post(self.Problem(self, error, lost=False))
+
     def lost(self, error: FieldtoolError) -> None:
         """Tell the screen the loop stopped."""
         self._post(self.Problem(self, error, lost=True))
@@ -117,6 +122,7 @@ class MeterStrip(Horizontal):
     """Live meter value, settling state and recent history, as the screen tells them."""
 
     probe_node: reactive[str | None] = reactive(None)
+    kind_words: reactive[str] = reactive("")  # the kind asked for, "" for DC volts
     status: reactive[str] = reactive("")
 
     def __init__(self, choice: MeterChoice, **kwargs) -> None:
@@ -198,6 +204,10 @@ class MeterStrip(Horizontal):
         """The probe moved: the value must settle again."""
         self.reset_window()
 
+    def watch_kind_words(self) -> None:
+        """The dial turned: the value must settle again."""
+        self.reset_window()
+
     def watch_status(self) -> None:
         self._show()
 
@@ -206,6 +216,8 @@ class MeterStrip(Horizontal):
             return
         s = self.settle
         where = f"probe on {self.probe_node}" if self.probe_node else "probe lifted"
+        if self.kind_words:
+            where = f"{self.kind_words} · {where}"
         if self.choice.kind == "typed":
             first = Content.assemble(("typed readings", "bold"), f" · {where}")
             keys = "type a value (t or a digit), Enter takes it"
@@ -213,14 +225,22 @@ class MeterStrip(Horizontal):
             first = Content.assemble(("—", "bold"), f" · {where}")
             keys = "waiting for the meter"
         else:
-            value = "OL" if s.overload else f"{volts_text(s.value)} {s.unit}"
+            if s.quantity == DC or s.overload:
+                value = "OL" if s.overload else f"{volts_text(s.value)} {s.unit}"
+            else:
+                value = reading_words(s.value, s.unit)
             if s.settled:
                 mark = ("● settled", "bold $text-success")
                 keys = "a takes it"
             else:
                 mark = ("◌ settling", "bold $text-warning")
                 keys = "wait for ●, or A takes it unsettled"
-            spread = f" ±{volts_text(s.spread / 2, 2)}" if s.spread else ""
+            spread = ""
+            if s.spread:
+                half = s.spread / 2
+                spread = (
+                    f" ±{volts_text(half, 2) if s.quantity == DC else reading_words(half, s.unit)}"
+                )
             first = Content.assemble((value, "bold"), "  ", mark, f"{spread} · {where}")
         second = Content.styled(f"{keys} · {self.status}", "$text-muted")
         self.query_one("#meter-readout", Static).update(first + Content("\n") + second)

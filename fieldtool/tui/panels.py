@@ -23,6 +23,7 @@ class SuspectsPanel(Static):
         super().__init__(**kwargs)
         self.labels = labels
         self.diagnosis: Diagnosis | None = None
+        self.glance = Content("")  # which kinds are worth taking at the selected node
 
     def on_mount(self) -> None:
         """Title the panel."""
@@ -32,9 +33,11 @@ class SuspectsPanel(Static):
         """Bars follow the panel's width."""
         self.refresh_text()
 
-    def show(self, diagnosis: Diagnosis) -> None:
-        """Show a new diagnosis."""
+    def show(self, diagnosis: Diagnosis, glance: Content | None = None) -> None:
+        """Show a new diagnosis (and which kinds are worth taking at the selected node)."""
         self.diagnosis = diagnosis
+        if glance is not None:
+            self.glance = glance
         self.refresh_text()
 
     def next_line(self) -> Content:
@@ -42,6 +45,14 @@ class SuspectsPanel(Static):
         d = self.diagnosis
         if d is None:
             return Content("")
+        best = getattr(d, "next_measurement", None)  # on a diagnosis over every kind
+        if best is not None:
+            bits = f" {best.gain_bits:.2f} bits "
+            if len(best.words) + len(bits) + 10 > self.size.width:
+                bits = " "  # a narrow panel keeps the words on as few lines as it can
+            return Content.assemble(
+                "Next ▸ ", (best.words, "bold $text-accent"), bits, ("[n]", "bold")
+            )
         if d.next_probe is None:
             top = d.suspects[0] if d.suspects else None
             if top is not None and top.probability >= 0.9:
@@ -71,6 +82,8 @@ class SuspectsPanel(Static):
                 Content.styled(f"⚠ No single fault fits: {d.fit.text}", "bold $text-error")
             )
         lines.insert(0, self.next_line())
+        if self.glance:
+            lines.insert(1, self.glance)
         notes = [Content.styled(f"≈ {g.text}", "$text-warning") for g in d.ambiguity]
         room = max(3, self.size.height - len(lines) - len(notes) - 1)
         name_w = min(24, max(9, width - 17))

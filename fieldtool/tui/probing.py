@@ -28,6 +28,7 @@ from fieldtool.core.history import Action
 from fieldtool.core.measurement import Measurement
 from fieldtool.core.session import BoardSession
 from fieldtool.core.times import now_utc
+from fieldtool.core.units import format_si
 from fieldtool.core.words import count
 from fieldtool.meters.loop import MeterLoop
 from fieldtool.meters.parse import parse_typed
@@ -40,7 +41,9 @@ from fieldtool.tui.dialogs import (
     part_choices,
 )
 from fieldtool.tui.history import FleetScreen, HistoryScreen
+from fieldtool.tui.kinds import STRIP_NAMES, glance, suggested
 from fieldtool.tui.ladder import LadderView
+from fieldtool.tui.measuring import MEASURING_BINDINGS, MEASURING_PALETTE, MeasuringFlow
 from fieldtool.tui.meter_strip import MeterChoice, MeterLink, MeterStrip, open_meter
 from fieldtool.tui.node_table import NodeTable
 from fieldtool.tui.palette import Commands
@@ -54,11 +57,12 @@ REPAIR_WORDS = "Record a repair: part, fault mode found, what was done, part use
 SAFETY_DELAY_S = 0.15  # let the panels repaint before the safety figures are recomputed
 
 
-class ProbingScreen(Commands, Screen):
+class ProbingScreen(MeasuringFlow, Commands, Screen):
     """Guided probing of one board, then repair and verification."""
 
     PALETTE = (
-        ("Jump to the next probe", "Select the node the diagnosis suggests", "next_probe"),
+        ("Go to the next measurement", "The node and kind the diagnosis suggests", "next_probe"),
+        *MEASURING_PALETTE,
         ("Accept the settled reading", "Take the meter's settled value at this node", "accept"),
         ("Type a reading", "Enter a value by hand", "type_reading"),
         ("Record a repair", "Designator, what was done, part used, note", "repair"),
@@ -77,7 +81,8 @@ class ProbingScreen(Commands, Screen):
             self.reveal = reveal
 
     BINDINGS = [
-        Binding("n", "next_probe", "Next node", tooltip="Jump to the node worth probing next"),
+        Binding("n", "next_probe", "Next", tooltip="Go to the measurement worth taking next"),
+        *MEASURING_BINDINGS,
         Binding("a", "accept", "Accept settled", tooltip="Take the settled meter value here"),
         Binding("A", "accept(False)", "Accept live", show=False, tooltip=ACCEPT_LIVE),
         Binding("t", "type_reading", "Type", tooltip=TYPE_WORDS),
@@ -112,6 +117,7 @@ class ProbingScreen(Commands, Screen):
         self.figures_for: dict | None = None
         self._safety_timer = None
         self.last_problem = ""
+        self.init_measuring()
 
     # --- layout --------------------------------------------------------------------------
 
@@ -156,19 +162,36 @@ class ProbingScreen(Commands, Screen):
         """The node the cursor is on."""
         return self.query_one(NodeTable).selected_node
 
+    def select_node(self, node: str) -> None:
+        """Move the cursor to ``node``."""
+        self.query_one(NodeTable).select(node)
+
+    def measuring_changed(self) -> None:
+        """The kind or the board's power changed: show it."""
+        strip = self.query_one(MeterStrip)
+        q = self.measuring.quantity
+        strip.kind_words = STRIP_NAMES.get(q.name, "")
+        strip.probe_node = self.place
+        self.query_one("#entry", Input).placeholder = entry_hint(self.place, q)
+        self.refresh_all()
+
     def title_text(self) -> Content:
-        """Board, phase, meter and history state in one line."""
+        """Board, phase, power, meter and history state in one line."""
         s = self.session
         read = len({at for at, _ in s.taken})  # nodes measured in this phase
         total = len(s.dictionary.nodes)
         phase = "VERIFYING" if s.phase == "verifying" else "probing"
         unsaved = self.unsaved
         saved = Content.styled(f" · ⚠ {unsaved} unsaved", "bold $text-error") if unsaved else ""
+        power = Content.styled(" · board OFF", "bold $text-error") if not s.powered else ""
+        load = f" · {format_si(self.load_on)}Ω load on" if self.load_on else ""
         return Content.assemble(
             (s.serial, "bold"),
             f" · {s.profile.name} · ",
             (phase, "bold $text-accent"),
             f" · {read}/{total} read",
+            power,
+            load,
             saved,
         )
 
@@ -183,13 +206,15 @@ class ProbingScreen(Commands, Screen):
         values = s.volts_by_node()
         table = self.query_one(NodeTable)
         table.show(values)
-        self.query_one(SuspectsPanel).show(s.diagnosis)
+        self.query_one(SuspectsPanel).show(s.diagnosis, glance(s, self.selected))
         ladder = self.query_one(LadderView)
         ladder.states = {n: table.verdict_for(n).state for n in s.dictionary.nodes}
         ladder.ranks = ladder_ranks(self.session.diagnosis)
         ladder.selected = self.selected
         self.query_one("#title", Static).update(self.title_text())
-        self.query_one("#entry", Input).placeholder = entry_hint(self.selected)
+        self.query_one("#entry", Input).placeholder = entry_hint(
+            self.place, self.measuring.quantity
+        )
         self._update_safety()
 
     def _hazard(self, node: str | None) -> bool:
@@ -229,10 +254,14 @@ class ProbingScreen(Commands, Screen):
     def _moved(self, message: NodeTable.Selected) -> None:
         node = message.node
         self.query_one(LadderView).selected = node
-        self.query_one(MeterStrip).probe_node = node
-        if self._meter is not None:
-            self._meter.place_probe(node)
-        self.query_one("#entry", Input).placeholder = entry_hint(node)
+        if self.measuring.quantity.taken_at == "node":
+            self.query_one(MeterStrip).probe_node = node
+            if self._meter is not None:
+                self._meter.place_probe(node)
+        self.query_one(SuspectsPanel).show(self.session.diagnosis, glance(self.session, node))
+        self.query_one("#entry", Input).placeholder = entry_hint(
+            self.place, self.measuring.quantity
+        )
         self.query_one(SafetyStrip).show(self.figures, node, self._hazard(node))
 
     def on_key(self, event) -> None:
@@ -248,11 +277,11 @@ class ProbingScreen(Commands, Screen):
 
     @on(Input.Submitted, "#entry")
     def _typed(self, event: Input.Submitted) -> None:
-        node = self.selected
+        node = self.place
         if node is None:
             return
         try:
-            typed = parse_typed(event.value)
+            typed = parse_typed(event.value, self.measuring.quantity, self.measuring.conditions)
         except FieldtoolError as exc:
             self.app.push_screen(ErrorDialog(exc))
             return  # the text stays in the entry to be corrected
@@ -270,7 +299,7 @@ class ProbingScreen(Commands, Screen):
             self._meter.stop()
         self._link = MeterLink(self.query_one(MeterStrip))
         self._meter = MeterLoop(partial(open_meter, self.choice, self.session.profile), self._link)
-        self._meter.place_probe(self.selected)
+        self.tell_meter()
         self.query_one(MeterStrip).follow(self._link, self.choice)
         self._meter_worker = self.run_worker(
             self._meter.run, thread=True, exclusive=True, group="meter", exit_on_error=False
@@ -285,7 +314,7 @@ class ProbingScreen(Commands, Screen):
     def on_meter_link_connected(self, message: MeterLink.Connected) -> None:
         """The meter is there (again, or for the first time)."""
         self.last_problem = ""
-        self.query_one(MeterStrip).probe_node = self.selected
+        self.query_one(MeterStrip).probe_node = self.place
         self.refresh_bindings()
 
     def on_meter_link_problem(self, message: MeterLink.Problem) -> None:
@@ -323,14 +352,12 @@ class ProbingScreen(Commands, Screen):
         if action == "reconnect":
             return strip is not None and self.choice.kind != "typed" and not strip.live
         if action == "next_probe":
-            return self.session.diagnosis.next_probe is not None or None
+            return suggested(self.session) is not None or None
         return True
 
     def action_next_probe(self) -> None:
-        """Jump to the suggested next node."""
-        node = self.session.diagnosis.next_probe
-        if node is not None:
-            self.query_one(NodeTable).select(node)
+        """Go to the suggested next measurement."""
+        self.action_next_measurement()
 
     def action_move(self, step: int) -> None:
         """Move along the ladder."""
@@ -348,7 +375,14 @@ class ProbingScreen(Commands, Screen):
         if settled_only and not s.settled:
             self.notify("Not settled yet; wait for ● settled, or press A to take it anyway.")
             return
-        self.take(s.placed(strip.probe_node or self.selected))
+        if s.quantity != self.measuring.quantity:
+            self.notify(
+                f"The meter shows {s.quantity.words}, not {self.measuring.quantity.words}: "
+                "turn its dial, or press k to choose the kind it shows.",
+                severity="warning",
+            )
+            return
+        self.take(s.placed(self.place))
         strip.reset_window()
 
     def action_type_reading(self) -> None:

@@ -8,8 +8,10 @@ from dataclasses import dataclass
 from fieldtool.core.circuit.spec import display_name
 from fieldtool.core.diagnosis.faults import Fault, describe
 from fieldtool.core.diagnosis.ranking import Diagnosis
+from fieldtool.core.measurement import DC, Quantity
 from fieldtool.core.plausible import Range
 from fieldtool.core.session import BoardSession
+from fieldtool.core.words import conditions_words, reading_words
 
 # Each state has a symbol and a word, so it never rests on colour alone.
 UNREAD, IN_BAND, HIGH, LOW, OVERLOAD = "unread", "in band", "high", "low", "over range"
@@ -141,9 +143,20 @@ def ladder_ranks(diagnosis: Diagnosis) -> dict[str, int]:
     return ranks
 
 
-def entry_hint(node: str | None) -> str:
-    """What to type into the reading entry at ``node``."""
-    return f"volts at {node}: 12.9, 890mV, 1.2kV or OL, then Enter"
+_EXAMPLES = {
+    "current": "0.35mA, 350uA or OL",
+    "diode-test": "0.61, 610mV or OL",
+    "ripple-pp": "31mV, 0.031 or OL",
+    "ac-rms": "9mV, 0.009 or OL",
+}
+
+
+def entry_hint(at: str | None, quantity: Quantity = DC) -> str:
+    """What to type into the reading entry for ``quantity`` at ``at``."""
+    if quantity == DC:
+        return f"volts at {at}: 12.9, 890mV, 1.2kV or OL, then Enter"
+    examples = _EXAMPLES.get(quantity.name, "12.9, 890mV or OL")
+    return f"{quantity.words} at {at}: {examples}, then Enter"
 
 
 def reveal_text(session: BoardSession, fault: Fault) -> str:
@@ -164,4 +177,15 @@ def reveal_text(session: BoardSession, fault: Fault) -> str:
         after = f"Readings after the last repair: {read or 'none'}."
     else:
         after = f"No repair was recorded. Readings: {read or 'none'}."
-    return f"The hidden fault was {hidden}. {verdict}{ranked} {after}"
+    return f"The hidden fault was {hidden}. {verdict}{ranked}{found_by(session, fault)} {after}"
+
+
+def found_by(session: BoardSession, fault: Fault) -> str:
+    """Which reading found the hidden fault (raised its odds most), in a sentence with a
+    leading space; "" when none raised it."""
+    m, odds = session.deciding(fault.key)
+    if m is None:
+        return ""
+    value = "OL" if m.value is None else reading_words(m.value, m.unit)
+    what = m.quantity.words + conditions_words(m.conditions)
+    return f" The reading that found it: {what} at {m.at} = {value} ({odds:.0%} after all)."

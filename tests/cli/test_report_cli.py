@@ -11,6 +11,7 @@ import pytest
 from fieldtool.cli import main
 from fieldtool.core import history as h
 from fieldtool.core.circuit.profile import load_profile
+from fieldtool.core.measurement import CURRENT, DC_LOADED, DIODE_TEST, RIPPLE_PP, TYPED, Measurement
 from fieldtool.core.names import file_name_problem
 from fieldtool.core.report.content import expectations_for
 from tests.conftest import ROOT
@@ -237,3 +238,35 @@ def test_a_report_that_cannot_be_written_leaves_no_file(tmp_path, expected, name
     assert run.returncode == 2, run.stderr
     assert run.stderr.count("\n") == 1 and "disk full; nothing was written" in run.stderr
     assert list(out_dir.iterdir()) == []
+
+
+def test_readings_beyond_dc_volts_are_in_the_report_and_the_history(tmp_path, capsys, expected):
+    """Every kind the session took is shown: the report lists each kind, its settings and its
+    value; `history` names the kind and the test load."""
+    logs = tmp_path / "logs"
+    loaded = Measurement(
+        "OUT", DC_LOADED, 11.2, TYPED, settled=True, conditions=(("test_load_ohms", 1e5),)
+    )
+    events = [
+        h.SessionOpened(technician="ana", profile_hash="x", tool_version="0.1.0"),
+        reading("OUT", expected.get("OUT").volts),
+        h.Reading(Measurement("supply", CURRENT, 3.1e-4, TYPED, settled=True)),
+        h.Reading(loaded),
+        h.Reading(Measurement("D2", DIODE_TEST, None, TYPED, settled=True)),
+        h.Reading(Measurement("P2", RIPPLE_PP, 0.031, TYPED, settled=True)),
+    ]
+    h.append_many(logs, PROFILE, "DL-0009", events, time=day(0))
+    out = tmp_path / "r.md"
+    assert _report(capsys, "DL-0009", "--logs", str(logs), "--out", str(out))[0] == 0
+    text = out.read_text()
+    rows = [line for line in text.split("### Other readings")[1].splitlines() if "|" in line]
+    assert [r.split("|")[1:4] for r in rows[2:]] == [
+        [" current ", " supply ", " 310 µA "],
+        [" DC volts under a test load with a 100kΩ test load ", " OUT ", " 11.2 V "],
+        [" diode test, board off ", " D2 ", " OL (over range) "],
+        [" ripple peak to peak ", " P2 ", " 31 mV "],
+    ]
+    assert main(["history", "DL-0009", "--logs", str(logs)]) == 0
+    history = capsys.readouterr().out
+    assert "reading OUT DC volts under a test load with a 100kΩ test load = 11.2 V" in history
+    assert "reading supply current = 0.00031 A" in history  # the rail named once

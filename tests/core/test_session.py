@@ -12,6 +12,7 @@ from fieldtool.core.diagnosis.dictionary_cache import load_or_build
 from fieldtool.core.diagnosis.faults import parse_fault
 from fieldtool.core.errors import InputError
 from fieldtool.core.history.sessions import Session
+from fieldtool.core.measurement import CURRENT, DC_LOADED, DIODE_TEST, TYPED, Measurement
 from fieldtool.core.session import BoardSession, choose_priors, history_failures
 from tests.conftest import ROOT
 from tests.readings import dc
@@ -120,3 +121,52 @@ def test_priors_come_from_a_source_of_confirmed_failures(dictionary, tmp_path):
     store = {PROFILE.name: {("D3", "open"): 5}}  # any store: a callable by profile name
     fleet = choose_priors(PROFILE, hyps, lambda name: store.get(name, {}))
     assert fleet.from_fleet and fleet.of("D3:open") > 2 * published.of("D3:open")
+
+
+def test_every_kind_is_taken_where_it_is_measured_and_saved(session, saved):
+    """A current goes in a supply lead, a diode test across a diode, each saved as it is;
+    the history carries the kind and its settings."""
+    session.open()
+    assert session.places["rail"] and session.places["part"][0] == "D1"
+    rail = session.places["rail"][0]
+    session.take(Measurement(rail, CURRENT, 3.1e-4, TYPED, settled=True))
+    session.take(
+        Measurement(
+            "OUT", DC_LOADED, 11.2, TYPED, settled=True, conditions=(("test_load_ohms", 1e5),)
+        )
+    )
+    with pytest.raises(InputError, match="take the power-off step first"):
+        session.take(Measurement("D2", DIODE_TEST, 0.6, TYPED, settled=True))
+    session.power(False)
+    with pytest.raises(InputError, match="power the board again first"):
+        session.take(dc("OUT", 12.0))
+    with pytest.raises(InputError, match="not a part of this board"):
+        session.take(Measurement("OUT", DIODE_TEST, 0.6, TYPED, settled=True))
+    session.take(Measurement("D2", DIODE_TEST, 0.6, TYPED, settled=True))
+    session.power(True)
+    taken = [e.measurement for e, _ in saved if isinstance(e, h.Reading)]
+    assert [(m.quantity.name, m.at) for m in taken] == [
+        ("current", rail),
+        ("dc-loaded", "OUT"),
+        ("diode-test", "D2"),
+    ]
+    assert taken[1].condition("test_load_ohms") == 1e5
+    # nodes first in ladder order, then rails, then parts
+    assert [m.at for m in session.measurements()] == ["OUT", rail, "D2"]
+
+
+def test_the_reading_that_found_the_fault_is_the_one_that_raised_it_most(session):
+    """Replaying the probing readings in the order taken: with D3 open the output reads 0 V
+    instead of about 15 V, and that reading is what moves the odds onto D3 open; S0 (the
+    supply, unchanged) before it and P1 after it move them little."""
+    session.open()
+    volts = faulted("D3:open")
+    for n in ("S0", "OUT", "P1"):
+        session.take(dc(n, volts[n], taken=f"2026-01-01T00:00:0{len(session.taken)}Z"))
+    m, odds = session.deciding("D3:open")
+    assert m is not None and m.at == "OUT"
+    assert odds == pytest.approx(
+        sum(s.probability for s in session.diagnosis.suspects if s.key == "D3:open")
+    )
+    session.record_repair(h.Action("D3", "replaced", "open"))
+    assert session.deciding("D3:open")[0] == m  # still the probing phase's readings

@@ -12,12 +12,14 @@ from tests.pty_lines import pty_lines
 
 
 def _meter_that_hangs_up(fd: int, hang_up: threading.Event) -> None:
-    """Answer *IDN? and READ? until told to hang up, then close on the next request."""
+    """Answer *IDN?, SYST:ERR? and READ? until told to hang up, then close on the next
+    request."""
     for line in pty_lines(fd):
         if hang_up.is_set():
             os.close(fd)
             return
-        reply = {"*IDN?": "ACME,DMM,1,1", "READ?": "+1.25E+01"}.get(line)
+        reply = {"*IDN?": "ACME,DMM,1,1", "SYST:ERR?": '0,"No error"', "READ?": "+1.25E+01"}
+        reply = reply.get(line)
         if reply:
             os.write(fd, (reply + "\n").encode())
 

@@ -23,6 +23,7 @@ from tests.meters.conftest import accuracy
 from tests.pty_lines import pty_lines
 
 IDENTITY = "ACME,DMM-7,31,2.0"
+NO_ERROR = '0,"No error"'  # SCPI's empty error queue
 
 
 class Heard(MeterListener):
@@ -83,7 +84,7 @@ class PtyMeterSide:
                 return
             if self.mute.is_set():
                 continue
-            reply = {"*IDN?": IDENTITY, "READ?": self.volts}.get(command)
+            reply = {"*IDN?": IDENTITY, "SYST:ERR?": NO_ERROR, "READ?": self.volts}.get(command)
             if reply is not None:
                 try:
                     os.write(self.master, (reply + "\n").encode())
@@ -132,7 +133,7 @@ def test_connects_reads_places_and_stops(pty_meter):
     told = len(heard.calls)
     time.sleep(0.1)
     assert len(heard.calls) == told  # nothing is told once stopped
-    assert side.heard[:2] == ["*IDN?", "CONF:VOLT:DC"]
+    assert side.heard[:4] == ["*IDN?", "*CLS", "CONF:VOLT:DC", "SYST:ERR?"]
     assert heard.of("lost") == [] and heard.of("failed") == []
 
 

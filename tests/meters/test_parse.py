@@ -2,9 +2,10 @@
 
 import pytest
 
-from fieldtool.core.measurement import TYPED, Source
+from fieldtool.core.measurement import DC, TYPED, Source
 from fieldtool.meters.errors import MeterGarbage, ReadingParseError
-from fieldtool.meters.parse import parse_scpi_number, parse_stream_line, parse_typed
+from fieldtool.meters.parse import parse_scpi_number, parse_typed
+from fieldtool.meters.stream import stream_sample
 
 METER = Source("meter", "ACME,DMM,1,1")
 
@@ -116,7 +117,7 @@ STREAM = r"(?P<value>[-+]?\d+(?:[.,]\d+)?|\bOL\b)\s*(?P<unit>[mkuµ]?V)?"
     ],
 )
 def test_stream_lines(line, volts, overload):
-    reading = parse_stream_line(line, STREAM, METER)
+    reading = stream_sample(line, STREAM, METER, DC)
     assert reading is not None
     assert reading.overload is overload
     if volts is None:
@@ -126,25 +127,25 @@ def test_stream_lines(line, volts, overload):
 
 
 def test_stream_line_without_unit_group():
-    reading = parse_stream_line("2024-01-01,3.30", r",(?P<value>[\d.]+)$", METER)
+    reading = stream_sample("2024-01-01,3.30", r",(?P<value>[\d.]+)$", METER, DC)
     assert reading is not None and reading.value == pytest.approx(3.3)
 
 
 @pytest.mark.parametrize("line", ["", "HOLD", "---- ----"])
 def test_stream_non_matching_is_none(line):
-    assert parse_stream_line(line, STREAM, METER) is None
+    assert stream_sample(line, STREAM, METER, DC) is None
 
 
 def test_stream_bad_unit_is_garbage():
-    with pytest.raises(MeterGarbage, match="'A' in line '3.3 A' is not a voltage unit"):
-        parse_stream_line("3.3 A", r"(?P<value>[\d.]+) (?P<unit>\w+)", METER)
+    with pytest.raises(MeterGarbage, match="line '3.3 ohm': unit 'ohm' is neither volts nor amps"):
+        stream_sample("3.3 ohm", r"(?P<value>[\d.]+) (?P<unit>\w+)", METER, DC)
 
 
 def test_stream_bad_value_is_garbage():
     with pytest.raises(MeterGarbage, match="streamed value 'x.y' in line"):
-        parse_stream_line("x.y V", r"(?P<value>\S+) V", METER)
+        stream_sample("x.y V", r"(?P<value>\S+) V", METER, DC)
 
 
 def test_stream_scpi_overload_number():
-    reading = parse_stream_line("+9.9E37 V", r"(?P<value>\S+) (?P<unit>V)", METER)
+    reading = stream_sample("+9.9E37 V", r"(?P<value>\S+) (?P<unit>V)", METER, DC)
     assert reading is not None and reading.overload and reading.value is None

@@ -5,7 +5,6 @@ import threading
 import time
 
 import pytest
-import serial
 
 from fieldtool.core.measurement import DC, RIPPLE_PP, Source
 from fieldtool.meters.connect import PROTOCOL_DRIVERS
@@ -21,22 +20,8 @@ from fieldtool.meters.scpi import ScpiMeter
 from fieldtool.meters.settings import PROTOCOLS, MeterSettings
 from fieldtool.meters.simulated import SimulatedMeter
 from fieldtool.meters.stream import StreamMeter
-from fieldtool.meters.transport import SerialTransport, open_port
+from fieldtool.meters.transport import open_port
 from tests.pty_lines import pty_lines
-
-
-@pytest.fixture
-def pty_pair():
-    master, slave = os.openpty()
-    port = serial.Serial(os.ttyname(slave), timeout=0.1)
-    transport = SerialTransport(port, name="pty")
-    yield master, transport
-    transport.close()
-    os.close(slave)
-    try:
-        os.close(master)
-    except OSError:
-        pass
 
 
 def play_scpi(fd, answers, log):
@@ -56,13 +41,17 @@ def _start(target, *args):
 def test_scpi_dialogue(pty_pair):
     master, transport = pty_pair
     log = []
-    answers = {"*IDN?": [b"ACME,DMM-1,123,1.0\n"], "READ?": [b"+1.23456789E+01\n"]}
+    answers = {
+        "*IDN?": [b"ACME,DMM-1,123,1.0\n"],
+        "SYST:ERR?": [b'+0,"No error"\n'],
+        "READ?": [b"+1.23456789E+01\n"],
+    }
     _start(play_scpi, master, answers, log)
     meter = ScpiMeter(transport, MeterSettings(timeout_s=2))
     assert meter.connect() == "ACME,DMM-1,123,1.0"
     reading = meter.read()
     assert reading.value == 12.3456789 and reading.overload is False
-    assert log == ["*IDN?", "CONF:VOLT:DC", "READ?"]
+    assert log == ["*IDN?", "*CLS", "CONF:VOLT:DC", "SYST:ERR?", "READ?"]
 
 
 def test_scpi_overload(pty_pair):
@@ -188,7 +177,8 @@ def test_stream_overload_line_is_overload_never_a_number(pty_pair, line):
 
 
 def test_command_delay_spaces_out_scpi_commands():
-    # loop:// echoes each command back, which serves as the answer to a query here
+    # loop:// echoes each command back, which serves as the answer to a query here; it has no
+    # error queue to ask
     now = [0.0]
     waits = []
 
@@ -198,7 +188,10 @@ def test_command_delay_spaces_out_scpi_commands():
 
     transport = open_port("loop://", timeout=0.5)
     meter = ScpiMeter(
-        transport, MeterSettings(command_delay_s=0.2), clock=lambda: now[0], sleep=sleep
+        transport,
+        MeterSettings(command_delay_s=0.2, check_errors=False),
+        clock=lambda: now[0],
+        sleep=sleep,
     )
     try:
         assert meter.connect() == "*IDN?"
@@ -214,7 +207,8 @@ def test_command_delay_spaces_out_scpi_commands():
 def test_no_command_delay_by_default():
     waits = []
     transport = open_port("loop://", timeout=0.5)
-    meter = ScpiMeter(transport, MeterSettings(), clock=lambda: 0.0, sleep=waits.append)
+    settings = MeterSettings(check_errors=False)
+    meter = ScpiMeter(transport, settings, clock=lambda: 0.0, sleep=waits.append)
     try:
         meter.connect()
     finally:
@@ -224,9 +218,9 @@ def test_no_command_delay_by_default():
 
 def test_capabilities_are_flags_with_defaults():
     """A serial meter's probe is in a person's hand: placing it does nothing (no byte is sent);
-    it can be set to DC volts and refuses other kinds, naming itself."""
+    it can be set to DC volts and refuses a kind it has no set-up for, naming itself."""
     transport = open_port("loop://", timeout=0.2)
-    meter = ScpiMeter(transport, MeterSettings())
+    meter = ScpiMeter(transport, MeterSettings(check_errors=False))
     try:
         assert meter.places_probe is False and SimulatedMeter.places_probe is True
         meter.place_probe("S3")

@@ -11,11 +11,10 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from fieldtool.core.measurement import Source
+from fieldtool.core.measurement import DC, Source
 from fieldtool.meters.errors import MeterError, MeterSettingsError
-from fieldtool.meters.parse import parse_stream_line
 from fieldtool.meters.settings import TERMINATORS, parse_settings
-from fieldtool.meters.stream import StreamMeter
+from fieldtool.meters.stream import StreamMeter, stream_sample
 from fieldtool.meters.transport import open_port
 
 KEYS = [
@@ -102,7 +101,7 @@ def test_settings_loader_accepts_only_settings_that_can_drive_a_meter(text):
     try:
         for line in METER_LINES:
             try:
-                parse_stream_line(line, meter.pattern, Source("meter", "fuzz"))
+                stream_sample(line, meter.pattern, Source("meter", "fuzz"), DC)
             except MeterError:
                 pass  # garbage named as garbage
     finally:

@@ -174,9 +174,10 @@ def test_slow_meter_loses_fast_commands_and_command_delay_fixes_it(board, health
     try:
         transport = open_port(served.server.port, timeout=0.5)
         hasty = ScpiMeter(transport, MeterSettings(timeout_s=0.5))
-        hasty.connect()  # *IDN? is answered; CONF:VOLT:DC right behind it is lost
+        # *IDN? is answered; *CLS, CONF:VOLT:DC and SYST:ERR? right behind it are lost, so
+        # the error check never hears back
         with pytest.raises(MeterTimeout):
-            hasty.read()  # and so is READ?
+            hasty.connect()
         transport.close()
         assert any(line.startswith("lost command 'CONF:VOLT:DC'") for line in served.log)
 
@@ -190,7 +191,9 @@ def test_slow_meter_loses_fast_commands_and_command_delay_fixes_it(board, health
 
 
 def test_console_words(scpi):
-    assert scpi.type("S99", "no node").startswith("no node or test point 'S99' on this board")
+    assert scpi.type("S99", "no node").startswith(
+        "no node, test point, rail or diode 'S99' on this board"
+    )
     assert scpi.type("nodes", "nodes:").startswith("nodes: S0 (TP1), P1, S1")
     assert scpi.type("s2", "probe") == "probe on S2 (TP3)"
     assert scpi.type("", "probe") == "probe on S2 (TP3)"

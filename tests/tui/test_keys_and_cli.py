@@ -34,7 +34,8 @@ async def test_palette_offers_the_main_actions(profile, cache_dir, tmp_path):
         titles = {c.title for c in app.get_system_commands(screen)}
         for title, _, action in ProbingScreen.PALETTE:
             assert title in titles and callable(getattr(screen, f"action_{action}"))
-        assert "Jump to the next probe" in titles and "Record a repair" in titles
+        assert "Go to the next measurement" in titles and "Record a repair" in titles
+        assert "Choose what to measure" in titles and "Power off or on" in titles
         assert "Start a session" not in titles  # the start screen's own command
         # The footer shows only what works now: no meter, so no accept and no reconnect.
         assert screen.check_action("accept", ()) is False
@@ -90,3 +91,17 @@ async def test_a_failing_worker_shows_a_dialog_not_a_traceback(tmp_path):
         assert "ZeroDivisionError: a bug" in app.screen.error.message
         await pilot.press("escape")
         assert not isinstance(app.screen, ErrorDialog)
+
+
+def test_the_demo_hides_only_faults_its_measurements_can_find(profile, cache_dir, dictionary):
+    """Every seed's hidden fault moves some reading beyond 3× its spread from healthy (the
+    faults nothing can find, such as a slightly leaky capacitor, are never drawn); the rule
+    itself refuses such a fault."""
+    findable = tui_cmd.demo_findable(profile, cache_dir)
+    drawn = [tui_cmd.demo_fault(profile, seed, findable) for seed in range(1, 13)]
+    assert all(findable(f) for f in drawn)
+    everything = [
+        f for h in catalog(profile, build_circuit(profile)[0]) if h.target for f in h.faults()
+    ]
+    hidden = [f for f in everything if not findable(f)]
+    assert hidden and len(hidden) < len(everything)

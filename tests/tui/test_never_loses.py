@@ -19,6 +19,7 @@ from tests.readings import reading
 from tests.tui.conftest import drain, probing, type_reading, typed_app, until
 
 IDENTITY = "BENCH,DMM-9,0042,1.0"
+NO_ERROR = '0,"No error"'  # SCPI's empty error queue
 
 
 def answer_scpi(fd: int, volts: str, log: list[str], unplug: threading.Event) -> None:
@@ -32,7 +33,7 @@ def answer_scpi(fd: int, volts: str, log: list[str], unplug: threading.Event) ->
         if unplug.is_set():
             os.close(fd)  # the cable is pulled with a request unanswered
             return
-        reply = {"*IDN?": IDENTITY, "READ?": volts}.get(command)
+        reply = {"*IDN?": IDENTITY, "SYST:ERR?": NO_ERROR, "READ?": volts}.get(command)
         if reply is not None:
             try:
                 os.write(fd, (reply + "\n").encode())
@@ -98,7 +99,7 @@ async def test_meter_unplugged_mid_session_keeps_every_reading(
         await type_reading(pilot, "126.1")
         assert screen.session.latest("S8").value == pytest.approx(126.1)
         drain(app)
-    assert log[:2] == ["*IDN?", "CONF:VOLT:DC"] and "READ?" in log
+    assert log[:4] == ["*IDN?", "*CLS", "CONF:VOLT:DC", "SYST:ERR?"] and "READ?" in log
     records = hist.read_board(tmp_path, "TG-0042").events
     readings = [r.event.measurement for r in records if r.kind == "reading"]
     assert [(m.at, m.value, str(m.source)) for m in readings] == [

@@ -22,6 +22,7 @@ from fieldtool.core.history import BoardHistory, HistoryError, Reading, Record, 
 from fieldtool.core.history.sessions import ConfirmedFailure, Session, confirmed_in
 from fieldtool.core.measurement import DC, Measurement
 from fieldtool.core.plausible import Range
+from fieldtool.core.words import conditions_words, reading_words
 
 # A reading no node of the board could show (an older version let it into the history): shown,
 # never plotted or compared with a band.
@@ -77,6 +78,16 @@ class Row:
 
 
 @dataclass(frozen=True)
+class OtherRow:
+    """One reading of a kind beyond DC volts, in words: what, where, the value, when."""
+
+    what: str  # the kind in words, with its settings ("DC volts under a test load with ...")
+    at: str
+    value: str  # with its unit, or "OL (over range)"
+    time: str
+
+
+@dataclass(frozen=True)
 class SessionPart:
     """One session of the report."""
 
@@ -91,6 +102,10 @@ class SessionPart:
     actions: tuple[dict[str, Any], ...]
     confirmed: tuple[ConfirmedFailure, ...]
     profile_changed: bool  # recorded with a different profile file than the one used here
+    # readings beyond DC volts (ripple, AC, current, under a test load, diode tests), the
+    # last of each kind at each place, before and after the repair
+    other_readings: tuple[OtherRow, ...] = ()
+    other_verifications: tuple[OtherRow, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -156,6 +171,20 @@ def _latest_per_node(records: list[Record], expectations: Expectations | None) -
     return tuple(_row(*latest[n], expectations) for n in ranked)
 
 
+def _other_kinds(records: list[Record]) -> tuple[OtherRow, ...]:
+    """The last reading of each kind beyond DC volts at each place (and test load)."""
+    latest: dict[tuple, OtherRow] = {}
+    for record in records:  # oldest first: a reading taken again keeps its last value
+        event = record.event
+        if not isinstance(event, Reading) or event.measurement.quantity == DC:
+            continue
+        m = event.measurement
+        value = reading_words(m.value, m.unit)
+        what = m.quantity.words + conditions_words(m.conditions)
+        latest[m.at, m.quantity.name, m.conditions] = OtherRow(what, str(m.at), value, record.time)
+    return tuple(latest.values())
+
+
 def _suspects(session: Session) -> tuple[tuple[str, str, float], ...]:
     diagnoses = session.of_kind("diagnosis")
     if not diagnoses:
@@ -183,6 +212,8 @@ def _part(session: Session, expectations: Expectations | None, digest: str) -> S
         actions=tuple({"time": r.time, **r.fields} for r in session.of_kind("action")),
         confirmed=confirmed_in(session),
         profile_changed=bool(digest and recorded_hash and recorded_hash != digest),
+        other_readings=_other_kinds(session.of_kind("reading")),
+        other_verifications=_other_kinds(session.of_kind("verification")),
     )
 
 

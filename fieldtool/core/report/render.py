@@ -15,7 +15,7 @@ from typing import Any
 
 from fieldtool import __version__
 from fieldtool.core.history import time_key
-from fieldtool.core.report.content import Report, Row, SessionPart
+from fieldtool.core.report.content import OtherRow, Report, Row, SessionPart
 from fieldtool.core.words import count
 
 _MD_SPECIAL = re.compile(r"([\\`*_{}\[\]#|~])")
@@ -50,6 +50,13 @@ def _row_cells(r: Row) -> list[str]:
 
 
 HEAD = ["Node", "Test point", "Measured", "Expected", "Healthy band", "Status"]
+
+
+OTHER_HEAD = ["Reading", "At", "Value", "Time (UTC)"]
+
+
+def _other_cells(r: OtherRow) -> list[str]:
+    return [r.what, r.at, r.value, _when(r.time)]
 
 
 def _action_words(a: Mapping[str, Any]) -> str:
@@ -116,6 +123,9 @@ def to_markdown(report: Report, plots: Mapping[str, str | None], plot_note: str)
             lines += _md_table(HEAD, [_row_cells(r) for r in s.readings])
         else:
             lines.append("No readings in this session.")
+        if s.other_readings:
+            lines += ["", "### Other readings", ""]
+            lines += _md_table(OTHER_HEAD, [_other_cells(r) for r in s.other_readings])
         image = plots.get(s.id)
         lines += [
             "",
@@ -134,6 +144,9 @@ def to_markdown(report: Report, plots: Mapping[str, str | None], plot_note: str)
         if s.verifications:
             lines += ["", "### Readings after the repair", ""]
             lines += _md_table(HEAD, [_row_cells(r) for r in s.verifications])
+        if s.other_verifications:
+            lines += ["", "### Other readings after the repair", ""]
+            lines += _md_table(OTHER_HEAD, [_other_cells(r) for r in s.other_verifications])
         if s.confirmed:
             lines += ["", f"Confirmed failure: {md(_confirmed_words(s))}"]
     if report.damaged:
@@ -194,6 +207,10 @@ def to_html(report: Report, plots: Mapping[str, bytes | None], plot_note: str) -
         parts.append("<h3>Readings against expected</h3>")
         rows = [_row_cells(r) for r in s.readings]
         parts.append(_html_table(HEAD, rows, _status_css) if rows else "<p>No readings.</p>")
+        if s.other_readings:
+            parts.append("<h3>Other readings</h3>")
+            rows = [_other_cells(r) for r in s.other_readings]
+            parts.append(_html_table(OTHER_HEAD, rows, lambda _: ""))
         png = plots.get(s.id)
         if png:
             data = base64.b64encode(png).decode("ascii")
@@ -215,6 +232,10 @@ def to_html(report: Report, plots: Mapping[str, bytes | None], plot_note: str) -
         if s.verifications:
             parts.append("<h3>Readings after the repair</h3>")
             parts.append(_html_table(HEAD, [_row_cells(r) for r in s.verifications], _status_css))
+        if s.other_verifications:
+            parts.append("<h3>Other readings after the repair</h3>")
+            rows = [_other_cells(r) for r in s.other_verifications]
+            parts.append(_html_table(OTHER_HEAD, rows, lambda _: ""))
         if s.confirmed:
             parts.append(f"<p><strong>Confirmed failure:</strong> {esc(_confirmed_words(s))}</p>")
     if report.damaged:

@@ -44,9 +44,14 @@ class BoardReadouts:
 
 
 def board_readouts(
-    profile: Profile, steps: int = 80, fault: Change | None = None, spreads: bool = True
+    profile: Profile,
+    steps: int = 80,
+    fault: Change | None = None,
+    spreads: bool = True,
+    test_load_ohms: tuple[float, ...] | None = None,
 ) -> BoardReadouts:
-    """Every reading beyond DC volts of one board (optionally faulted), with its test loads."""
+    """Every reading beyond DC volts of one board (optionally faulted), with its test loads
+    (``test_load_ohms``, None for the profile's ``[test_loads]``)."""
     circuit, params = build_circuit(profile)
     if fault is not None:
         params = fault.apply(circuit, params, profile)
@@ -58,7 +63,9 @@ def board_readouts(
             f"{profile.path}: periodic steady state not reached (residual "
             f"{float(ss.residual.max()):.3g} V); the profile may describe an unstable board"
         )
-    powered = powered_readouts(circuit, params, ss.period, profile, steps=steps, spreads=spreads)
+    powered = powered_readouts(
+        circuit, params, ss.period, profile, test_load_ohms, steps=steps, spreads=spreads
+    )
     h = np.diff(ss.period.times)
     out = ss.period.v[0, :, circuit.output_node - 1]
     v_out = float((out * h).sum() / ss.period.times[-1])
