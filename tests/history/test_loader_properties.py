@@ -172,12 +172,12 @@ def test_one_odd_field_never_stops_a_history_loading_showing_or_resuming(
 @pytest.mark.parametrize(
     "line_no, key, raw, restored",
     [
-        # The open session holds five readings at nodes: three DC, one under a test load, one
-        # AC; the diode test is at a part.
-        (1, "volts", "NaN", 5),  # a schema-1 reading in the closed session
-        (len(LINES) - 4, "value", "Infinity", 4),  # the reading under a test load
-        (len(LINES) - 4, "conditions", '{"test_load_ohms": 0}', 4),  # a test load of 0 Ω
-        (len(LINES) - 1, "value", "1e999", 5),  # the diode test
+        # The open session holds seven readings: three DC, one under a test load, one AC, the
+        # supply current and a diode test; resuming brings back every one it can read.
+        (1, "volts", "NaN", 7),  # a schema-1 reading in the closed session
+        (len(LINES) - 4, "value", "Infinity", 6),  # the reading under a test load
+        (len(LINES) - 4, "conditions", '{"test_load_ohms": 0}', 6),  # a test load of 0 Ω
+        (len(LINES) - 1, "value", "1e999", 6),  # the diode test
     ],
 )
 def test_a_value_no_float_holds_is_one_unreadable_record_not_a_lost_history(
