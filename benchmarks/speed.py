@@ -219,6 +219,57 @@ def whole_process(argv: list[str], runs: int, cwd: Path, prepare=None) -> tuple[
     return statistics.median(walls), statistics.median(cpus)
 
 
+def dictionary_breakdown(profile) -> list[str]:
+    """Where a cold dictionary build spends its CPU, counted at the kernel's entry points.
+
+    Each kernel call is tagged with the solve it belongs to (the staged solve, the meter-in-
+    place solves, the variational period): calls, variant-periods, CPU seconds and Newton
+    iterations per step, with and without the monodromy. Runs one build with one thread, so
+    the CPU seconds add up (the figures in the table below use every core).
+    """
+    tally: dict[tuple[str, str], list[float]] = {}
+    tag = ["staged solve"]
+    period, response = kernel.Board.period, kernel.Board.response
+
+    def count(key: tuple[str, str], rows: int, cpu: float, newton: float) -> None:
+        entry = tally.setdefault(key, [0, 0, 0.0, 0.0])
+        for i, value in enumerate((1, rows, cpu, newton)):
+            entry[i] += value
+
+    def timed_period(self, steps, inj, x0, v, vj, guess, sens):
+        c0 = time.process_time()
+        out = period(self, steps, inj, x0, v, vj, guess, sens)
+        what = "periods with monodromy" if sens else "periods without"
+        newton = float(out[4].sum()) / len(steps)
+        count((tag[0], what), len(x0), time.process_time() - c0, newton)
+        return out
+
+    def timed_response(self, steps, *args):
+        c0 = time.process_time()
+        out = response(self, steps, *args)
+        count(("variational period", "periods"), len(out[0]), time.process_time() - c0, 0.0)
+        tag[0] = "meter-in-place solves"
+        return out
+
+    kernel.Board.period, kernel.Board.response = timed_period, timed_response
+    threads = kernel._state.get("threads")
+    kernel._state["threads"] = 1
+    try:
+        c0 = time.process_time()
+        dictionary.build(profile)
+        total = time.process_time() - c0
+    finally:
+        kernel.Board.period, kernel.Board.response = period, response
+        kernel._state["threads"] = threads
+    lines = [f"where a cold build's CPU goes (one thread, {total:.2f} s in all):"]
+    for (part, what), (calls, rows, cpu, newton) in tally.items():
+        steps = f", {newton / rows:.2f} Newton/step" if newton else ""
+        lines.append(f"  {part}, {what}: {calls} calls, {rows} variant-periods, {cpu:.2f} s{steps}")
+    kernel_cpu = sum(entry[2] for entry in tally.values())
+    lines.append(f"  outside the kernel (numpy, Python, set-up): {total - kernel_cpu:.2f} s")
+    return lines
+
+
 def main() -> None:
     """Print every table."""
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
@@ -285,6 +336,8 @@ def main() -> None:
 
     print("\n3. 10-stage fault dictionary in process")
     profile = bench_profile(10)
+    for line in dictionary_breakdown(profile):
+        print(f"   {line}")
     for label, ctx in (("fieldtool", None), ("before", kernel.disabled)):
         if ctx and not args.before:
             continue

@@ -164,6 +164,15 @@ static void variant_select(variant *w, int row) {
     w->v[n] = w->vnew[n] = 0.0;
 }
 
+/* The sensitivity sweeps run along rows of many right-hand sides; on GCC for x86-64 Linux they
+ * are also compiled for AVX2 and the loader picks the clone the CPU runs (target_clones). No
+ * FMA is enabled and no reduction is reordered, so either clone gives the same bits. */
+#if defined(__GNUC__) && !defined(__clang__) && defined(__x86_64__) && defined(__linux__)
+#define FT_WIDE __attribute__((target_clones("avx2", "default")))
+#else
+#define FT_WIDE
+#endif
+
 /* ---- skyline L·D·Lᵀ ----------------------------------------------------------------------- */
 
 /* Entry (i, j), j <= i, of a packed envelope. */
@@ -220,7 +229,7 @@ static void solve(const ft_board *bd, const double *env, const double *D, double
 
 /* Solve (L·D·Lᵀ) X = B in place for the columns of X (n rows of `cols`, row-major): the same
  * sweeps as solve() with each row operation running along all right-hand sides at once. */
-static void solve_many(const ft_board *bd, const double *env, const double *D, double *X, int cols) {
+FT_WIDE static void solve_many(const ft_board *bd, const double *env, const double *D, double *X, int cols) {
     int n = bd->n;
     for (int i = 0; i < n; i++) {
         int fi = bd->first[i];
@@ -250,7 +259,7 @@ static void solve_many(const ft_board *bd, const double *env, const double *D, d
 }
 
 /* R = Acᵀ·diag(gc)·Y for Y (m rows of `cols`), R (n rows of `cols`), both row-major. */
-static void spread_rows(const variant *w, const double *Y, double *R, int cols) {
+FT_WIDE static void spread_rows(const variant *w, const double *Y, double *R, int cols) {
     const ft_board *bd = w->bd;
     memset(R, 0, sizeof(double) * (size_t)bd->n * cols);
     for (int j = 0; j < bd->m; j++) {
@@ -269,7 +278,7 @@ static void spread_rows(const variant *w, const double *Y, double *R, int cols) 
 }
 
 /* Ynew = diag(1 - a)·Y + diag(a)·Ac·Z, rows of `cols` (the capacitor update's derivative). */
-static void gather_rows(const variant *w, const double *Y, const double *Z, double *Ynew, int cols) {
+FT_WIDE static void gather_rows(const variant *w, const double *Y, const double *Z, double *Ynew, int cols) {
     const ft_board *bd = w->bd;
     for (int j = 0; j < bd->m; j++) {
         int p = bd->c_p[j], q = bd->c_q[j];
@@ -401,6 +410,16 @@ static void advance(const variant *w, const double *x_prev, double *x_new) {
     }
 }
 
+/* True when the step just solved stayed within one n·Vt of the earlier period at every
+ * junction: the next step's Newton iteration then starts from this step's solution plus the
+ * earlier period's change over the next step; otherwise from this step's solution alone
+ * (solver.run_period does the same). */
+static int near_guess(const variant *w, const double *guess_vj) {
+    for (int i = 0; i < w->bd->k; i++)
+        if (!(fabs(w->vj[i] - guess_vj[i]) <= w->nvt[i])) return 0;
+    return 1;
+}
+
 static void fill_nan(double *p, size_t count) {
     for (size_t i = 0; i < count; i++) p[i] = NAN;
 }
@@ -409,7 +428,7 @@ static void fill_nan(double *p, size_t count) {
 
 /* Arrays are row-major: inj, guess_v, V (B, T, n) in original node order; x0 (B, m);
  * v_state (B, n), vj_state (B, k) are the Newton start and are left at the period's end;
- * guess_v, guess_vj may be NULL; X (B, T, m); VJ (B, T, k); M (B, m, m) or NULL gets the
+ * guess_v, guess_vj may be NULL (each step's Newton start, see near_guess); X (B, T, m); VJ (B, T, k); M (B, m, m) or NULL gets the
  * monodromy, the product of the steps' ∂x_t/∂x_(t-1); newton (B) gets each variant's Newton
  * iteration total. Returns 0, or -1 when memory ran out. A variant whose matrix lost
  * definiteness gets NaN (the shooting then reports it as not converged). */
@@ -443,9 +462,13 @@ int ft_period(const ft_board *bd, int T, const double *h, const double *inj, con
                 hprev = h[t];
             }
             size_t bt = (size_t)b * T + t;
-            if (guess_v) {
+            if (guess_v && t == 0) {
                 for (int i = 0; i < n; i++) w.v[i] = guess_v[bt * n + bd->perm[i]];
                 memcpy(w.vj, guess_vj + bt * k, sizeof(double) * (size_t)k);
+            } else if (guess_v && near_guess(&w, guess_vj + (bt - 1) * k)) {
+                const double *gv = guess_v + bt * n, *gj = guess_vj + bt * k;
+                for (int i = 0; i < n; i++) w.v[i] += gv[bd->perm[i]] - gv[bd->perm[i] - n];
+                for (int i = 0; i < k; i++) w.vj[i] += gj[i] - gj[i - k];
             }
             int it = newton(&w, inj + bt * n, x);
             if (it < 0) {

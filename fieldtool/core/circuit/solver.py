@@ -310,8 +310,11 @@ def run_period(
 ) -> Period:
     """Integrate one period from capacitor voltages x0.
 
-    With ``guess`` (an earlier period on the same grid), each step's Newton iteration starts
-    from that period's solution at the same instant instead of from the previous step.
+    With ``guess`` (an earlier period on the same grid, e.g. the previous shooting iterate),
+    the first step's Newton iteration starts from that period's first solution, and each later
+    one from the previous step's solution plus the guess's change over this step, as long as
+    the previous step ended within one n·Vt of the guess at every junction; a variant that has
+    moved farther (an early shooting iterate) starts from its previous step's solution alone.
     """
     SRC = net.sources_on(times[1:])
     inj = net.injections(SRC)
@@ -333,8 +336,12 @@ def run_period(
     x = x0
     total = 0
     for k in range(T):
-        if guess is not None:
-            state.v, state.vj = guess.v[:, k], guess.vj[:, k]
+        if guess is not None and k == 0:
+            state.v, state.vj = guess.v[:, 0], guess.vj[:, 0]
+        elif guess is not None:
+            near = (np.abs(state.vj - guess.vj[:, k - 1]) <= net.params.d_nvt).all(axis=1)[:, None]
+            state.v = state.v + near * (guess.v[:, k] - guess.v[:, k - 1])
+            state.vj = state.vj + near * (guess.vj[:, k] - guess.vj[:, k - 1])
         x, S, it = step(net, x, state, inj[:, k], steps[k], sens)
         total += it
         if sens:
@@ -401,7 +408,7 @@ def steady_state(
             # The Newton correction estimates the distance to the fixed point; the residual
             # alone does not (slow reservoir modes have monodromy eigenvalues near 1).
             ok = (res <= tol * scale) & (np.abs(dx).max(axis=1) <= 10 * tol * scale)
-            _store_rows(store, per, active, B)
+            _store_rows(store, per, active, B, ok)
             ok_all[active] = ok
             res_all[active] = np.maximum(res, np.abs(dx).max(axis=1))
             if progress is not None:
@@ -420,6 +427,8 @@ def steady_state(
                 net = Network(circuit, params.take(active), reltol)
                 state = StepState(state.v[keep], state.vj[keep])
                 per = _take_period(per, keep)
+        if not ok_all.all():
+            _store_rows(store, per, active, B, ~ok_all[active])  # the last iterate of the rest
         if ok_all.all() or fallback_periods == 0:
             break
         if attempt == 0:
@@ -462,13 +471,22 @@ def _damp(
 _PERIOD_ROWS = ("x_start", "x_end", "v", "x", "src", "monodromy", "vj")
 
 
-def _store_rows(store: dict[str, np.ndarray], per: Period, rows: np.ndarray, B: int) -> None:
-    """Copy one period's rows into the full-batch result arrays."""
+def _store_rows(
+    store: dict[str, np.ndarray], per: Period, rows: np.ndarray, B: int, pick: np.ndarray
+) -> None:
+    """Copy the picked rows of one period into the full-batch result arrays.
+
+    Only rows that are final are copied (those that converged, and at the end the rest), not
+    every active row at every iteration.
+    """
     for name in _PERIOD_ROWS:
         value = getattr(per, name)
         if name not in store:
             store[name] = np.zeros((B, *value.shape[1:]))
-        store[name][rows] = value
+        if pick.all():
+            store[name][rows] = value
+        elif pick.any():
+            store[name][rows[pick]] = value[pick]
     store["newton_iterations"] = per.newton_iterations
 
 
