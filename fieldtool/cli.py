@@ -35,7 +35,9 @@ COMMAND_MODULE = {
     "profiles": "fieldtool.commands.profiles",
     **dict.fromkeys(("ports", "read", "sim-meter"), "fieldtool.commands.meters"),
     **dict.fromkeys(("fleet", "history", "logs", "record", "report"), "fieldtool.commands.history"),
-    **dict.fromkeys(("calibrate", "diagnose", "inject"), "fieldtool.commands.diagnosis"),
+    **dict.fromkeys(
+        ("calibrate", "coverage", "diagnose", "inject"), "fieldtool.commands.diagnosis"
+    ),
     **dict.fromkeys(("demo", "probe", "tui"), "fieldtool.commands.tui"),
     "store": "fieldtool.commands.store",
 }

@@ -1,9 +1,11 @@
-"""``fieldtool inject``, ``diagnose`` and ``calibrate``: faults, ranking and fitting a profile."""
+"""``fieldtool inject``, ``diagnose``, ``coverage`` and ``calibrate``: faults, ranking, what
+each measurement kind can find, and fitting a profile."""
 
 from __future__ import annotations
 
 import argparse
 import json
+import math
 import os
 import sys
 import tomllib
@@ -26,10 +28,11 @@ from fieldtool.core.diagnosis.faults import describe, parse_fault
 from fieldtool.core.diagnosis.priors import Priors
 from fieldtool.core.diagnosis.ranking import Diagnosis, diagnose
 from fieldtool.core.errors import InputError, ProfileError
-from fieldtool.core.hazard import safety_line
+from fieldtool.core.hazard import safety_line, signal_word
 from fieldtool.core.measurement import DC
 from fieldtool.core.readings import load_readings
 from fieldtool.core.session import choose_priors, history_failures
+from fieldtool.core.units import format_si
 from fieldtool.core.words import count
 from fieldtool.store import StoreAddress
 from fieldtool.store.priors import store_failures
@@ -40,6 +43,14 @@ FAULT_HELP = (
     "drive:stuck-low, drive:stuck-high, drive:missing (ac-ladder), drive:low=0.7, "
     "supply:low=0.8, load:heavy=3"
 )
+
+READINGS_HELP = (
+    "Readings CSV, either header node,volts (optional ripple_vpp), or one reading a row with "
+    "header measure,at,value (optional test_load_ohms), e.g. dc,S3,45.2 / ripple-pp,S3,31mV / "
+    "ac-rms,S3,9mV / current,supply,0.35mA / dc-loaded,S6,72.9,10k / diode-test,D5,0.61. "
+    "OL for overload."
+)
+READINGS_ARG = "CSV file: node,volts[,ripple_vpp] or measure,at,value[,test_load_ohms]"
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:
@@ -56,16 +67,29 @@ def register(subparsers: argparse._SubParsersAction) -> None:
 
     dia = subparsers.add_parser(
         "diagnose",
-        help="rank the likely failed part from node readings, and the next node to probe",
-        description="Readings CSV: header node,volts (optional ripple_vpp); OL for overload.",
+        help="rank the likely failed part from readings, and the next measurement to take",
+        description=READINGS_HELP,
     )
     dia.add_argument("profile", help=PROFILE_HELP)
-    dia.add_argument("--readings", required=True, help="CSV file: node,volts[,ripple_vpp]")
+    dia.add_argument("--readings", required=True, help=READINGS_ARG)
     dia.add_argument("--logs", help="history folder whose confirmed repairs set the priors")
     add_store_option(dia, PRIORS_STORE_HELP)
     dia.add_argument("--cache", help="dictionary cache folder (default: $FIELDTOOL_CACHE)")
     dia.add_argument("--json", action="store_true", help="one JSON object on stdout")
     dia.set_defaults(handler=run_diagnose)
+
+    cov = subparsers.add_parser(
+        "coverage",
+        help="which measurement kinds can find each catalogued fault on this board",
+        description=(
+            "For each catalogued fault and severity, the measurement kinds that tell it from a "
+            "healthy board beyond 3x the spread, and the faults none can find."
+        ),
+    )
+    cov.add_argument("profile", help=PROFILE_HELP)
+    cov.add_argument("--cache", help="dictionary cache folder (default: $FIELDTOOL_CACHE)")
+    cov.add_argument("--json", action="store_true", help="one JSON object on stdout")
+    cov.set_defaults(handler=run_coverage)
 
     cal = subparsers.add_parser(
         "calibrate",
@@ -73,7 +97,9 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         description="Least-squares fit to a golden board; writes a new profile.",
     )
     cal.add_argument("profile", help=PROFILE_HELP)
-    cal.add_argument("--readings", required=True, help="CSV of a known-good board's readings")
+    cal.add_argument(
+        "--readings", required=True, help="CSV of a known-good board's readings (DC is used)"
+    )
     cal.add_argument("--out", required=True, help="where to write the fitted profile (.toml)")
     cal.add_argument("--force", action="store_true", help="overwrite --out if it exists")
     cal.add_argument(
@@ -145,7 +171,7 @@ def run_diagnose(args: argparse.Namespace) -> int:
     """Handle ``fieldtool diagnose``."""
     profile = profile_arg(args.profile)
     d = dictionary_for(profile, args.cache)
-    readings = load_readings(args.readings, d.nodes, d.labels)
+    readings = load_readings(args.readings, d.nodes, d.labels, part_names(d), d.rails)
     result = diagnose(d, readings, priors_for(profile, d, args.logs, store_of(args)))
     if args.json:
         print(json.dumps(result.to_json(), indent=2))
@@ -154,45 +180,142 @@ def run_diagnose(args: argparse.Namespace) -> int:
     return 0
 
 
-def diagnosis_text(d: FaultDictionary, readings, result: Diagnosis) -> str:
-    """Readings against the healthy bands, the ranked suspects and the advice."""
-    dc = [r for r in readings if r.quantity == DC]
-    lines = [f"{d.profile.name}: {count(len(dc), 'reading')}", ""]
-    lines.append(f"{'node':<6}{'test pt':<9}{'read':>10}{'healthy band':>24}  verdict")
-    for r in dc:
-        band = d.band(r.at)
+def part_names(d: FaultDictionary) -> list[str]:
+    """The diodes' designators as the board shows them, and their default ones."""
+    return list(dict.fromkeys([*(d.part_name(r) for r in d.diodes), *d.diodes]))
+
+
+def shown(value: float, unit: str) -> str:
+    """A reading with a prefix a meter would show: 45.200 V, 31.0 mV, 350 µA."""
+    for scale, prefix in ((1.0, ""), (1e-3, "m"), (1e-6, "µ")):
+        if abs(value) >= scale or scale == 1e-6:
+            return f"{value / scale:.4g} {prefix}{unit}"
+    return f"{value:g} {unit}"
+
+
+def reading_rows(d: FaultDictionary, readings) -> list[str]:
+    """Each reading against its healthy band (every kind the dictionary predicts)."""
+    lines = [f"{'reading':<28}{'value':>12}{'healthy band':>26}  verdict"]
+    for r in readings:
+        kind = r.quantity.name
+        what = f"{r.at} {kind}" + (
+            f" {format_si(r.condition('test_load_ohms'))}Ω" if r.quantity.conditions else ""
+        )
         label = d.labels.get(r.at, "")
+        what += f" ({label})" if label else ""
         if r.value is None:
-            lines.append(f"{r.at:<6}{label:<9}{'OL':>10}{'':>24}  over range")
+            lines.append(f"{what:<28}{'OL':>12}{'':>26}  over range")
+            continue
+        value = shown(r.value, r.quantity.unit)
+        try:
+            band = d.channel_band(d.channel(r.at, kind, r.conditions))
+        except InputError:
+            lines.append(f"{what:<28}{value:>12}{'not predicted':>26}  see notes")
+            continue
+        if math.isnan(band.low):
+            lines.append(f"{what:<28}{value:>12}{'not predicted':>26}")
             continue
         verdict = "in band" if band.contains(r.value) else ("LOW" if r.value < band.low else "HIGH")
         if reading_problem(d.profile, r):
             verdict = "not a reading of this board (wrong range or unit?)"
-        value = f"{r.value:>8.3f}" if abs(r.value) < 1e5 else f"{r.value:>8.2e}"
-        span = f"{band.low:.2f} … {band.high:.2f} V"
-        lines.append(f"{r.at:<6}{label:<9}{value} V{span:>24}  {verdict}")
-    lines += ["", "most likely:"]
+        unit = r.quantity.unit
+        span = f"{shown(band.low, unit)} … {shown(band.high, unit)}"
+        lines.append(f"{what:<28}{value:>12}{span:>26}  {verdict}")
+    return lines
+
+
+def highest_expected(d: FaultDictionary) -> float:
+    """The highest DC any node of the healthy board reads, band included."""
+    return max(max(abs(d.band(n).low), abs(d.band(n).high)) for n in d.nodes)
+
+
+def next_lines(d: FaultDictionary, result: Diagnosis) -> list[str]:
+    """What to measure next, with its caution under the board's signal word
+    (``core.hazard``); or why nothing is left."""
+    s = result.next_measurement
+    if s is not None:
+        lines = [f"next: {s.words} ({s.gain_bits:.2f} bits expected, effort {s.effort:g})"]
+        if s.caution:
+            word = signal_word(highest_expected(d), d.profile.safe_volts)
+            lines.append(f"{word}: {s.caution}")
+        return lines
+    if result.top.probability >= 0.9 and not result.fit.no_fit:
+        return [f"next: none needed; {result.top.words} at {result.top.probability:.0%}"]
+    return ["next: no measurement left that would tell more; check suspects out of circuit"]
+
+
+def diagnosis_text(d: FaultDictionary, readings, result: Diagnosis) -> str:
+    """Readings against the healthy bands, the ranked suspects and the advice."""
+    lines = [f"{d.profile.name}: {count(len(readings), 'reading')}", ""]
+    lines += reading_rows(d, readings)
+    lines.append("")
+    if result.fit.no_fit:  # the reading that fits nothing leads
+        # "NO FIT", not WARNING: that signal word is kept for the hazard (core.hazard).
+        lines.append("NO FIT: " + result.fit.text)
+        lines.append("most likely, if a single fault is to blame:")
+    else:
+        lines.append("most likely:")
     for s in result.suspects[:8]:
         bar = "#" * round(s.probability * 20)
         lines.append(f"  {s.probability:6.1%}  {bar:<20}  {s.words}")
     for a in result.ambiguity:
         lines.append(f"ambiguous: {a.text}")
-    if result.next_probe:
-        label = d.labels.get(result.next_probe)
-        where = f"{result.next_probe} ({label})" if label else result.next_probe
-        lines.append(f"next: probe {where} ({result.next_probe_gain_bits:.2f} bits expected)")
-    elif result.top.probability >= 0.9:
-        lines.append(f"next: none needed; {result.top.words} at {result.top.probability:.0%}")
-    else:
-        lines.append("next: no node left that would tell more; check suspects out of circuit")
-    # "NO FIT", not WARNING: that signal word is kept for the hazard (see core.circuit.safety).
-    lines.append(("NO FIT: " if result.fit.no_fit else "fit: ") + result.fit.text)
+    lines += next_lines(d, result)
+    if not result.fit.no_fit:
+        lines.append("fit: " + result.fit.text)
     lines += [f"note: {text}" for text in result.ignored]
-    highest = max(max(abs(d.band(n).low), abs(d.band(n).high)) for n in d.nodes)
+    highest = highest_expected(d)
     dc = [r for r in readings if r.quantity == DC and reading_problem(d.profile, r) is None]
     overload = any(r.value is None for r in dc)
     read = [abs(r.value) for r in dc if r.value is not None]
     lines.append(safety_line(None if overload else max([highest, *read]), d.profile.safe_volts))
+    return "\n".join(lines)
+
+
+# --- coverage ----------------------------------------------------------------------------
+
+
+def run_coverage(args: argparse.Namespace) -> int:
+    """Handle ``fieldtool coverage``."""
+    from fieldtool.core.diagnosis.coverage import coverage
+
+    profile = profile_arg(args.profile)
+    c = coverage(dictionary_for(profile, args.cache))
+    if args.json:
+        print(json.dumps(c.to_json(), indent=2))
+    else:
+        print(coverage_text(c))
+    return 0
+
+
+def coverage_text(c) -> str:
+    """One line a fault and severity: the kinds that find it and where; then the ones none
+    finds, said plainly."""
+    from fieldtool.core.diagnosis.coverage import SIGMAS
+
+    lines = [
+        f"{c.board}: which measurements tell each fault from a healthy board "
+        f"(beyond {SIGMAS:g}x the spread)",
+        f"measurements this board allows: {', '.join(c.kinds)}",
+        "",
+    ]
+    width = max((len(f.words) for f in c.faults), default=10) + 2
+    for f in c.faults:
+        found = [f"{k} ({f.where[k]})" for k in f.kinds()]
+        lines.append(f"{f.words:<{width}}{', '.join(found) if found else '-- none'}")
+    missing = c.unfindable()
+    lines.append("")
+    if missing:
+        words = {f.key: f.words.split(" (")[0] for f in c.faults}
+        lines.append(
+            "No available measurement finds these at any severity: "
+            + "; ".join(words[k] for k in missing)
+            + ". Check those parts out of circuit."
+        )
+    else:
+        lines.append("Every catalogued fault is found by some measurement at some severity.")
+    for part, why in c.lift_one_leg.items():
+        lines.append(f"{part}: in-circuit diode test tells nothing ({why}); lift one leg")
     return "\n".join(lines)
 
 
@@ -210,6 +333,7 @@ def run_calibrate(args: argparse.Namespace) -> int:
     circuit, _ = build_circuit(profile)
     nodes = [circuit.name(i) for i in circuit.probe_nodes]
     readings = load_readings(args.readings, nodes, profile.labels)
+    others = [r for r in readings if r.quantity != DC]
     result = calibrate(profile, readings)
     if result.problems and not args.accept_poor_fit:
         raise InputError(
@@ -229,7 +353,7 @@ def run_calibrate(args: argparse.Namespace) -> int:
         "chi2": result.chi2,
         "residuals": result.residuals,
         "iterations": result.iterations,
-        "notes": list(result.notes),
+        "notes": list(result.notes) + _left_out(others),
         "problems": list(result.problems),
     }
     if args.json:
@@ -246,11 +370,18 @@ def run_calibrate(args: argparse.Namespace) -> int:
     print(f"\nresidual {result.rms_volts * 1000:.1f} mV rms over {len(result.residuals)} nodes")
     for node, e in result.residuals.items():
         print(f"  {node:<6}{e * 1000:+9.1f} mV")
-    for note in result.notes:
+    for note in [*result.notes, *_left_out(others)]:
         print(f"note: {note}")
     for problem in result.problems:
         print(f"POOR FIT (written because of --accept-poor-fit): {problem}")
     return 0
+
+
+def _left_out(others) -> list[str]:
+    if not others:
+        return []
+    kinds = ", ".join(dict.fromkeys(r.quantity.name for r in others))
+    return [f"calibration fits DC readings only; {len(others)} reading(s) of {kinds} left out"]
 
 
 def fitted_toml(entry: ProfileEntry, original: Profile, result, readings_path: str) -> str:

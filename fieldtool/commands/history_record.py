@@ -17,8 +17,10 @@ from __future__ import annotations
 import argparse
 import json
 import os
+from dataclasses import replace
 
 from fieldtool.commands.boards import PROFILE_HELP, login_name, profile_arg
+from fieldtool.commands.diagnosis import READINGS_ARG, next_lines, part_names
 from fieldtool.commands.history_text import safe
 from fieldtool.commands.options import technician
 from fieldtool.commands.store import PRIORS_STORE_HELP, add_store_option, notice, store_of
@@ -27,6 +29,7 @@ from fieldtool.core.circuit.profile import Profile
 from fieldtool.core.circuit.spec import display_name
 from fieldtool.core.diagnosis.dictionary_cache import load_or_build
 from fieldtool.core.diagnosis.faults import BOARD_TARGETS, parse_fault
+from fieldtool.core.diagnosis.ranking import Diagnosis
 from fieldtool.core.errors import InputError
 from fieldtool.core.history import (
     Action,
@@ -55,7 +58,7 @@ def register(subparsers: argparse._SubParsersAction, logs_help: str, outcomes) -
     )
     p.add_argument("profile", help=PROFILE_HELP)
     p.add_argument("--board", required=True, help="board serial")
-    p.add_argument("--readings", required=True, help="readings CSV (node,volts[,ripple_vpp])")
+    p.add_argument("--readings", required=True, help=f"readings {READINGS_ARG}")
     p.add_argument(
         "--action",
         action="append",
@@ -64,7 +67,9 @@ def register(subparsers: argparse._SubParsersAction, logs_help: str, outcomes) -
     )
     p.add_argument("--part", help="part used (with a single --action), e.g. '1N4007 from stock'")
     p.add_argument("--note", help="a note on the action (with a single --action)")
-    p.add_argument("--verify", metavar="FILE", help="readings CSV taken after the repair")
+    p.add_argument(
+        "--verify", metavar="FILE", help="readings CSV taken after the repair (either form)"
+    )
     p.add_argument("--outcome", choices=outcomes, help="close the session with this outcome")
     p.add_argument(
         "--technician", type=technician, help="who did the work (default: your login name)"
@@ -129,8 +134,15 @@ def run_record(args: argparse.Namespace) -> int:
         a = actions[0]
         actions = [Action(a.designator, a.done, a.mode, args.part, args.note or "")]
     dictionary = load_or_build(profile)
-    readings = load_readings(args.readings, dictionary.nodes, profile.labels)
-    after = load_readings(args.verify, dictionary.nodes, profile.labels) if args.verify else ()
+    names = part_names(dictionary)
+    readings = load_readings(
+        args.readings, dictionary.nodes, profile.labels, names, dictionary.rails
+    )
+    after = (
+        load_readings(args.verify, dictionary.nodes, profile.labels, names, dictionary.rails)
+        if args.verify
+        else ()
+    )
     failures = store_failures(store_of(args), logs, notice)
     priors = choose_priors(profile, dictionary.hypotheses, failures)
     events: list[Event] = []
@@ -143,10 +155,10 @@ def run_record(args: argparse.Namespace) -> int:
         technician=args.technician or login_name(),
     )
     session_id = session.open()
-    diagnosis = session.take(*readings)
+    diagnosis = take_in_steps(session, readings)
     if actions:
         session.record_repair(*actions)
-        session.take(*after)
+        take_in_steps(session, after)
     elif not args.outcome:
         session.save_diagnosis()  # a session left open still says what the engine thought
     if args.outcome:
@@ -188,7 +200,28 @@ def run_record(args: argparse.Namespace) -> int:
             f"  {s.probability:6.1%}  {safe(s.words)}  "
             f"(prior {s.prior:.2%}, {safe(s.prior_source)})"
         )
-    if diagnosis.next_probe:
-        lines.append(f"next node worth probing: {diagnosis.next_probe}")
+    if diagnosis.fit.no_fit:
+        lines.insert(1, "NO FIT: " + safe(diagnosis.fit.text))
+    lines += next_lines(dictionary, diagnosis)
     print("\n".join(lines))
     return 0
+
+
+def take_in_steps(session: BoardSession, readings) -> Diagnosis:
+    """A file's readings taken as the technician took them: the powered ones, then (when there
+    are diode tests) the power-off step, which the file's diode tests show was taken and
+    verified, then the readings with the board off; a diode test's part by its default
+    designator, as the session keeps parts."""
+    d = session.dictionary
+    powered = [m for m in readings if m.quantity.powered]
+    off = [replace(m, at=d.resolve_part(m.at)) for m in readings if not m.quantity.powered]
+    diagnosis = session.diagnosis
+    if powered:
+        if not session.powered:
+            session.power(True)
+        diagnosis = session.take(*powered)
+    if off:
+        if session.powered:
+            session.power(False)
+        diagnosis = session.take(*off)
+    return diagnosis

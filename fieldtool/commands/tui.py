@@ -8,10 +8,7 @@ import random
 import sys
 import tempfile
 from collections.abc import Callable
-from functools import partial
 from pathlib import Path
-
-import numpy as np
 
 from fieldtool.commands.boards import PROFILE_HELP, login_name, profile_arg
 from fieldtool.commands.meters import BAUD
@@ -21,7 +18,7 @@ from fieldtool.core import history as hist
 from fieldtool.core.circuit.library import user_profiles_dir
 from fieldtool.core.circuit.netlist import build_circuit
 from fieldtool.core.circuit.profile import Profile
-from fieldtool.core.diagnosis.dictionary import FaultDictionary
+from fieldtool.core.diagnosis.coverage import coverage
 from fieldtool.core.diagnosis.dictionary_cache import load_or_build
 from fieldtool.core.diagnosis.faults import Fault, catalog
 from fieldtool.core.errors import InputError
@@ -178,23 +175,8 @@ def demo_fault(profile: Profile, seed: int, findable: Findable | None = None) ->
 def demo_findable(profile: Profile, cache_dir: str | None = None) -> Findable:
     """Which faults the demo may hide: those the board's measurement kinds can find, per
     ``coverage`` of the board's fault dictionary (built and cached on first use)."""
-    dictionary = load_or_build(profile, cache_dir=cache_dir)
-    try:
-        from fieldtool.core.diagnosis.coverage import coverage
-    except ImportError:  # a diagnosis over DC nodes only: what DC volts can find
-        return partial(_dc_findable, dictionary)
-    cover = coverage(dictionary)
+    cover = coverage(load_or_build(profile, cache_dir=cache_dir))
     return lambda fault: cover.findable(fault.key, fault.severity)
-
-
-def _dc_findable(d: FaultDictionary, fault: Fault) -> bool:
-    """True when some node's DC reading moves beyond 3× its spread from healthy."""
-    rows = d.rows_of(fault.key)
-    if fault.severity is not None and len(rows) > 1:
-        rows = rows[[int(np.argmin(np.abs(np.log(d.row_severity[rows] / fault.severity))))]]
-    h = d.rows_of("healthy")[0]
-    spread = np.sqrt(d.sigma[rows] ** 2 + d.sigma[h] ** 2 + d.meter_sigma(d.mean[h]) ** 2)
-    return bool((np.abs(d.mean[rows] - d.mean[h]) > FINDABLE_SIGMAS * spread).any())
 
 
 def run_demo(args: argparse.Namespace) -> int:

@@ -15,7 +15,6 @@ confirmed failures that any store can provide.
 
 from __future__ import annotations
 
-import inspect
 from collections.abc import Callable, Mapping, Sequence
 from pathlib import Path
 
@@ -36,9 +35,6 @@ from fieldtool.core.measurement import DC, Measurement, Quantity
 
 SNAPSHOT_SUSPECTS = 5  # how many suspects a diagnosis snapshot keeps
 SUPPLY, DRIVE = "supply", "drive"  # the rails a meter goes in series with
-# A diagnosis over every kind also learns whether the board is powered (its efforts change);
-# one over DC nodes only is given the readings at nodes.
-_DIAGNOSIS_OVER_KINDS = "powered" in inspect.signature(diagnose).parameters
 
 FailureCounts = Mapping[tuple[str, str], int]
 FailureSource = Callable[[str], FailureCounts]
@@ -234,10 +230,8 @@ class BoardSession:
         return self._rediagnose()
 
     def _diagnose(self, measurements: Sequence[Measurement]) -> Diagnosis:
-        if _DIAGNOSIS_OVER_KINDS:
-            return diagnose(self.dictionary, measurements, self.priors, powered=self.powered)
-        at_nodes = [m for m in measurements if m.quantity.taken_at == "node"]
-        return diagnose(self.dictionary, at_nodes, self.priors)
+        # the power state changes what each next measurement costs
+        return diagnose(self.dictionary, measurements, self.priors, powered=self.powered)
 
     def deciding(self, key: str) -> tuple[Measurement | None, float]:
         """The probing reading that raised hypothesis ``key`` most (replayed in the order

@@ -72,24 +72,16 @@ class Choice:
 
 
 def worth_map(diagnosis: Diagnosis) -> dict[tuple[str, str], float]:
-    """(at, kind) → expected bits per unit of effort; from the DC gains where the diagnosis
-    gives no worth over kinds."""
-    worth = getattr(diagnosis, "worth", None)  # absent from a diagnosis over DC nodes only
-    if worth:
-        return dict(worth)
-    return {(node, DC.name): bits for node, bits in diagnosis.gains.items()}
+    """(at, kind) → expected bits per unit of effort of every measurement still available."""
+    return dict(diagnosis.worth)
 
 
 def suggested(session: BoardSession) -> Choice | None:
-    """The diagnosis's next measurement as a choice (its next DC node where it has no
-    suggestion over kinds)."""
-    d = session.diagnosis
-    best = getattr(d, "next_measurement", None)
-    if best is not None:
-        return Choice(best.at, QUANTITIES[best.quantity], tuple(best.conditions), best.words)
-    if d.next_probe is None:
+    """The diagnosis's next measurement as a choice, or None when nothing is worth taking."""
+    best = session.diagnosis.next_measurement
+    if best is None:
         return None
-    return Choice(d.next_probe, DC, (), f"DC volts at {d.next_probe}")
+    return Choice(best.at, QUANTITIES[best.quantity], tuple(best.conditions), best.words)
 
 
 def level(score: float | None, best: float) -> int:

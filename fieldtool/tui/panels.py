@@ -45,7 +45,7 @@ class SuspectsPanel(Static):
         d = self.diagnosis
         if d is None:
             return Content("")
-        best = getattr(d, "next_measurement", None)  # on a diagnosis over every kind
+        best = d.next_measurement
         if best is not None:
             bits = f" {best.gain_bits:.2f} bits "
             if len(best.words) + len(bits) + 10 > self.size.width:
@@ -53,21 +53,12 @@ class SuspectsPanel(Static):
             return Content.assemble(
                 "Next ▸ ", (best.words, "bold $text-accent"), bits, ("[n]", "bold")
             )
-        if d.next_probe is None:
-            top = d.suspects[0] if d.suspects else None
-            if top is not None and top.probability >= 0.9:
-                return Content.assemble(
-                    ("Past 90 %: ", "bold"), f"{top.words}. ", ("[r]", "bold"), " records a repair"
-                )
-            return Content.styled("No probe left that would change the ranking.", "$text-muted")
-        tp = self.labels.get(d.next_probe, "")
-        where = f"{d.next_probe} ({tp})" if tp else d.next_probe
-        return Content.assemble(
-            "Next ▸ ",
-            (where, "bold $text-accent"),
-            f" {d.next_probe_gain_bits:.2f} bits ",
-            ("[n]", "bold"),
-        )
+        top = d.suspects[0] if d.suspects else None
+        if top is not None and top.probability >= 0.9:
+            return Content.assemble(
+                ("Past 90 %: ", "bold"), f"{top.words}. ", ("[r]", "bold"), " records a repair"
+            )
+        return Content.styled("No measurement left that would change the ranking.", "$text-muted")
 
     def refresh_text(self) -> None:
         """Redraw for the current width and height."""

@@ -220,6 +220,85 @@ def test_calibrate_missing_readings_file(tmp_path):
     assert code == 2 and "readings file not found" in err and err.count("\n") == 1
 
 
+# --- coverage -----------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("profile", [DICKSON, DC_LADDER], ids=lambda p: p.stem)
+def test_coverage_lists_every_fault_and_what_finds_it(profile, dictionary_cache):
+    out = _json(["coverage", str(profile), "--json", "--cache", str(dictionary_cache)])
+    hyps = catalog(load_profile(profile), build_circuit(load_profile(profile))[0])
+    assert {f["fault"].split(":")[1] for f in out["faults"]} == {
+        h.mode for h in hyps if h.target is not None
+    }
+    assert "dc" in out["kinds"]
+    for f in out["faults"]:
+        assert set(f["found_by"]) <= set(out["kinds"])
+        assert (f["fault"] in out["not_findable"]) <= (not f["found_by"])
+    code, text, err = _run(["coverage", str(profile), "--cache", str(dictionary_cache)])
+    assert code == 0 and err == ""
+    assert "beyond 3x the spread" in text
+    first = out["faults"][0]
+    assert any(line.startswith(first["words"]) for line in text.splitlines())
+
+
+def test_coverage_of_a_missing_profile_is_one_line_exit_2(tmp_path):
+    code, out, err = _run(["coverage", str(tmp_path / "nope.toml")])
+    assert code == 2 and out == "" and err.count("\n") == 1
+
+
+# --- long-form readings -------------------------------------------------------------------
+
+
+def _long_form(tmp_path, faulted: dict) -> str:
+    """Every kind `inject` predicts for the faulted board, in the long form with units."""
+    out = faulted["output_node"]
+    rows = ["measure,at,value"]
+    rows += [f"dc,{n['node']},{n['volts']!r}" for n in faulted["nodes"]]
+    node = next(n for n in faulted["nodes"] if n["node"] == out)
+    rows.append(f"ripple-pp,{out},{node['ripple_pp_scope_volts'] * 1e3!r}mV")
+    rows.append(f"current,supply,{faulted['supply_current_metered_a'] * 1e3!r}mA")
+    first = faulted["diode_tests"][0]
+    volts = first["forward"]["volts"]
+    rows.append(f"diode-test,{first['designator']},{'OL' if volts is None else repr(volts)}")
+    path = tmp_path / "long.csv"
+    path.write_text("\n".join(rows) + "\n", encoding="utf-8")
+    return str(path)
+
+
+def test_diagnose_reads_the_long_form_and_names_the_next_measurement(dictionary_cache, tmp_path):
+    faulted = _json(["inject", str(DC_LADDER), "--fault", "C4:lowcap=0.1", "--json"])
+    csv = _long_form(tmp_path, faulted)
+    argv = ["diagnose", str(DC_LADDER), "--readings", csv, "--cache", str(dictionary_cache)]
+    out = _json(argv + ["--json"])
+    kinds = {"dc", "ripple-pp", "current", "diode-test"}
+    assert not out["ignored"]
+    assert {w["quantity"] for w in out["worth"]} <= kinds | {"ac-rms"}
+    nxt = out["next_measurement"]
+    assert nxt is None or {"at", "quantity", "conditions", "words", "caution"} <= set(nxt)
+    code, text, err = _run(argv)
+    assert code == 0, err
+    for kind in kinds:
+        assert f" {kind}" in text
+    assert "next: " in text and ("CAUTION" in text or "WARNING" in text)
+    if nxt is not None and nxt["caution"]:
+        # under the board's signal word (this board's output passes the safe level)
+        assert f"WARNING: {nxt['caution']}" in text
+
+
+def test_calibrate_takes_the_long_form_and_says_what_it_left_out(tmp_path):
+    board = load_profile(DICKSON)
+    rows = ["measure,at,value"] + [f"dc,{n.node},{n.volts!r}V" for n in expect(board).nodes]
+    rows.append(f"ripple-pp,{expect(board).nodes[-1].node},20mV")
+    path = tmp_path / "golden.csv"
+    path.write_text("\n".join(rows) + "\n")
+    out_path = tmp_path / "fitted.toml"
+    summary = _json(
+        ["calibrate", str(DICKSON), "--readings", str(path), "--out", str(out_path), "--json"]
+    )
+    assert summary["rms_residual_volts"] < board.meter_volts
+    assert any("ripple-pp left out" in n for n in summary["notes"])
+
+
 def test_calibrate_refuses_readings_from_a_failed_board(tmp_path):
     """Readings of a board with an open diode fit as a collapsed drive and a huge diode drop;
     calibrate must say so and write nothing, unless told to write it anyway."""

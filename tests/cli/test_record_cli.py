@@ -218,3 +218,39 @@ def test_record_refuses_an_unknown_outcome(tmp_path, capsys, d3_open_csv):
         main([*argv, "--readings", str(d3_open_csv), "--outcome", "sort-of"])
     assert stop.value.code == 2 and "invalid choice: 'sort-of'" in capsys.readouterr().err
     assert not (tmp_path / "logs").exists()
+
+
+def test_record_takes_long_form_readings_and_shows_the_next_measurement(capsys, tmp_path, profile):
+    e = expect(profile, fault=Fault("D3", "open"))
+    rows = ["measure,at,value"] + [f"dc,{n.node},{n.volts * 1e3:.1f}mV" for n in e.nodes[:3]]
+    rows += ["current,supply,2.1mA", "diode-test,D3,OL"]  # every kind goes into the session
+    path = tmp_path / "long.csv"
+    path.write_text("\n".join(rows) + "\n")
+    code, out, err = _record(capsys, tmp_path / "logs", "--board", "L-1", "--readings", str(path))
+    assert code == 0, err
+    assert "5 reading(s)" in out
+    assert "next: " in out
+    logged = h.read_board(tmp_path / "logs", "L-1").events
+    kinds = {r.event.measurement.quantity.name for r in logged if isinstance(r.event, h.Reading)}
+    assert kinds == {"dc", "current", "diode-test"}
+    code, out, err = _record(
+        capsys, tmp_path / "logs", "--board", "L-2", "--readings", str(path), "--json"
+    )
+    diagnosis = json.loads(out)["diagnosis"]
+    nxt = diagnosis["next_measurement"]
+    assert nxt is None or nxt["quantity"] in {
+        "dc",
+        "ripple-pp",
+        "ac-rms",
+        "current",
+        "dc-loaded",
+        "diode-test",
+    }
+    assert {w["quantity"] for w in diagnosis["worth"]} <= {
+        "dc",
+        "ripple-pp",
+        "ac-rms",
+        "current",
+        "dc-loaded",
+        "diode-test",
+    }

@@ -141,6 +141,8 @@ def test_a_readings_file_gives_dc_and_ripple_measurements():
     assert parse_readings_csv(readings_csv(got), NODES, where="bench.csv") == got
 
 
-def test_readings_csv_needs_a_dc_reading_where_a_ripple_is():
-    with pytest.raises(InputError, match="none at"):
-        readings_csv([Measurement("S1", RIPPLE_PP, 0.02, Source("typed"))])
+def test_a_ripple_without_its_node_s_dc_is_written_in_the_long_form():
+    alone = (Measurement("S1", RIPPLE_PP, 0.02, Source("file", "r.csv"), settled=True),)
+    text = readings_csv(alone)
+    assert text.splitlines()[0] == "measure,at,value"
+    assert parse_readings_csv(text, NODES, where="r.csv") == alone

@@ -65,6 +65,13 @@ def test_shipped_profiles_load():
             "[test_loads.rated_watts] has 2 values for 1 loads",
         ),
         ({"test_loads": {"rated_watts": [0.25]}}, "[test_loads.ohms] is missing"),
+        ({"efforts": {"current": 0}}, "[efforts.current] is 0, expected above 0 and below 1000"),
+        ({"efforts": {"dc": "one"}}, "[efforts.dc] is 'one' (str), expected a number"),
+        ({"efforts": {"scope": 2}}, "[efforts.scope] is not a known key"),
+        (
+            {"efforts": {"power_off": 5000}},
+            "[efforts.power_off] is 5000, expected above 0 and below 1000",
+        ),
     ],
 )
 def test_profile_mistakes_have_clear_messages(sections, expected):
@@ -92,6 +99,22 @@ def test_instrument_settings_default_and_override():
     assert p.instruments.probe_farads == 15e-12
     assert [(t.ohms, t.rated_watts) for t in p.test_loads] == [(10e3, 0.5), (100e3, 0.25)]
     assert make_profile(test_loads={"ohms": [4.7e3]}).test_loads[0].rated_watts is None
+
+
+def test_efforts_default_and_override():
+    # The defaults are common practice, no source (README, "Finding the failed part").
+    e = make_profile().efforts
+    assert (e.dc, e.ripple_pp, e.dc_loaded, e.current, e.power_off, e.diode_test) == (
+        1.0,
+        1.5,
+        3.0,
+        4.0,
+        6.0,
+        1.0,
+    )
+    p = make_profile(efforts={"current": 1.5, "power_off": 12})
+    assert (p.efforts.current, p.efforts.power_off, p.efforts.dc) == (1.5, 12.0, 1.0)
+    assert p.efforts.of("dc-loaded") == 3.0 and p.efforts.of("current") == 1.5
 
 
 def test_missing_file_and_bad_toml(tmp_path: Path):

@@ -186,3 +186,20 @@ def test_supply_lead_and_driver_rail_share_the_input_current_by_charge_balance(t
     i_out = period_average(ss.period)[0, circuit.output_node - 1] / 47e3
     assert r.supply_amps[0] == pytest.approx(i_out, rel=0.005)
     assert r.rail_amps[0] == pytest.approx(4 * i_out, rel=0.005)
+
+
+def test_true_rms_as_a_quadratic_form_of_the_samples_is_the_same_number():
+    # Resampling, the discrete Fourier transform and a per-harmonic gain are linear, so the AC
+    # power is a quadratic form of the samples (Parseval); the dictionary reads every row that
+    # way. Checked here against the direct computation on random waveforms and gains.
+    rng = np.random.default_rng(3)
+    waves = rng.normal(size=(5, len(UNEVEN) - 1))
+    K = waveform.harmonics(UNEVEN, waves).shape[-1]
+    gain = rng.uniform(0.2, 1.0, size=K)
+    Q = waveform.rms_form(UNEVEN, gain)
+    direct = waveform.true_rms(UNEVEN, waves, gain)
+    as_form = np.sqrt(np.einsum("bt,ts,bs->b", waves, Q, waves))
+    np.testing.assert_allclose(as_form, direct, rtol=1e-10)
+    np.testing.assert_allclose(
+        waveform.resample(UNEVEN, waves)[:, 0], waves[:, -1], rtol=1e-12
+    )  # periodic: the grid's first point is the period's last sample

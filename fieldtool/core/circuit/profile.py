@@ -25,6 +25,7 @@ from fieldtool.core.circuit.spec import (
     WAVEFORMS,
     CapacitorSpec,
     DiodeSpec,
+    Efforts,
     InstrumentSpec,
     LoadResistor,
     Profile,
@@ -251,6 +252,18 @@ def _instruments(meter: _Table, scope: _Table) -> InstrumentSpec:
     return spec
 
 
+def _efforts(path: str, data: Any) -> Efforts:
+    """``[efforts]``: each measurement step's effort, relative to a DC reading (defaults: spec)."""
+    d = Efforts()
+    t = _Table(path, "efforts", data if data is not None else {})
+    values = {
+        name: t.number(name, getattr(d, name), limit=ranges.EFFORT)
+        for name in Efforts.__dataclass_fields__
+    }
+    t.finish()
+    return Efforts(**values)
+
+
 MAX_TEST_LOADS = 8
 
 
@@ -359,6 +372,7 @@ _SECTIONS = (
     "meter",
     "scope",
     "test_loads",
+    "efforts",
     "bleeder",
     "designators",
     "labels",
@@ -476,6 +490,7 @@ def profile_from_dict(data: dict[str, Any], path: str = "<profile>", digest: str
     )
     instruments = _instruments(meter, _Table(path, "scope", data.get("scope", {})))
     test_loads = _test_loads(path, data.get("test_loads"))
+    efforts = _efforts(path, data.get("efforts"))
 
     designators = _string_map(path, "designators", data.get("designators", {}))
     labels = _string_map(path, "labels", data.get("labels", {}))
@@ -528,6 +543,7 @@ def profile_from_dict(data: dict[str, Any], path: str = "<profile>", digest: str
         meter_range_volts=meter_range,
         instruments=instruments,
         test_loads=test_loads,
+        efforts=efforts,
     )
     _check_names(profile)
     return profile

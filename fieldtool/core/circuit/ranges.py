@@ -156,3 +156,12 @@ SETTLE_S = Range(0.01, 3600.0, "s", "from a blink to an hour at the bench")
 PROBE_FARADS = Range(0.0, 1e-6, "F", "a probe's own capacitance is picofarads", high_open=True)
 TEST_LOAD_OHMS = CONDITIONS["test_load_ohms"]  # a profile's test load and a reading's alike
 RATED_WATTS = Range(1e-3, 1e4, "W", "from a small film resistor to a load bank")
+
+EFFORT = Range(
+    0.0,
+    1000.0,
+    "",
+    "a step's effort relative to one DC reading on a powered node, which is 1",
+    low_open=True,
+    high_open=True,
+)

@@ -70,6 +70,26 @@ class InstrumentSpec:
 
 
 @dataclass(frozen=True)
+class Efforts:
+    """What each measurement step costs the technician, in units of one DC reading on a
+    powered node (common practice, no source; each overridable in the profile's
+    ``[efforts]`` table). The next measurement is chosen by information gain per effort."""
+
+    dc: float = 1.0  # a DC reading on a powered node
+    ripple_pp: float = 1.5  # ripple on the scope: change instrument
+    ac_rms: float = 1.5  # AC volts: change the meter's mode
+    dc_loaded: float = 3.0  # clip a test load on (off, discharged, clip, power up) and read
+    current: float = 4.0  # break the supply lead and put the meter in series
+    power_off: float = 6.0  # the first power-off check: off, discharge, verify every node
+    diode_test: float = 1.0  # each further diode test with the board off
+    power_on: float = 2.0  # back to powered readings after power-off: unclip, re-power
+
+    def of(self, quantity: str) -> float:
+        """The effort of one reading of a quantity (``dc``, ``ripple-pp``, ...), board as is."""
+        return float(getattr(self, quantity.replace("-", "_")))
+
+
+@dataclass(frozen=True)
 class LoadResistor:
     """A test load resistor kept for the board: its resistance and power rating."""
 
@@ -115,6 +135,7 @@ class Profile:
     meter_range_volts: float | None = None  # beyond it the meter shows overload; None: no limit
     instruments: InstrumentSpec = field(default_factory=InstrumentSpec)
     test_loads: tuple[LoadResistor, ...] = ()  # resistors kept for clipping on the output
+    efforts: Efforts = field(default_factory=Efforts)  # each measurement step's effort
 
     @property
     def thermal_volts(self) -> float:

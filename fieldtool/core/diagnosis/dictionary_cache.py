@@ -31,7 +31,25 @@ from fieldtool.core.diagnosis.dictionary import (
 from fieldtool.core.diagnosis.faults import Hypothesis
 
 ENV_VAR = "FIELDTOOL_CACHE"
-_ARRAYS = ("row_hypothesis", "row_severity", "mean", "sigma", "ripple", "unloaded", "meter_solved")
+_ARRAYS = (
+    "row_hypothesis",
+    "row_severity",
+    "mean",
+    "sigma",
+    "ripple",
+    "unloaded",
+    "meter_solved",
+    "ripple_sigma",
+    "ac_rms",
+    "ac_sigma",
+    "current",
+    "current_sigma",
+    "loaded",
+    "loaded_sigma",
+    "drop_sigma",
+    "diode_volts",
+    "diode_sigma",
+)
 
 
 def default_cache_dir(env: Mapping[str, str]) -> Path:
@@ -48,6 +66,7 @@ def cache_key(profile: Profile) -> str:
     values = dataclasses.asdict(profile)
     values.pop("path", None)
     values.pop("digest", None)
+    values.pop("efforts", None)  # the steps' efforts change the suggestions, not the dictionary
     text = json.dumps(
         {"profile": values, "version": DICTIONARY_VERSION, "steps": STEPS_PER_PERIOD},
         sort_keys=True,
@@ -70,6 +89,11 @@ def save(d: FaultDictionary, path: Path) -> None:
         "labels": d.labels,
         "hypotheses": [[h.key, h.target, h.mode, list(h.severities), h.kind] for h in d.hypotheses],
         "failed": list(d.failed),
+        "rails": list(d.rails),
+        "test_loads": list(d.test_loads),
+        "diodes": list(d.diodes),
+        "diode_lift": list(d.diode_lift),
+        "output_node": d.output_node,
     }
     buffer = io.BytesIO()
     arrays = {name: getattr(d, name) for name in _ARRAYS}
@@ -108,12 +132,30 @@ def load(path: Path, profile: Profile) -> FaultDictionary | None:
             labels=dict(meta["labels"]),
             hypotheses=hyps,
             failed=tuple(meta["failed"]),
+            rails=tuple(meta["rails"]),
+            test_loads=tuple(float(r) for r in meta["test_loads"]),
+            diodes=tuple(meta["diodes"]),
+            diode_lift=tuple(meta["diode_lift"]),
+            output_node=str(meta["output_node"]),
             **arrays,
         )
-    except (TypeError, ValueError):
+    except (TypeError, ValueError, KeyError):
         return None
     R, P = len(d.row_hypothesis), len(d.nodes)
-    if any(getattr(d, n).shape != (R, P) for n in _ARRAYS[2:]) or d.row_severity.shape != (R,):
+    Q, L, k = len(d.rails), len(d.test_loads), len(d.diodes)
+    shapes = {
+        "row_severity": (R,),
+        "current": (R, Q),
+        "current_sigma": (R, Q),
+        "loaded": (R, L, P),
+        "loaded_sigma": (R, L, P),
+        "drop_sigma": (R, L, P),
+        "diode_volts": (R, k),
+        "diode_sigma": (R, k),
+    }
+    if any(getattr(d, n).shape != shapes.get(n, (R, P)) for n in _ARRAYS[1:]):
+        return None
+    if len(d.diode_lift) != k:
         return None
     return d
 

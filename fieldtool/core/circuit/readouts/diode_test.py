@@ -37,6 +37,7 @@ from fieldtool.core.circuit.spec import InstrumentSpec
 FIRST_STEP_S = 1e-6
 STEP_GROWTH = 1.05  # near the limit each step is 5 % of the time so far (settle time to ~5 %)
 COARSE_GROWTH = 1.5  # away from it, where only the final value matters
+FINAL_ONLY_GROWTH = 3.0  # no settle time wanted: only the final value (``settle=False``)
 SETTLE_HORIZON_S = 100.0  # a reading still moving after this is never read
 PARALLEL_SHARE = 0.5  # forward: the part must carry at least this share of the test current
 DIRECTIONS = ("forward", "reverse")
@@ -89,6 +90,48 @@ def diode_tests(
     variant = np.repeat(np.arange(B), 2 * k)
     part = np.tile(np.repeat(cols, 2), B)
     reverse = np.tile(np.array([False, True]), B * k)
+    t = diode_test_rows(circuit, params, instruments, variant, part, reverse)
+    shape = (B, k, 2)
+    return DiodeTests(
+        diodes=refs,
+        volts=t.volts.reshape(shape),
+        over_range=t.over_range.reshape(shape),
+        settle_s=t.settle_s.reshape(shape),
+        share=t.share.reshape(shape),
+        volts_per_drop=t.volts_per_drop.reshape(*shape, -1),
+        lift=t.lift.reshape(shape),
+        settle_limit_s=instruments.diode_settle_s,
+    )
+
+
+@dataclass(frozen=True)
+class DiodeTestRows:
+    """Diode-test readings for R chosen (variant, diode, direction) triples, flat."""
+
+    volts: np.ndarray  # (R,) the settled reading; NaN where the meter shows OL
+    over_range: np.ndarray  # (R,) bool
+    settle_s: np.ndarray  # (R,) inf where a coarse run cannot tell (``settle=False``)
+    share: np.ndarray  # (R,) fraction of the test current through the part itself
+    volts_per_drop: np.ndarray  # (R, k_all) ∂reading/∂(each diode's forward drop)
+    lift: np.ndarray  # (R,) bool (only meaningful with ``settle=True``)
+
+
+def diode_test_rows(
+    circuit: Circuit,
+    params: Params,
+    instruments: InstrumentSpec,
+    variant: np.ndarray,
+    part: np.ndarray,
+    reverse: np.ndarray,
+    settle: bool = True,
+) -> DiodeTestRows:
+    """The diode tests of chosen triples: variant row, diode column, reversed or not.
+
+    With ``settle`` False the run takes coarse steps throughout (about a seventh of the steps):
+    the settled reading and its sensitivities are the same, the settle time is not computed
+    (inf) and ``lift`` only reflects the parallel paths (for callers that judge settling on
+    another board, such as the fault dictionary judging it on the healthy one).
+    """
     ends = circuit.diode_nodes[part]  # (R, 2) anode, cathode
     red = np.where(reverse, ends[:, 1], ends[:, 0])
     black = np.where(reverse, ends[:, 0], ends[:, 1])
@@ -100,26 +143,27 @@ def diode_tests(
     np.add.at(inject, (np.arange(R), red), amps)
     np.add.at(inject, (np.arange(R), black), -amps)
     b_src = inject[:, 1:]  # ground (index 0) takes the rest
-    reading, times, (J, state) = _transient(net, b_src, red, black, instruments)
+    reading, times, (J, state) = _transient(net, b_src, red, black, instruments, settle)
     final = reading[:, -1]
     tol = (
         np.abs(final) * instruments.diode_accuracy_percent / 100 + instruments.diode_accuracy_volts
     )
     over = (reading > instruments.diode_test_volts).any(axis=1)
-    settle = np.where(over, 0.0, settle_time(times, reading, tol))
+    if settle:
+        settle_s = np.where(over, 0.0, settle_time(times, reading, tol))
+    else:
+        settle_s = np.where(over, 0.0, np.inf)
     share = _part_current(rows, state, part, reverse, net) / amps
     sens = _drop_sensitivity(rows, state, net, J, red, black)  # (R, k_all)
-    lift = ~over & ((settle > instruments.diode_settle_s) | (~reverse & (share < PARALLEL_SHARE)))
-    shape = (B, k, 2)
-    return DiodeTests(
-        diodes=refs,
-        volts=np.where(over, np.nan, final).reshape(shape),
-        over_range=over.reshape(shape),
-        settle_s=settle.reshape(shape),
-        share=share.reshape(shape),
-        volts_per_drop=sens.reshape(*shape, -1),
-        lift=lift.reshape(shape),
-        settle_limit_s=instruments.diode_settle_s,
+    slow = settle_s > instruments.diode_settle_s if settle else np.zeros(R, dtype=bool)
+    lift = ~over & (slow | (~reverse & (share < PARALLEL_SHARE)))
+    return DiodeTestRows(
+        volts=np.where(over, np.nan, final),
+        over_range=over,
+        settle_s=settle_s,
+        share=share,
+        volts_per_drop=sens,
+        lift=lift,
     )
 
 
@@ -149,8 +193,12 @@ def _transient(
     red: np.ndarray,
     black: np.ndarray,
     instruments: InstrumentSpec,
+    settle: bool = True,
 ) -> tuple[np.ndarray, np.ndarray, tuple[np.ndarray, StepState]]:
-    """Backward Euler from all-discharged; the reading (R, S) at times (S,), last Jacobian."""
+    """Backward Euler from all-discharged; the reading (R, S) at times (S,), last Jacobian.
+
+    ``settle`` False: coarse steps throughout (only the final value is wanted).
+    """
     R, n = b_src.shape
     m = net.Ac.shape[0]
     state = StepState(np.zeros((R, n)), np.zeros((R, net.Ad.shape[0])))
@@ -160,6 +208,9 @@ def _transient(
     t, h = 0.0, FIRST_STEP_S
     readings, times = [], []
     near = (0.1 * instruments.diode_settle_s, 10 * instruments.diode_settle_s)
+    coarse = COARSE_GROWTH
+    if not settle:
+        near, coarse = (np.inf, np.inf), FINAL_ONLY_GROWTH
     while t < SETTLE_HORIZON_S:
         x, _, _ = step(net, x, state, b_src, h, False)
         # Every step here has its own length, so the network's per-length matrices are never
@@ -169,7 +220,7 @@ def _transient(
         full[:, 1:] = state.v
         readings.append(full[rows, red] - full[rows, black])
         times.append(t)
-        growth = STEP_GROWTH if near[0] <= t <= near[1] else COARSE_GROWTH
+        growth = STEP_GROWTH if near[0] <= t <= near[1] else coarse
         h = (growth - 1.0) * t
     J, _ = newton(net, x, state, b_src, h)  # the Jacobian at the settled point
     return np.stack(readings, axis=1), np.array(times), (J, state)

@@ -105,7 +105,7 @@ def corners(circuit: Circuit, times: np.ndarray) -> np.ndarray:
     return edge_samples(times, circuit.edge_fraction * circuit.period_s, square_drive(circuit))
 
 
-def _ac_gain(
+def ac_gain(
     circuit: Circuit, g: np.ndarray, c: np.ndarray, instruments: InstrumentSpec
 ) -> np.ndarray:
     """(B, P, K) the AC meter's response to each harmonic at each node."""
@@ -120,7 +120,7 @@ def ac_rms_reading(
     """(B, P) what a true-RMS meter on AC volts reads at each probe node (no DC drawn)."""
     probe = np.array(circuit.probe_nodes) - 1
     wave = np.moveaxis(period.v[:, :, probe], 1, -1)  # (B, P, T)
-    gain = _ac_gain(circuit, *node_admittance(circuit, params), instruments)
+    gain = ac_gain(circuit, *node_admittance(circuit, params), instruments)
     return true_rms(period.times, wave, gain)
 
 
@@ -390,7 +390,7 @@ def _waveform_sigmas(
     base = np.moveaxis(period.v[:, :, probe], 1, -1)[:, None]  # (B, 1, P, T)
     d_ripple = peak_to_peak(per.times, moved, cut) - peak_to_peak(per.times, base, cut)
     g, c = node_admittance(circuit, params)
-    gain = _ac_gain(circuit, g, c, profile.instruments)  # (B, P, K)
+    gain = ac_gain(circuit, g, c, profile.instruments)  # (B, P, K)
     d_ac = true_rms(per.times, moved, gain[:, None]) - true_rms(per.times, base, gain[:, None])
     return np.sqrt((d_ripple**2).sum(axis=1)), np.sqrt((d_ac**2).sum(axis=1))
 

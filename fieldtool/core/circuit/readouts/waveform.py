@@ -84,15 +84,38 @@ def edge_samples(times: np.ndarray, edge_s: float, square: bool) -> np.ndarray:
     return on_first | on_second | (t >= times[-1] - tiny)
 
 
-def resample(times: np.ndarray, wave: np.ndarray, points: int = RESAMPLE_POINTS) -> np.ndarray:
-    """The waveform on ``points`` equal steps over one period (linear between samples)."""
+def resample_matrix(times: np.ndarray, points: int = RESAMPLE_POINTS) -> np.ndarray:
+    """(T, points): a period's samples on ``times`` (T+1,) times this matrix are the waveform
+    on ``points`` equal steps (linear between samples, periodic: v(0) = v(T))."""
     period = times[-1]
     grid = np.arange(points) * (period / points)
-    flat = wave.reshape(-1, wave.shape[-1])
     t = np.concatenate([[0.0], times[1:]])
-    full = np.concatenate([flat[:, -1:], flat], axis=1)  # v(0) = v(T): periodic
-    out = np.stack([np.interp(grid, t, row) for row in full])
-    return out.reshape(*wave.shape[:-1], points)
+    right = np.clip(np.searchsorted(t, grid, side="right"), 1, len(t) - 1)
+    left = right - 1
+    w = (grid - t[left]) / (t[right] - t[left])
+    W = np.zeros((len(t), points))
+    cols = np.arange(points)
+    np.add.at(W, (left, cols), 1.0 - w)
+    np.add.at(W, (right, cols), w)
+    W[-1] += W[0]  # sample 0 is the period's last sample again
+    return W[1:]
+
+
+def resample(times: np.ndarray, wave: np.ndarray, points: int = RESAMPLE_POINTS) -> np.ndarray:
+    """The waveform on ``points`` equal steps over one period (linear between samples)."""
+    flat = wave.reshape(-1, wave.shape[-1])
+    return (flat @ resample_matrix(times, points)).reshape(*wave.shape[:-1], points)
+
+
+def rms_form(times: np.ndarray, gain: np.ndarray) -> np.ndarray:
+    """(…, T, T) symmetric Q with ``true_rms(times, w, gain)`` = √(w·Q·w) for any waveform w
+    on ``times``: resampling, the spectrum and the instrument's gain are all linear, so the
+    AC power is a quadratic form of the samples (``gain`` (…, K) as for ``true_rms``)."""
+    W = resample_matrix(times)  # (T, N)
+    N = W.shape[1]
+    F = np.fft.rfft(W, axis=1)[:, 1:-1] * (2.0 / N)  # (T, K) each sample's harmonics
+    g2 = np.asarray(gain) ** 2
+    return 0.5 * np.real(np.einsum("tk,...k,sk->...ts", F, g2, F.conj()))
 
 
 def harmonics(times: np.ndarray, wave: np.ndarray) -> np.ndarray:
@@ -142,5 +165,8 @@ def shunt_divider(
     broadcast against ``freqs``.
     """
     w = 2 * np.pi * freqs
-    y_node = node_siemens[..., None] + 1j * w * node_farads[..., None]
-    return np.abs(y_node / (y_node + shunt_siemens + 1j * w * shunt_farads))
+    g = np.asarray(node_siemens)[..., None]
+    b = w * np.asarray(node_farads)[..., None]
+    bs = w * shunt_farads
+    # |y / (y + y_in)| in real arithmetic (the same number, without complex temporaries)
+    return np.sqrt((g * g + b * b) / ((g + shunt_siemens) ** 2 + (b + bs) ** 2))
