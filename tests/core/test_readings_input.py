@@ -62,7 +62,12 @@ def test_what_cannot_be_read_is_one_short_line(text, words):
 # The forms of a readings file, by header. The long form (measure,at,value[,test_load_ohms],
 # one kind of reading a row) joins this list where it is parsed, so both forms meet the same
 # property; its cells below are there already.
-HEADERS = [("node", "volts", "ripple_vpp"), ("node", "volts")]
+HEADERS = [
+    ("node", "volts", "ripple_vpp"),
+    ("node", "volts"),
+    ("measure", "at", "value"),
+    ("measure", "at", "value", "test_load_ohms"),
+]
 
 cells = st.one_of(
     st.sampled_from(["S0", "s1", "HV", "P2", "Q9", "", "OL", "node", "volts", "ripple_vpp"]),
@@ -80,7 +85,9 @@ rows = st.lists(st.lists(cells, min_size=1, max_size=4), max_size=6)
 def test_any_file_gives_finite_readings_at_this_board_s_nodes_or_one_line(sep, body, header):
     lines = ([sep.join(header)] if header else []) + [sep.join(r) for r in body]
     try:
-        got = parse_readings_csv("\n".join(lines), NODES, LABELS, where="fuzz.csv")
+        got = parse_readings_csv(
+            "\n".join(lines), NODES, LABELS, "fuzz.csv", parts=("D1", "D2", "D3"), rails=("supply",)
+        )
     except InputError as exc:
         assert str(exc).startswith("fuzz.csv") and "\n" not in str(exc)
         return
