@@ -10,17 +10,25 @@ import argparse
 import difflib
 import json
 import os
+from collections import Counter
+from collections.abc import Callable
 from pathlib import Path
 
 from fieldtool.commands import store as store_commands
 from fieldtool.commands.boards import existing_logs, load_board, profile_arg
 from fieldtool.commands.history_text import fleet_text, merge_json, merge_text, safe, timeline
 from fieldtool.commands.store import add_store_option, notice, store_of
-from fieldtool.core.circuit.library import available, looks_like_path, user_profiles_dir
-from fieldtool.core.errors import InputError, shown
+from fieldtool.core.circuit.library import (
+    available,
+    find_profile,
+    looks_like_path,
+    user_profiles_dir,
+)
+from fieldtool.core.errors import FieldtoolError, InputError, shown
 from fieldtool.core.history import (
     ENV_VAR,
     OUTCOMES,
+    BoardHistory,
     HistoryError,
     NotFoundError,
     check_name,
@@ -35,6 +43,7 @@ from fieldtool.core.history.fleet import (
 )
 from fieldtool.core.history.merge import merge
 from fieldtool.core.history.sessions import confirmed_in, group_sessions
+from fieldtool.core.measurement import Measurement
 from fieldtool.store import ENV_VAR as STORE_ENV
 from fieldtool.store import StoreAddress, StoreUnavailable
 from fieldtool.store import fleet as store_fleet
@@ -131,6 +140,21 @@ def _from_store(args: argparse.Namespace, read_store, read_files):
         return read_files()
 
 
+def _beyond_the_board(history: BoardHistory) -> Callable[[Measurement], bool] | None:
+    """Whether a reading is one no node of the board could show, judged on the profile the
+    history names (your folder, then the shipped ones); None when it cannot be loaded."""
+    names = Counter(r.profile for r in history.events if r.profile)
+    if not names:
+        return None
+    try:
+        profile = find_profile(names.most_common(1)[0][0], user_profiles_dir(os.environ))
+    except FieldtoolError:
+        return None
+    from fieldtool.core.circuit.reading_range import reading_problem  # only when shown
+
+    return lambda m: reading_problem(profile, m) is not None
+
+
 def run_history(args: argparse.Namespace) -> int:
     """Handle ``fieldtool history``."""
     history = _from_store(
@@ -141,7 +165,7 @@ def run_history(args: argparse.Namespace) -> int:
     sessions = group_sessions(history.events)
     conflicts = _conflicts(history)
     if not args.json:
-        print(timeline(history, sessions, conflicts))
+        print(timeline(history, sessions, conflicts, _beyond_the_board(history)))
         return 0
     out = {
         "board": history.board,

@@ -42,6 +42,7 @@ from fieldtool.core.history import (
 )
 from fieldtool.core.readings import load_readings
 from fieldtool.core.session import BoardSession, choose_priors
+from fieldtool.core.words import count
 from fieldtool.store.priors import store_failures
 
 TOP_SUSPECTS = 5  # suspects printed
@@ -183,7 +184,7 @@ def run_record(args: argparse.Namespace) -> int:
     nodes = len({m.at for m in readings})
     lines = [
         f"saved session {session_id[:12]} for board {safe(serial)} ({profile.name}) in "
-        f"{path}: {nodes} reading(s), {len(actions)} action(s), "
+        f"{path}: {count(nodes, 'reading')}, {count(len(actions), 'action')}, "
         f"{len({m.at for m in after})} after repair, "
         f"outcome {args.outcome or 'none (session left open)'}",
         "suspects ("

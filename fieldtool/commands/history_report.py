@@ -18,6 +18,7 @@ from fieldtool.core.history.sessions import group_sessions
 from fieldtool.core.report.content import build_report, expectations_for, pick_sessions
 from fieldtool.core.report.plot import MISSING, ladder_plot, plotting_available
 from fieldtool.core.report.render import to_html, to_markdown
+from fieldtool.core.words import count
 
 FORMATS = {".html": "html", ".htm": "html", ".md": "md"}
 
@@ -106,6 +107,7 @@ def run_report(args: argparse.Namespace) -> int:
                 images[sid] = quote(image.name)
         write_whole("--out", out, to_markdown(report, images, plot_note).encode("utf-8"))
     print(
-        f"report for board {safe(args.serial)}: {len(report.sessions)} session(s) written to {out}"
+        f"report for board {safe(args.serial)}: "
+        f"{count(len(report.sessions), 'session')} written to {out}"
     )
     return 0

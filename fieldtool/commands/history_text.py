@@ -3,9 +3,21 @@
 from __future__ import annotations
 
 import unicodedata
+from collections.abc import Callable
 from typing import Any
 
-from fieldtool.core.history import UNSETTLED, BoardHistory, Reading, Record, time_key
+from fieldtool.core.history import (
+    EVENT_TYPES,
+    UNSETTLED,
+    Action,
+    BoardHistory,
+    DiagnosisSnapshot,
+    Reading,
+    Record,
+    SessionOpened,
+    SnapshotSuspect,
+    time_key,
+)
 from fieldtool.core.history.fleet import FleetView
 from fieldtool.core.history.merge import MergeReport
 from fieldtool.core.history.sessions import Session, confirmed_in
@@ -44,51 +56,56 @@ def _measurement_words(record: Record, m: Measurement) -> str:
     return f"{label} {safe(m.at)}{what} = {value_text(m)} ({source}{extra})"
 
 
-def describe(record: Record) -> str:
-    """One record in a line of plain words."""
-    f = record.fields
+NOT_THIS_BOARD = " — not a reading of this board (wrong range or unit?)"
+
+
+def describe(record: Record, beyond: Callable[[Measurement], bool] | None = None) -> str:
+    """One record in a line of plain words; ``beyond`` says whether a reading is one no node of
+    the board could show (an older version let such values through)."""
     kind = record.kind
     if record.newer_schema:
         return f"{safe(kind)} (from a newer fieldtool, schema {record.schema}; kept as is)"
-    if kind == "session-opened":
-        extra = f", {f['ambient_c']:g} °C" if isinstance(f.get("ambient_c"), int | float) else ""
+    event = record.event
+    if event is None:
+        if kind in EVENT_TYPES:  # a known kind whose fields are not what this version wrote
+            return f"{safe(kind)} (unreadable by this version; kept as is)"
+        return safe(kind)
+    if isinstance(event, Reading):
+        flag = NOT_THIS_BOARD if beyond is not None and beyond(event.measurement) else ""
+        return _measurement_words(record, event.measurement) + flag
+    if isinstance(event, SessionOpened):
+        extra = f", {event.ambient_c:g} °C" if event.ambient_c is not None else ""
         return (
-            f"opened by {safe(f.get('technician', '?'))} (profile {safe(record.profile)}, "
-            f"fieldtool {safe(f.get('tool_version', '?'))}{extra})"
+            f"opened by {safe(event.technician)} (profile {safe(record.profile)}, "
+            f"fieldtool {safe(event.tool_version)}{extra})"
         )
-    if kind in ("reading", "verification"):
-        event = record.event
-        if isinstance(event, Reading):
-            return _measurement_words(record, event.measurement)
-        return f"{safe(kind)} (fields this version cannot read; kept as is)"
-    if kind == "diagnosis":
-        return "diagnosis: " + ", ".join(_suspect(s) for s in f.get("suspects", [])[:4])
-    if kind == "action":
-        mode = f" ({safe(f['mode'])})" if f.get("mode") else ""
-        part = f", part {safe(f['part_used'])}" if f.get("part_used") else ""
-        note = f" — {safe(f['note'])}" if f.get("note") else ""
-        return f"action: {safe(f.get('designator'))} {safe(f.get('done'))}{mode}{part}{note}"
-    if kind == "session-closed":
-        return f"closed: {safe(f.get('outcome'))}"
-    return safe(kind)
+    if isinstance(event, DiagnosisSnapshot):
+        return "diagnosis: " + ", ".join(_suspect(s) for s in event.suspects[:4])
+    if isinstance(event, Action):
+        mode = f" ({safe(event.mode)})" if event.mode else ""
+        part = f", part {safe(event.part_used)}" if event.part_used else ""
+        note = f" — {safe(event.note)}" if event.note else ""
+        return f"action: {safe(event.designator)} {safe(event.done)}{mode}{part}{note}"
+    return f"closed: {safe(event.outcome)}"
 
 
-def _suspect(s: Any) -> str:
-    if not isinstance(s, dict):
-        return "?"
-    name = " ".join(safe(s.get(k)) for k in ("designator", "mode") if s.get(k))
-    try:
-        return f"{name} {float(s.get('probability', 0)):.0%}"
-    except (TypeError, ValueError):
-        return name
+def _suspect(s: SnapshotSuspect) -> str:
+    name = " ".join(safe(w) for w in (s.designator, s.mode) if w)
+    return f"{name} {s.probability:.0%}"
 
 
-def timeline(history: BoardHistory, sessions: tuple[Session, ...], conflicts: list[str]) -> str:
-    """The board's history grouped by session, oldest first."""
+def timeline(
+    history: BoardHistory,
+    sessions: tuple[Session, ...],
+    conflicts: list[str],
+    beyond: Callable[[Measurement], bool] | None = None,
+) -> str:
+    """The board's history grouped by session, oldest first (``beyond``: see ``describe``)."""
     real = [s for s in sessions if s.id is not None]
     profiles = sorted({r.profile for r in history.events if r.profile})
     lines = [
-        f"Board {safe(history.board)}: {len(real)} session(s), {len(history.events)} records"
+        f"Board {safe(history.board)}: {count(len(real), 'session')}, "
+        f"{count(len(history.events), 'record')}"
         f" (profile {', '.join(safe(p) for p in profiles) or '?'})"
     ]
     for s in sessions:
@@ -100,7 +117,7 @@ def timeline(history: BoardHistory, sessions: tuple[Session, ...], conflicts: li
             state = s.outcome or "open (not closed yet)"
             lines.append(f"Session {when(s.start)} UTC · {who} · {state} · id {safe(s.id)[:12]}")
         for record in s.records:
-            lines.append(f"  {when(record.time)[11:]}  {describe(record)}")
+            lines.append(f"  {when(record.time)[11:]}  {describe(record, beyond)}")
         found = confirmed_in(s)
         if found:
             words = [
@@ -167,7 +184,8 @@ def fleet_text(view: FleetView) -> str:
     if view.damaged_lines:
         lines += [
             "",
-            f"{view.damaged_lines} damaged line(s) skipped; 'fieldtool history SERIAL' shows where",
+            f"{count(view.damaged_lines, 'damaged line')} skipped; "
+            "'fieldtool history SERIAL' shows where",
         ]
     return "\n".join(lines)
 
@@ -187,17 +205,18 @@ def merge_json(report: MergeReport) -> dict[str, Any]:
 def merge_text(report: MergeReport, head: str, not_done: str) -> str:
     """What a merge (or a push, or a pull) did, in the words of ``logs merge``."""
     lines = [
-        f"{head}: {report.added} new record(s) on {report.boards} board(s), "
+        f"{head}: {count(report.added, 'new record')} on {count(report.boards, 'board')}, "
         f"{report.already_present} already present"
     ]
     if report.conflicts:
         lines.append(
-            f"{len(report.conflicts)} conflict(s): same id, different content; both versions kept:"
+            f"{count(len(report.conflicts), 'conflict')}: same id, different content; "
+            "both versions kept:"
         )
         lines += [f"  {safe(c.profile)}/{safe(c.board)}: {safe(c.id)}" for c in report.conflicts]
     if report.damaged:
         lines.append(
-            f"{len(report.damaged)} damaged line(s) in the source, {not_done} "
+            f"{count(len(report.damaged), 'damaged line')} in the source, {not_done} "
             "(left there untouched):"
         )
         lines += [f"  {safe(d.path)}:{d.line}: {safe(d.reason)}" for d in report.damaged]

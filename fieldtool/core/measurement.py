@@ -25,9 +25,19 @@ from collections.abc import Mapping
 from dataclasses import dataclass, replace
 from typing import Any
 
-from fieldtool.core.errors import InputError
+from fieldtool.core.errors import InputError, shown
+from fieldtool.core.plausible import Range
+from fieldtool.core.units import parse_reading
 
 TAKEN_AT = ("node", "part", "rail")  # a node name, a part designator, a supply rail
+
+# The settings a reading may carry, each with its plausible range (its unit is the range's):
+# the one rule for a stored record, a readings file's column and a typed setting alike.
+CONDITIONS: dict[str, Range] = {
+    "test_load_ohms": Range(
+        1.0, 1e15, "Ω", "below 1 Ω a test load shorts the output; above 1 PΩ it loads nothing"
+    ),
+}
 
 
 @dataclass(frozen=True)
@@ -44,12 +54,15 @@ class Quantity:
     def __post_init__(self) -> None:
         if self.taken_at not in TAKEN_AT:
             raise ValueError(f"{self.name}: taken_at must be one of {TAKEN_AT}")
+        unknown = [c for c in self.conditions if c not in CONDITIONS]
+        if unknown:
+            raise ValueError(f"{self.name}: settings {unknown} have no range in CONDITIONS")
 
 
 DC = Quantity("dc", "V", "DC volts", "node", powered=True)
 RIPPLE_PP = Quantity("ripple-pp", "V", "ripple peak to peak", "node", powered=True)
 AC_RMS = Quantity("ac-rms", "V", "AC volts (true RMS)", "node", powered=True)
-CURRENT = Quantity("current", "A", "supply current", "rail", powered=True)
+CURRENT = Quantity("current", "A", "current", "rail", powered=True)  # "supply current"
 DC_LOADED = Quantity(
     "dc-loaded",
     "V",
@@ -112,6 +125,25 @@ class Source:
 TYPED = Source("typed")
 
 
+def parse_condition(name: str, text: str) -> float:
+    """A reading's setting as written in a readings file or typed (``test_load_ohms``:
+    ``47k``, ``47 kΩ``, ``47000``, a decimal comma too), checked against its range in
+    ``CONDITIONS``; InputError says what was wrong and how to write it."""
+    plausible = CONDITIONS.get(name)
+    if plausible is None:
+        raise InputError(f"unknown reading setting {shown(name)}; known: {', '.join(CONDITIONS)}")
+    try:
+        value = parse_reading(text, plausible.unit)
+    except ValueError as exc:
+        raise InputError(f"{name}: {exc}; write it as e.g. 47k, 47kΩ or 47000") from None
+    if value is None:
+        raise InputError(f"{name} is OL; write the setting's value, e.g. 47k")
+    problem = plausible.problem(value)
+    if problem:
+        raise InputError(f"{name} {problem}")
+    return value
+
+
 def _finite(value: Any, what: str) -> float:
     if isinstance(value, bool) or not isinstance(value, int | float):
         raise InputError(f"{what} must be a number, not {value!r}")
@@ -168,7 +200,10 @@ class Measurement:
                 f"{where}: needs the settings {wanted}, got {', '.join(names) or 'none'}"
             )
         for name, value in self.conditions:
-            _finite(value, f"{where}: {name}")
+            plausible = CONDITIONS.get(name)
+            problem = plausible.problem(_finite(value, f"{where}: {name}")) if plausible else None
+            if problem:
+                raise InputError(f"{where}: {name} {problem}")
 
     @property
     def overload(self) -> bool:

@@ -40,20 +40,33 @@ def format_si(value: float, digits: int = 4) -> str:
 
 
 # --- readings as technicians and meters write them ---------------------------------------
+# One parser for every value a technician types or a file holds, in any registered unit: the
+# typed entry, the readings file (both forms) and a streamed meter line all go through
+# ``parse_reading`` / ``unit_scale``, so ``890mV`` means the same wherever it is written.
 
-READING_PREFIXES = {"": 1.0, "m": 1e-3, "u": 1e-6, "µ": 1e-6, "μ": 1e-6, "k": 1e3}
+READING_PREFIXES = {"": 1.0, "n": 1e-9, "m": 1e-3, "u": 1e-6, "µ": 1e-6, "μ": 1e-6, "k": 1e3}
+OHM_PREFIXES = {**READING_PREFIXES, "K": 1e3, "M": 1e6, "G": 1e9}  # no milli-ohm shouting: 'MΩ'
+OHM_WORDS = ("ohms", "ohm", "Ω", "R")  # 47kohm, 47 kΩ, and 47R as resistors are marked
 OVERLOAD_WORDS = frozenset({"ol", "overload", "o.l", "o.l."})
 READING_NUMBER = r"[+-]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][+-]?\d+)?"
-_READING = re.compile(rf"^\s*(?P<value>{READING_NUMBER})\s*(?P<unit>[a-zA-Zµμ]*)\s*$")
+_READING = re.compile(rf"^\s*(?P<value>{READING_NUMBER})\s*(?P<unit>[a-zA-ZµμΩ]*)\s*$")
 READING_EXAMPLES = "12.9, 12.9V, 890mV, 1.2kV or 12,9, or OL for overload"
+UNITS = ("V", "A", "Ω")  # the base units a reading or a reading's setting is held in
 
 
 def unit_scale(unit: str, base: str = "V") -> float | None:
-    """Base units per ``unit`` (``V``, ``mV``, ``uV``, ``µV``, ``kV`` for volts); None if it is
-    not that base unit; no unit at all means the base unit."""
+    """Base units per ``unit``: ``V``, ``mV``, ``uV``, ``µV``, ``kV`` for volts, the same
+    prefixes (and ``n``) for amps, and for ohms ``Ω``/``ohm``/``ohms``/``R`` or a bare prefix
+    (``47k``, ``2.2MΩ``); None if it is not that base unit. No unit at all means the base unit.
+    """
     if unit == "":
         return 1.0
-    if unit[-1].lower() != base.lower() or len(base) != 1:
+    if base == "Ω":
+        for word in OHM_WORDS:
+            if unit.lower().endswith(word.lower()):
+                return OHM_PREFIXES.get(unit[: len(unit) - len(word)])
+        return OHM_PREFIXES.get(unit)
+    if unit[-1].lower() != base.lower():
         return None
     prefix = unit[:-1]
     if prefix in ("M", "K"):  # 'MV' is ambiguous; 'KV' is a common shouting of kV
@@ -67,8 +80,9 @@ def decimal(text: str) -> float:
 
 
 def parse_reading(text: str, base: str = "V") -> float | None:
-    """A reading as typed or exported: ``12.9``, ``12,9 V``, ``890mV``, ``1.2kV``; None for
-    ``OL`` (over range). ValueError says, in words, what was not understood."""
+    """A value as typed or exported, in ``base`` units (``V``, ``A`` or ``Ω``): ``12.9``,
+    ``12,9 V``, ``890mV``, ``1.2kV``, ``350uA``, ``47k``; None for ``OL`` (over range).
+    ValueError says, in words, what was not understood; the value it returns is finite."""
     stripped = text.strip()
     if stripped.lower() in OVERLOAD_WORDS:
         return None

@@ -42,6 +42,7 @@ from fieldtool.core.history import (
 )
 from fieldtool.core.history.files import identity, read_with_identity, rewrite
 from fieldtool.core.history.merge import Conflict, MergeReport, same_record, source_files
+from fieldtool.core.words import count
 from fieldtool.store.columns import COLUMNS, cell, copy_line, from_column, to_column
 from fieldtool.store.config import StoreAddress
 from fieldtool.store.connect import connected, driver
@@ -320,7 +321,8 @@ def push(
         if not started:
             raise
         raise StoreUnavailable(
-            f"{exc.message}; {tally.added} new record(s) were saved before that and stay "
+            f"{exc.message}; {count(tally.added, 'new record')} "
+            f"{'was' if tally.added == 1 else 'were'} saved before that and stay "
             "saved; push again to send the rest (nothing is sent twice)"
         ) from None
     return tally.report()

@@ -21,6 +21,7 @@ from textual.worker import Worker, WorkerState
 
 from fieldtool.core.errors import FieldtoolError
 from fieldtool.core.hazard import SAFETY_WARNING
+from fieldtool.core.history import Action, Reading
 from fieldtool.core.history.sessions import Session
 from fieldtool.core.session import BoardSession
 from fieldtool.core.words import count
@@ -107,8 +108,9 @@ class FieldtoolApp(App):
             self.open_session(board, unfinished if resume else None)
             return
         records = unfinished.records
-        readings = sum(r.kind in ("reading", "verification") for r in records)
-        actions = sum(r.kind == "action" for r in records)
+        # Only what resuming brings back: a record this version cannot read is not counted.
+        readings = sum(isinstance(r.event, Reading) for r in records)
+        actions = sum(isinstance(r.event, Action) for r in records)
         opened = unfinished.start[:16].replace("T", " ")
         dialog = ResumeDialog(board.request.serial, opened, readings, actions)
 

@@ -23,7 +23,9 @@ def event_words(record: hist.Record) -> str:
     """One line about a stored record."""
     e = record.event
     if e is None:
-        return f"({record.kind}: from a newer fieldtool, kept as it is)"
+        if record.newer_schema:
+            return "from a newer fieldtool, kept as is"
+        return "unreadable by this version, kept as is"
     if isinstance(e, hist.SessionOpened):
         who = f" by {e.technician}" if e.technician else ""
         return f"session opened{who} (fieldtool {e.tool_version})"

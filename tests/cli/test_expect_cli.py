@@ -42,6 +42,20 @@ def test_expect_text_table(capsys):
     assert "CAUTION" in text and "expect DC" in text
 
 
+@pytest.mark.parametrize(
+    "board, words",
+    [
+        # A 3.3 V to 15 V pump never holds 50 V: no "below 50 V in 0 ns".
+        ("datalogger-eeprom-dickson", "after power-off, already below 50 V"),
+        ("tidegauge-apd-bias", "after power-off, below 50 V in "),
+    ],
+)
+def test_the_discharge_figure_reads_as_words(capsys, board, words):
+    assert main(["expect", board]) == 0
+    text = capsys.readouterr().out
+    assert words in text and " in 0 " not in text and " 0 ns" not in text
+
+
 def test_expect_shows_test_loads_with_their_power_and_the_diode_tests(capsys):
     prof = next(p for p in PROFILES if "tidegauge" in p.name)
     assert main(["expect", str(prof)]) == 0

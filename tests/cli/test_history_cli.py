@@ -37,7 +37,7 @@ def _one_line_error(err: str) -> str:
 def test_history_text_timeline(logs, capsys):
     code, out, _ = _run(capsys, "history", "DL-0007", "--logs", str(logs))
     assert code == 0
-    assert out.startswith("Board DL-0007: 2 session(s), 11 records")
+    assert out.startswith("Board DL-0007: 2 sessions, 11 records")
     assert out.count("Session 2026-") == 2 and "confirmed failure: D3 open (verified)" in out
     assert "action: D3 replaced (open)" in out
 
@@ -128,7 +128,7 @@ def test_unknown_serial_suggests_close_ones(logs, capsys):
 def test_logs_merge_reports_and_is_idempotent(logs, tmp_path, capsys):
     shop = tmp_path / "shop"
     code, out, _ = _run(capsys, "logs", "merge", str(logs), "--logs", str(shop))
-    assert code == 0 and "15 new record(s) on 2 board(s), 0 already present" in out
+    assert code == 0 and "15 new records on 2 boards, 0 already present" in out
     code, out, _ = _run(capsys, "logs", "merge", str(logs), "--logs", str(shop), "--json")
     data = json.loads(out)
     assert (data["added"], data["already_present"], data["conflicts"]) == (0, 15, [])
@@ -143,8 +143,8 @@ def test_logs_merge_prints_conflicts_and_damaged_source_lines(logs, tmp_path, ca
     changed = {**json.loads(lines[1]), "volts": 42.0}
     path.write_text("\n".join([lines[0], json.dumps(changed), *lines[2:]]) + "\n{broken\n")
     code, out, _ = _run(capsys, "logs", "merge", str(logs), "--logs", str(shop))
-    assert code == 0 and "1 conflict(s)" in out and changed["id"] in out
-    assert "1 damaged line(s) in the source, not merged" in out
+    assert code == 0 and "1 conflict:" in out and changed["id"] in out
+    assert "1 damaged line in the source, not merged" in out
 
 
 def test_fleet_text_and_json(logs, capsys):

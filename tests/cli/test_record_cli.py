@@ -228,7 +228,7 @@ def test_record_takes_long_form_readings_and_shows_the_next_measurement(capsys, 
     path.write_text("\n".join(rows) + "\n")
     code, out, err = _record(capsys, tmp_path / "logs", "--board", "L-1", "--readings", str(path))
     assert code == 0, err
-    assert "5 reading(s)" in out
+    assert "5 readings" in out
     assert "next: " in out
     logged = h.read_board(tmp_path / "logs", "L-1").events
     kinds = {r.event.measurement.quantity.name for r in logged if isinstance(r.event, h.Reading)}

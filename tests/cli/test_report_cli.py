@@ -73,7 +73,7 @@ def test_html_report_has_everything_and_escapes_the_history(tmp_path, capsys, ex
     out = tmp_path / "report.html"
     code, stdout, _ = _report(capsys, HOSTILE_SERIAL, "--logs", str(logs), "--out", str(out))
     page = out.read_text()
-    assert code == 0 and "1 session(s) written" in stdout
+    assert code == 0 and "1 session written" in stdout
     for raw in ("<script", "<img src=x", "<b>DL", "<ana>"):
         assert raw not in page
     assert "&lt;script&gt;alert(&quot;x&quot;)&lt;/script&gt;" in page
@@ -127,7 +127,7 @@ def test_one_session_by_id_prefix(tmp_path, capsys, expected):
         capsys, "DL-0001", "--logs", str(logs), "--out", str(out), "--session", first[:6]
     )
     page = out.read_text()
-    assert code == 0 and "1 session(s)" in stdout
+    assert code == 0 and "1 session written" in stdout
     assert "not-fixed" in page and page.count("<h2>Session") == 1
 
 
@@ -207,6 +207,39 @@ def test_a_reading_no_node_could_show_is_reported_not_plotted(tmp_path, capsys, 
     assert "<strong>CAUTION</strong>" in page  # a 15 V pump: the absurd value does not count
 
 
+_FULL_DISK = """
+import resource, signal, sys
+from fieldtool.cli import main
+signal.signal(signal.SIGXFSZ, signal.SIG_IGN)  # the kernel then fails the write with EFBIG
+resource.setrlimit(resource.RLIMIT_FSIZE, (0, resource.RLIM_INFINITY))
+sys.exit(main(sys.argv[1:]))
+"""
+
+
+@pytest.mark.parametrize("name", ["r.md"])  # the Markdown page and its plot beside it
+def test_a_report_that_cannot_be_written_leaves_no_file(tmp_path, expected, name):
+    """A process allowed no file growth (RLIMIT_FSIZE = 0, POSIX setrlimit) fails its writes as
+    a full disk does: one line, exit 2, and no empty or half-written report (nor a temporary
+    file) left behind to be mistaken for one."""
+    import subprocess
+
+    logs = tmp_path / "logs"
+    _write_session(logs, "DL-0100", expected, day(1))
+    out_dir = tmp_path / "out"
+    out_dir.mkdir()
+    run = subprocess.run(
+        [sys.executable, "-c", _FULL_DISK, "report", "DL-0100", "--logs", str(logs)]
+        + ["--out", str(out_dir / name)],
+        cwd=ROOT,
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
+    assert run.returncode == 2, run.stderr
+    assert run.stderr.count("\n") == 1 and "disk full; nothing was written" in run.stderr
+    assert list(out_dir.iterdir()) == []
+
+
 def test_readings_beyond_dc_volts_are_in_the_report_and_the_history(tmp_path, capsys, expected):
     """Every kind the session took is shown: the report lists each kind, its settings and its
     value; `history` names the kind and the test load."""
@@ -228,7 +261,7 @@ def test_readings_beyond_dc_volts_are_in_the_report_and_the_history(tmp_path, ca
     text = out.read_text()
     rows = [line for line in text.split("### Other readings")[1].splitlines() if "|" in line]
     assert [r.split("|")[1:4] for r in rows[2:]] == [
-        [" supply current ", " supply ", " 310 µA "],
+        [" current ", " supply ", " 310 µA "],
         [" DC volts under a test load with a 100kΩ test load ", " OUT ", " 11.2 V "],
         [" diode test, board off ", " D2 ", " OL (over range) "],
         [" ripple peak to peak ", " P2 ", " 31 mV "],
@@ -236,4 +269,4 @@ def test_readings_beyond_dc_volts_are_in_the_report_and_the_history(tmp_path, ca
     assert main(["history", "DL-0009", "--logs", str(logs)]) == 0
     history = capsys.readouterr().out
     assert "reading OUT DC volts under a test load with a 100kΩ test load = 11.2 V" in history
-    assert "reading supply supply current = 0.00031 A" in history
+    assert "reading supply current = 0.00031 A" in history  # the rail named once

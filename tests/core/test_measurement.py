@@ -10,6 +10,7 @@ from hypothesis import strategies as st
 
 from fieldtool.core.errors import InputError
 from fieldtool.core.measurement import (
+    CONDITIONS,
     DC,
     QUANTITIES,
     RIPPLE_PP,
@@ -39,11 +40,17 @@ def test_the_registry_holds_data_not_classes():
 def test_a_new_kind_is_one_more_entry():
     """What the next kinds need fits the same shape: a test load's ohms carried per reading,
     a power-off check at a part."""
-    loaded = Quantity("dc-loaded", "V", "DC volts under a test load", "node", True, ("load",))
-    m = Measurement("OUT", loaded, 72.9, Source("typed"), conditions=(("load", 10e3),))
-    assert m.condition("load") == 10e3
-    with pytest.raises(InputError, match="needs the settings load, got none"):
+    setting = "test_load_ohms"
+    loaded = Quantity("dc-loaded", "V", "DC volts under a test load", "node", True, (setting,))
+    m = Measurement("OUT", loaded, 72.9, Source("typed"), conditions=((setting, 10e3),))
+    assert m.condition(setting) == 10e3
+    with pytest.raises(InputError, match="needs the settings test_load_ohms, got none"):
         Measurement("OUT", loaded, 72.9, Source("typed"))
+    # A setting is checked against its plausible range wherever the reading comes from.
+    with pytest.raises(InputError, match="test_load_ohms is 0, expected 1 Ω to 1 PΩ"):
+        Measurement("OUT", loaded, 72.9, Source("typed"), conditions=((setting, 0.0),))
+    with pytest.raises(ValueError, match="no range in CONDITIONS"):
+        Quantity("odd-loaded", "V", "odd", "node", True, ("load",))
     diode = Quantity("diode-test", "V", "diode test", "part", powered=False)
     assert Measurement("D5", diode, 0.61, Source("typed")).at == "D5"
     with pytest.raises(ValueError, match="taken_at"):
@@ -96,7 +103,11 @@ finite = st.floats(allow_nan=False, allow_infinity=False, width=64)
 @st.composite
 def measurements(draw):
     q = draw(st.sampled_from(list(QUANTITIES.values())))
-    positive = st.floats(min_value=1e-3, max_value=1e9, allow_nan=False)
+
+    def setting(name):
+        r = CONDITIONS[name]
+        return st.floats(min_value=r.low, max_value=r.high, allow_nan=False)
+
     return Measurement(
         at=draw(st.none() | st.sampled_from(NODES)),
         quantity=q,
@@ -108,7 +119,7 @@ def measurements(draw):
         settled=draw(st.booleans()),
         samples=draw(st.integers(1, 1000)),
         taken=draw(st.none() | st.just("2026-03-02T08:01:00.000000Z")),
-        conditions=tuple((name, draw(positive)) for name in q.conditions),
+        conditions=tuple((name, draw(setting(name))) for name in q.conditions),
     )
 
 

@@ -61,3 +61,9 @@ def test_each_kind_has_its_plausible_range(q, at, value, refused):
     assert (problem is not None) == refused, problem
     if refused:
         assert at in problem and "\n" not in problem
+
+
+def test_a_rail_reading_names_its_rail_once():
+    """'supply current', never 'supply supply current' (the rail is where it was taken)."""
+    problem = reading_problem(BOARD, _m(CURRENT, "supply", 50.0))
+    assert problem.startswith("supply current 50 A is beyond") and "supply supply" not in problem

@@ -8,7 +8,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from fieldtool.core.errors import InputError
-from fieldtool.core.measurement import DC, RIPPLE_PP
+from fieldtool.core.measurement import CONDITIONS, DC, QUANTITIES, RIPPLE_PP
 from fieldtool.core.readings import parse_readings_csv
 
 NODES = ("S0", "P1", "S1", "P2", "S2")
@@ -59,9 +59,21 @@ def test_what_cannot_be_read_is_one_short_line(text, words):
     assert words in message and "\n" not in message and len(message) < 400
 
 
+# The forms of a readings file, by header. The long form (measure,at,value[,test_load_ohms],
+# one kind of reading a row) joins this list where it is parsed, so both forms meet the same
+# property; its cells below are there already.
+HEADERS = [
+    ("node", "volts", "ripple_vpp"),
+    ("node", "volts"),
+    ("measure", "at", "value"),
+    ("measure", "at", "value", "test_load_ohms"),
+]
+
 cells = st.one_of(
     st.sampled_from(["S0", "s1", "HV", "P2", "Q9", "", "OL", "node", "volts", "ripple_vpp"]),
+    st.sampled_from(["dc", "ac-rms", "current", "dc-loaded", "diode-test", "supply", "D3"]),
     st.sampled_from(["12.9", "12,9", "890mV", "1.2kV", "-3.3V", "1e300", "nan", "inf", "9" * 400]),
+    st.sampled_from(["47k", "0", "2mA", "350uA", "0.61", "1e-300", "-0", "1e999"]),
     st.floats(allow_nan=True, allow_infinity=True).map(repr),
     st.text(max_size=8),
 )
@@ -69,17 +81,19 @@ rows = st.lists(st.lists(cells, min_size=1, max_size=4), max_size=6)
 
 
 @settings(max_examples=400, deadline=None)
-@given(st.sampled_from([",", ";", "\t"]), rows, st.booleans())
+@given(st.sampled_from([",", ";", "\t"]), rows, st.none() | st.sampled_from(HEADERS))
 def test_any_file_gives_finite_readings_at_this_board_s_nodes_or_one_line(sep, body, header):
-    lines = ([sep.join(["node", "volts", "ripple_vpp"])] if header else []) + [
-        sep.join(r) for r in body
-    ]
+    lines = ([sep.join(header)] if header else []) + [sep.join(r) for r in body]
     try:
-        got = parse_readings_csv("\n".join(lines), NODES, LABELS, where="fuzz.csv")
+        got = parse_readings_csv(
+            "\n".join(lines), NODES, LABELS, "fuzz.csv", parts=("D1", "D2", "D3"), rails=("supply",)
+        )
     except InputError as exc:
         assert str(exc).startswith("fuzz.csv") and "\n" not in str(exc)
         return
     assert got
     for m in got:
-        assert m.at in NODES and m.quantity in (DC, RIPPLE_PP)
+        assert m.quantity in QUANTITIES.values()
+        assert m.at in NODES if m.quantity.taken_at == "node" else m.at
         assert m.value is None or math.isfinite(m.value)
+        assert all(CONDITIONS[name].contains(value) for name, value in m.conditions)

@@ -1,6 +1,7 @@
 """Safety figures from readings against ½CV², RC discharge and the hazard threshold."""
 
 import math
+from pathlib import Path
 
 import pytest
 
@@ -120,3 +121,26 @@ def test_custom_safe_level_is_attributed_to_the_profile(one_stage):
 )
 def test_format_duration(seconds, text):
     assert format_duration(seconds) == text
+
+
+def test_signal_words_come_from_one_place():
+    """WARNING (could kill) and CAUTION (minor or moderate injury) as ANSI Z535.4 defines them
+    (from memory; see core/hazard.py) are chosen in one module; no screen or command types
+    its own, so the same hazard never reads WARNING in one place and CAUTION in another."""
+    import re
+
+    from fieldtool.core import hazard
+
+    package = Path(hazard.__file__).resolve().parents[1]
+    typed = [
+        f"{path.relative_to(package)}:{n}"
+        for path in package.rglob("*.py")
+        if path.name != "hazard.py"
+        for n, line in enumerate(path.read_text().splitlines(), start=1)
+        if re.search(r"\b(DANGER|WARNING|CAUTION)\s*:", line) and not line.lstrip().startswith("#")
+    ]
+    assert typed == []
+    assert hazard.signal_word(None, 50.0) == "WARNING"  # unknown: assume it could kill
+    assert hazard.signal_word(120.0, 50.0) == "WARNING"
+    assert hazard.signal_word(-57.0, 50.0) == "WARNING"  # a negative ladder as much as a positive
+    assert hazard.signal_word(15.0, 50.0) == "CAUTION"

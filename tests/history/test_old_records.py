@@ -106,8 +106,11 @@ def test_report_rows_from_old_readings(logs, profile):
     assert [r.node for r in still_open.readings] == ["S0", "S4", "S8"]
 
 
-def test_fleet_counts_old_repairs(logs):
+def test_fleet_counts_old_repairs(logs, capsys):
     assert confirmed_failures(logs, PROFILE) == {("C6", "short"): 1}
+    assert main(["fleet", PROFILE, "--logs", str(logs)]) == 0
+    first = capsys.readouterr().out.splitlines()[0]
+    assert first == f"Fleet {PROFILE}: 1 board, 2 sessions (1 fixed, 1 open), 1 repair"
     view = fleet_view(logs, PROFILE, use_cache=False)
     assert (view.sessions, view.repairs) == (2, 1)
     assert view.failures[0].verified == 1  # the old verification record still counts

@@ -48,13 +48,13 @@ def test_push_twice_sends_nothing_new(tmp_path, store, admin, capsys):
     varied_fleet(logs, "cw6", 5)
     total = len(_lines(logs))
     code, out, _ = run(capsys, "logs", "push", "--store", store.conninfo, "--logs", str(logs))
-    assert code == 0 and f": {total} new record(s) on 13 board(s), 0 already present" in out
+    assert code == 0 and f": {total} new records on 13 boards, 0 already present" in out
     assert _count(admin) == total
     for extra in ([], ["--all"]):
         code, out, _ = run(
             capsys, "logs", "push", "--store", store.conninfo, "--logs", str(logs), *extra
         )
-        assert code == 0 and f": 0 new record(s) on 13 board(s), {total} already present" in out
+        assert code == 0 and f": 0 new records on 13 boards, {total} already present" in out
     assert _count(admin) == total
     # A session added on the laptop: only it goes, the unchanged files are not read again.
     session(logs, "SN5-03", day(90), "fixed", [("D1", "short")])  # 5 records
@@ -114,8 +114,8 @@ def test_conflicts_and_damaged_lines_are_reported_as_merge_reports_them(
     assert _count(admin) == len(_lines(merged) - set(damaged) - {b'{"torn":'})
     # Pushed again: the conflicting version is stored now, so nothing new and no conflict.
     text = run(capsys, "logs", "push", "--store", store.conninfo, "--logs", str(laptop))[1]
-    assert "conflict(s)" not in text and "0 new record(s) on 1 board(s), 5 already" in text
-    assert "4 damaged line(s) in the source, not sent (left there untouched):" in text
+    assert " conflict" not in text and "0 new records on 1 board, 5 already" in text
+    assert "4 damaged lines in the source, not sent (left there untouched):" in text
 
 
 def test_hostile_names_and_text_come_back_byte_for_byte(tmp_path, store, admin):
@@ -159,7 +159,7 @@ def test_a_dropped_connection_loses_nothing_and_doubles_nothing(tmp_path, pg, st
         push(store, logs, batch_records=40, progress=kill_third_batch)
     saved = _count(admin)
     assert 0 < saved < total and "push again to send the rest" in lost.value.message
-    assert f"{saved} new record(s) were saved before that" in lost.value.message
+    assert f"{saved} new records were saved before that" in lost.value.message
     report = push(store, logs, batch_records=40)
     assert report.added == total - saved
     assert _count(admin) == total == len(admin("SELECT DISTINCT id, line FROM fieldtool.records"))
@@ -211,14 +211,14 @@ def test_pull_merges_into_the_laptop_without_changing_its_records(tmp_path, stor
     code, out, _ = run(
         capsys, "logs", "pull", "SN1", "--store", store.conninfo, "--logs", str(laptop)
     )
-    assert code == 0 and "6 new record(s) on 1 board(s), 0 already present" in out
+    assert code == 0 and "6 new records on 1 board, 0 already present" in out
     after = h.board_path(laptop, "cw6", "SN1").read_bytes()
     assert set(mine.splitlines()) <= set(after.splitlines())
     assert not h.board_path(laptop, "cw6", "SN2").exists()
     code, out, _ = run(
         capsys, "logs", "pull", "SN1", "--store", store.conninfo, "--logs", str(laptop)
     )
-    assert "0 new record(s) on 1 board(s), 6 already present" in out
+    assert "0 new records on 1 board, 6 already present" in out
     code, _, err = run(
         capsys, "logs", "pull", "SN9", "--store", store.conninfo, "--logs", str(laptop)
     )

@@ -70,6 +70,8 @@ async def test_a_history_with_values_an_older_version_let_through_still_resumes(
     app = typed_app(profile, tmp_path, cache_dir, resume=None)
     async with app.run_test(size=(80, 24)) as pilot:
         await until(pilot, lambda: isinstance(app.screen, ResumeDialog), what="resume question")
+        # Three readings come back; the NaN record is not one of them.
+        assert "(3 readings, 0 repairs recorded)" in app.screen.text
         await pilot.press("r")
         screen = await probing(pilot)
         # The absurd value is shown, left out of the ranking, and the fit check says why.

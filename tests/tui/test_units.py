@@ -90,3 +90,23 @@ def test_ladder_cells_follow_the_diode_chain(topology, first, last, diodes):
     caps = [c.up for c in cells if c.up] + [c.down for c in cells if c.down]
     assert sorted(caps, key=lambda r: int(r[1:])) == [f"C{i}" for i in range(1, len(caps) + 1)]
     assert cells[-1].diode is None
+
+
+def test_the_demo_reveal_says_no_repair_when_none_was_made(profile, dictionary):
+    """'Readings after the last repair' only after a repair; otherwise it says none was made."""
+    from fieldtool.core import history as h
+    from fieldtool.core.diagnosis.faults import parse_fault
+    from fieldtool.core.session import BoardSession
+    from fieldtool.tui.view import reveal_text
+    from tests.readings import dc
+
+    session = BoardSession(profile, "DEMO-1", dictionary, lambda e, sid: None)
+    session.open()
+    session.take(dc("S0", 15.0))
+    fault = parse_fault("D3:open", profile)
+    text = reveal_text(session, fault)
+    assert "No repair was recorded. Readings: S0 15.00 V." in text
+    assert "after the last repair" not in text and "Not found: you worked on no part" in text
+    session.record_repair(h.Action("D3", "replaced", "open"))
+    text = reveal_text(session, fault)
+    assert "Found: you worked on D3." in text and "Readings after the last repair: none." in text

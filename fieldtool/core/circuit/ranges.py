@@ -9,6 +9,7 @@ unusual boards.
 
 from __future__ import annotations
 
+from fieldtool.core.measurement import CONDITIONS
 from fieldtool.core.plausible import Range
 
 # Low-voltage equipment ends at 1500 V DC and 1000 V AC rms (EU Low Voltage Directive
@@ -153,9 +154,7 @@ DIODE_TEST_VOLTS = Range(
 )
 SETTLE_S = Range(0.01, 3600.0, "s", "from a blink to an hour at the bench")
 PROBE_FARADS = Range(0.0, 1e-6, "F", "a probe's own capacitance is picofarads", high_open=True)
-TEST_LOAD_OHMS = Range(
-    1.0, 1e15, "Ω", "below 1 Ω a test load shorts the output; above 1 PΩ it loads nothing"
-)
+TEST_LOAD_OHMS = CONDITIONS["test_load_ohms"]  # a profile's test load and a reading's alike
 RATED_WATTS = Range(1e-3, 1e4, "W", "from a small film resistor to a load bank")
 
 EFFORT = Range(

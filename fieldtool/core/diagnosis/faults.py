@@ -104,7 +104,8 @@ def parse_fault(spec: str, profile: Profile) -> Fault:
         return Fault(target, mode.name)  # the mode's typical severity (a short's ohm)
     if not has_value:
         raise InputError(
-            f"fault {echo}: mode {mode.name} needs a severity in {mode.unit}, "
+            f"fault {echo}: mode {mode.name} needs a severity "
+            f"{'in ohms' if mode.unit == 'ohms' else f'as a {mode.unit}'}, "
             f"e.g. {display_name(profile, target)}:{mode.name}={mode.example}"
         )
     try:

@@ -6,6 +6,7 @@ Re-exported by ``fieldtool.core.history``; import them from there.
 from __future__ import annotations
 
 import dataclasses
+import math
 import uuid
 from collections.abc import Mapping
 from dataclasses import dataclass, field
@@ -187,7 +188,41 @@ def event_from_fields(kind: str, fields: Mapping[str, Any], schema: int = 1) -> 
         names = {f.name for f in dataclasses.fields(cls)}
         args = {k: v for k, v in fields.items() if k in names}
         if cls is DiagnosisSnapshot:
-            args["suspects"] = tuple(SnapshotSuspect(**s) for s in args.get("suspects", ()))
-        return cls(**args)
+            suspects = args.get("suspects", ())
+            if not isinstance(suspects, list | tuple):
+                return None
+            args["suspects"] = tuple(_typed(SnapshotSuspect, s) for s in suspects)
+        return _typed(cls, args)
     except (TypeError, FieldtoolError):
         return None
+
+
+_PLAIN = {"str": str, "float": float, "int": int, "bool": bool, "None": type(None)}
+
+
+def _typed(cls: type, args: Any) -> Any:
+    """``cls(**args)`` when every plain field (``str``, ``float``, ``X | None``) holds its type
+    and every number is finite; TypeError otherwise. What an older or foreign writer stored
+    (a list for a designator, a string for a probability, NaN) becomes an unreadable record,
+    shown as such, rather than a value that breaks a screen, a report or the fleet view later.
+    """
+    if not isinstance(args, Mapping):
+        raise TypeError(f"{cls.__name__}: not a table")
+    args = dict(args)
+    for f in dataclasses.fields(cls):
+        if f.name not in args:
+            continue
+        allowed = [_PLAIN.get(t.strip()) for t in str(f.type).split("|")]
+        if None in allowed:  # a structured field (a tuple of suspects): built by the caller
+            continue
+        value = args[f.name]
+        if isinstance(value, bool) and bool not in allowed:
+            raise TypeError(f"{cls.__name__}.{f.name}: {value!r}")
+        if isinstance(value, int) and float in allowed and not isinstance(value, bool):
+            value = float(value)
+        if not isinstance(value, tuple(allowed)):
+            raise TypeError(f"{cls.__name__}.{f.name}: {value!r}")
+        if isinstance(value, float) and not math.isfinite(value):
+            raise TypeError(f"{cls.__name__}.{f.name}: {value!r}")
+        args[f.name] = value
+    return cls(**args)

@@ -32,6 +32,7 @@ from fieldtool.core.history import (
     time_key,
 )
 from fieldtool.core.history.files import append_lines, fsync_dir, locked_file, read_locked, rewrite
+from fieldtool.core.words import count
 
 
 @dataclass(frozen=True)
@@ -152,7 +153,7 @@ def merge(src_dir: Path | str, dst_dir: Path | str, *, workers: int | None = Non
     added = sum(o.added for o in outcomes)
     failed = [o.error for o in outcomes if o.error]
     if failed:
-        others = f"; {len(failed) - 1} other file(s) failed too" if len(failed) > 1 else ""
+        others = f"; {count(len(failed) - 1, 'other file')} failed too" if len(failed) > 1 else ""
         raise HistoryError(
             f"could not merge into {failed[0]}; that file is unchanged{others} "
             f"({added} records were merged into other files)"

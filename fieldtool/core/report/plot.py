@@ -7,6 +7,7 @@ window and no global pyplot state. Without matplotlib the report is made without
 from __future__ import annotations
 
 import io
+import logging
 from collections.abc import Sequence
 
 from fieldtool.core.report.content import WRONG_RANGE, Expectations, Row
@@ -42,6 +43,9 @@ def ladder_plot(
     title: str,
 ) -> bytes | None:
     """A PNG of expected and measured volts at each node, or None without matplotlib."""
+    # On a full disk or a read-only home, matplotlib logs that it could not save its font
+    # cache: nothing the technician can act on, and the report itself says what failed.
+    logging.getLogger("matplotlib.font_manager").setLevel(logging.ERROR)
     try:
         from matplotlib.backends.backend_agg import FigureCanvasAgg
         from matplotlib.figure import Figure

@@ -16,6 +16,7 @@ from typing import Any
 from fieldtool import __version__
 from fieldtool.core.history import time_key
 from fieldtool.core.report.content import OtherRow, Report, Row, SessionPart
+from fieldtool.core.words import count
 
 _MD_SPECIAL = re.compile(r"([\\`*_{}\[\]#|~])")
 
@@ -151,7 +152,7 @@ def to_markdown(report: Report, plots: Mapping[str, str | None], plot_note: str)
     if report.damaged:
         lines += [
             "",
-            f"*{report.damaged} damaged line(s) in the history were left out; "
+            f"*{count(report.damaged, 'damaged line')} in the history were left out; "
             "`fieldtool history` shows where.*",
         ]
     return "\n".join(lines) + "\n"
