@@ -381,7 +381,8 @@ def _left_out(others) -> list[str]:
     if not others:
         return []
     kinds = ", ".join(dict.fromkeys(r.quantity.name for r in others))
-    return [f"calibration fits DC readings only; {len(others)} reading(s) of {kinds} left out"]
+    left = count(len(others), "reading")
+    return [f"calibration fits DC readings only; {left} of {kinds} left out"]
 
 
 def fitted_toml(entry: ProfileEntry, original: Profile, result, readings_path: str) -> str:

@@ -28,8 +28,16 @@ from collections.abc import Iterable, Sequence
 from pathlib import Path
 
 from fieldtool.core.errors import InputError, shown
-from fieldtool.core.measurement import DC, DC_LOADED, RIPPLE_PP, Measurement, Source, quantity
-from fieldtool.core.units import parse_reading, parse_si
+from fieldtool.core.measurement import (
+    DC,
+    DC_LOADED,
+    RIPPLE_PP,
+    Measurement,
+    Source,
+    parse_condition,
+    quantity,
+)
+from fieldtool.core.units import parse_reading
 
 SEPARATORS = (",", ";", "\t")  # a plain CSV, and what spreadsheets in comma-decimal locales
 # and tab-separated exports write
@@ -232,16 +240,11 @@ def _value(text: str, q, here: str) -> float | None:
 
 
 def _ohms(text: str, here: str) -> float:
+    """The test load's resistance, read and range-checked as every reading's setting is."""
     try:
-        ohms = parse_si(text)
-    except ValueError:
-        raise InputError(
-            f"{here}: {LOAD_COLUMN} {shown(text)} is not a resistance; write e.g. 10000, 10k or "
-            "4.7kΩ"
-        ) from None
-    if ohms <= 0:
-        raise InputError(f"{here}: {LOAD_COLUMN} {shown(text)} must be above zero")
-    return ohms
+        return parse_condition(LOAD_COLUMN, text)
+    except InputError as exc:
+        raise InputError(f"{here}: {exc.message}") from None
 
 
 def load_readings(

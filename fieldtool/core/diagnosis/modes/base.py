@@ -168,6 +168,35 @@ class ShortMode(FaultMode):
         return 1.0 / (SHORT_OHMS if severity is None else severity)
 
 
+class DriveStuckMode(FaultMode):
+    """The square drive held at one of its levels (``held``: "high" or "low")."""
+
+    applies_to = "drive"
+    unit = None
+    held: ClassVar[str]
+
+    def unavailable(self, profile: Profile) -> str | None:
+        """Square-driven boards only."""
+        if not topology_of(profile).ac_drive:
+            return None
+        return "the drive here is an AC input: try missing or low"
+
+    def apply(
+        self,
+        circuit: Circuit,
+        params: Params,
+        target: str,
+        severity: float | None,
+        profile: Profile,
+    ) -> None:
+        """Each drive source's other level set to the held one."""
+        for i in drive_sources(circuit):
+            if self.held == "high":
+                params.s_low[:, i] = params.s_high[:, i]
+            else:
+                params.s_high[:, i] = params.s_low[:, i]
+
+
 def switching_ohms(profile: Profile) -> float:
     """1/(f·C) of one capacitor: the scale of a pump's per-stage losses (Seeman & Sanders,
     IEEE Trans. Power Electron. 23(2), 2008, slow-switching limit; from memory)."""
