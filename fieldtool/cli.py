@@ -47,7 +47,8 @@ class _Parser(argparse.ArgumentParser):
     """argparse that reports usage errors as one line and exit code 2."""
 
     def error(self, message: str) -> None:  # pragma: no cover - exercised via main()
-        self.exit(2, f"fieldtool: {message} (see 'fieldtool {self._sub_name()} --help')\n")
+        see = " ".join(("fieldtool", self._sub_name(), "--help")).replace("  ", " ")
+        self.exit(2, f"fieldtool: {message} (see '{see}')\n")
 
     def _sub_name(self) -> str:
         parts = self.prog.split()
@@ -91,9 +92,17 @@ def build_parser(command: str | None = None) -> argparse.ArgumentParser:
     return parser
 
 
+# The start screen's own options may come without its command word: `fieldtool --logs DIR`
+# means `fieldtool tui --logs DIR`, as the plain `fieldtool` opens the start screen.
+START_OPTIONS = ("--logs", "--technician", "--cache", "--store", "--settings")
+
+
 def main(argv: list[str] | None = None) -> int:
     """Run one subcommand; return its exit code."""
-    words = sys.argv[1:] if argv is None else argv
+    words = list(sys.argv[1:] if argv is None else argv)
+    if words and words[0].split("=", 1)[0] in START_OPTIONS:
+        words.insert(0, "tui")
+    argv = words
     command = next((w for w in words if not w.startswith("-")), None)
     args = build_parser(command).parse_args(argv)
     if not hasattr(args, "handler"):  # only the full parser carries the start screen's default
