@@ -194,6 +194,11 @@ class StartScreen(Commands, Screen):
             raise InputError("no port chosen; pick one from the list or type a device or URL")
         return MeterChoice(kind="port", port=name, settings=settings)
 
+    @on(OptionList.OptionSelected, "#profiles")
+    def _profile_picked(self) -> None:
+        # the board's serial is what a technician types next, though it sits in the other column
+        self.query_one("#serial", Input).focus()
+
     @on(OptionList.OptionHighlighted, "#profiles")
     def _profile_changed(self) -> None:
         entry = self.chosen_entry()

@@ -126,3 +126,16 @@ def test_the_standing_warning_uses_the_hazard_signal_word():
     from fieldtool.tui.app import help_text
 
     assert f"{SIGNAL_WORD}: Stored charge can kill" in help_text()
+
+
+async def test_enter_on_a_profile_goes_to_the_board_serial(tmp_path):
+    # the serial is the next thing to type (common practice, no source)
+    app = make_app(logs_dir=tmp_path, technician="jdoe")
+    async with app.run_test(size=(80, 24)) as pilot:
+        await until(pilot, lambda: isinstance(app.screen, StartScreen), what="start screen")
+        app.screen.query_one("#profiles").focus()
+        await pilot.press("down", "enter")
+        await pilot.pause()
+        assert app.focused is app.screen.query_one("#serial")
+        await pilot.press(*"TG-0042")
+        assert app.screen.query_one("#serial").value == "TG-0042"
