@@ -267,13 +267,17 @@ class ProbingScreen(MeasuringFlow, Commands, Screen):
     def on_key(self, event) -> None:
         """A digit typed anywhere but the entry starts a typed reading."""
         entry = self.query_one("#entry", Input)
-        if self.focused is entry or event.character is None:
+        if event.character is None or event.character not in TYPING_KEYS:
             return
-        if event.character in TYPING_KEYS:
+        if self.focused is entry:
+            # The entry keeps its own keys; one seen here was sent to another widget before
+            # the entry took the focus (keys typed fast after the first digit): it belongs there.
+            entry.insert_text_at_cursor(event.character)
+        else:
             entry.value = event.character
             entry.cursor_position = len(entry.value)
-            entry.focus()
-            event.stop()
+            self.set_focus(entry)
+        event.stop()
 
     @on(Input.Submitted, "#entry")
     def _typed(self, event: Input.Submitted) -> None:

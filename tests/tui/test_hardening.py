@@ -139,3 +139,18 @@ async def test_enter_on_a_profile_goes_to_the_board_serial(tmp_path):
         assert app.focused is app.screen.query_one("#serial")
         await pilot.press(*"TG-0042")
         assert app.screen.query_one("#serial").value == "TG-0042"
+
+
+async def test_digits_typed_in_a_burst_all_reach_the_entry(profile, cache_dir, tmp_path):
+    # A terminal hands over keys typed quickly (or pasted by a keyboard wedge) all at once;
+    # the first digit opens the entry and the rest must follow it there, none lost.
+    from textual import events
+
+    app = typed_app(profile, tmp_path, cache_dir)
+    async with app.run_test(size=(80, 24)) as pilot:
+        screen = await probing(pilot)
+        for ch in "99.1":
+            app.post_message(events.Key(ch, ch))  # posted together, not one idle apart
+        await pilot.pause()
+        await pilot.pause()
+        assert screen.query_one("#entry").value == "99.1"
