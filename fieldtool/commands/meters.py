@@ -20,6 +20,7 @@ from fieldtool.meters.modes import mode_of
 from fieldtool.meters.settings import (
     BAUD_RATES,
     COMMAND_DELAY_S,
+    PROTOCOLS,
     MeterSettings,
     load_settings,
     with_overrides,
@@ -56,7 +57,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         help="the meter's port: a device such as /dev/ttyUSB0 (see 'fieldtool ports') or a URL "
         "such as socket://HOST:PORT",
     )
-    read.add_argument("--protocol", choices=("scpi", "stream"))
+    read.add_argument("--protocol", choices=PROTOCOLS)
     read.add_argument("--baud", type=BAUD, help="serial speed (default 9600, or the settings')")
     read.add_argument("--settings", help="meter settings TOML file")
     read.add_argument("--settle", action="store_true", help="wait for the reading to settle")
@@ -89,7 +90,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     sim.add_argument("--hidden", action="store_true", help="keep the fault off the screen")
     sim.add_argument(
         "--protocol",
-        choices=("scpi", "stream"),
+        choices=PROTOCOLS,
         default="scpi",
         help="answer SCPI queries (default) or print a reading line four times a second",
     )

@@ -22,7 +22,7 @@ from fieldtool.core.diagnosis.coverage import coverage
 from fieldtool.core.diagnosis.dictionary_cache import load_or_build
 from fieldtool.core.diagnosis.faults import Fault, catalog
 from fieldtool.core.errors import InputError
-from fieldtool.meters.settings import MeterSettings, load_settings, with_overrides
+from fieldtool.meters.settings import PROTOCOLS, MeterSettings, load_settings, with_overrides
 
 DEMO_PROFILE = "tidegauge-apd-bias"  # a shipped profile, by name
 FINDABLE_SIGMAS = 3.0  # a fault is findable where a reading moves beyond 3× its spread
@@ -43,7 +43,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     probe.add_argument("profile", help=PROFILE_HELP)
     probe.add_argument("--board", required=True, help="the board's serial")
     probe.add_argument("--port", help="meter port or URL (omit to type readings)")
-    probe.add_argument("--protocol", choices=("scpi", "stream"))
+    probe.add_argument("--protocol", choices=PROTOCOLS)
     probe.add_argument("--baud", type=BAUD, help="serial speed (default 9600, or the settings')")
     probe.add_argument("--settings", help="meter settings TOML file")
     choice = probe.add_mutually_exclusive_group()
