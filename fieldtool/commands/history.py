@@ -203,14 +203,26 @@ def run_merge(args: argparse.Namespace) -> int:
     return 0
 
 
+def _name_given(text: str) -> str:
+    """The profile name in ``text``: a name, or the name of a ``.toml`` path's profile."""
+    if looks_like_path(text):
+        return profile_arg(text).name
+    return check_name(text, "profile name", existing=True)
+
+
+def _known_profiles() -> list[str]:
+    """The board types this laptop has a profile for (the user's and the shipped ones)."""
+    return [e.name for e in available(user_profiles_dir(os.environ))]
+
+
 def profile_name_of(text: str, logs: Path) -> str:
     """A profile name from a name or a ``.toml`` path; a name must be a profile fieldtool knows
     or one with histories in ``logs``, so a slip is not shown as an empty fleet."""
+    name = _name_given(text)
     if looks_like_path(text):
-        return profile_arg(text).name
-    name = check_name(text, "profile name", existing=True)
+        return name
     with_histories = profiles_with_histories(logs)
-    known = [e.name for e in available(user_profiles_dir(os.environ))]
+    known = _known_profiles()
     if name in with_histories or name in known:
         return name
     close = difflib.get_close_matches(name, [*with_histories, *known], n=3)
@@ -222,16 +234,18 @@ def _store_fleet(address: StoreAddress, text: str) -> FleetView:
     """The fleet of a board type from the store, which may know board types this laptop has
     no profile for; a board type this laptop knows but the store holds nothing for has an
     empty fleet, as from files."""
-    if looks_like_path(text):
-        name = profile_arg(text).name
-    else:
-        name = check_name(text, "profile name", existing=True)
+    name = _name_given(text)
     try:
         return store_fleet.fleet_view(address, name)
     except NotFoundError:
-        if name in (e.name for e in available(user_profiles_dir(os.environ))):
+        if name in _known_profiles():
             return finish_view(name, ViewParts())
         raise
+
+
+def _files_fleet(text: str, option: str | None) -> FleetView:
+    logs = existing_logs(option)
+    return fleet_view(logs, profile_name_of(text, logs))
 
 
 def run_fleet(args: argparse.Namespace) -> int:
@@ -239,9 +253,7 @@ def run_fleet(args: argparse.Namespace) -> int:
     view = _from_store(
         args,
         lambda address: _store_fleet(address, args.profile),
-        lambda: fleet_view(
-            existing_logs(args.logs), profile_name_of(args.profile, existing_logs(args.logs))
-        ),
+        lambda: _files_fleet(args.profile, args.logs),
     )
     if args.json:
         print(json.dumps(view.to_json(), indent=2, ensure_ascii=False))

@@ -47,7 +47,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     read = subparsers.add_parser(
         "read",
         help="take one reading from a meter",
-        description="Take one DC-volts reading from a meter on a serial port and print it "
+        description="Take one reading from a meter on a serial port (DC volts unless --kind "
+        "names another) and print it "
         "(OL when over range), to check the connection and settings before probing. With "
         "--settle it waits until a few readings in a row agree, as the probing screen does.",
     )
