@@ -147,7 +147,10 @@ def parse_condition(name: str, text: str) -> float:
 def _finite(value: Any, what: str) -> float:
     if isinstance(value, bool) or not isinstance(value, int | float):
         raise InputError(f"{what} must be a number, not {value!r}")
-    number = float(value)
+    try:
+        number = float(value)
+    except OverflowError:  # an integer too long for a float: no meter shows one
+        raise InputError(f"{what} must be a finite number, not an integer that long") from None
     if not math.isfinite(number):
         raise InputError(f"{what} must be a finite number, not {value!r}")
     return number

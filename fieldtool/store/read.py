@@ -10,6 +10,7 @@ from pathlib import Path
 from fieldtool.core.history import (
     BoardHistory,
     NotFoundError,
+    board_path,
     check_name,
     parse_lines,
 )
@@ -67,11 +68,7 @@ def pull(address: StoreAddress, serials: list[str], logs_dir: Path | str) -> Mer
                 for profile, board_lines in by_profile.items():
                     # the fleet already holds this board under this name, perhaps from an
                     # older version whose naming rule was looser: keep its name
-                    path = (
-                        Path(tmp)
-                        / check_name(profile, "profile name", existing=True)
-                        / f"{check_name(serial, existing=True)}.jsonl"
-                    )
+                    path = board_path(tmp, profile, serial, existing=True)
                     path.parent.mkdir(parents=True, exist_ok=True)
                     path.write_text("\n".join(board_lines) + "\n", encoding="utf-8")
         return merge(tmp, Path(logs_dir), workers=1)

@@ -146,3 +146,12 @@ def test_a_ripple_without_its_node_s_dc_is_written_in_the_long_form():
     text = readings_csv(alone)
     assert text.splitlines()[0] == "measure,at,value"
     assert parse_readings_csv(text, NODES, where="r.csv") == alone
+
+
+def test_an_integer_too_long_for_a_float_is_the_tools_error_not_an_overflow():
+    # JSON allows integers of any length; a record an older version wrote may hold one
+    # (found by the history loader's property test)
+    with pytest.raises(InputError, match="not an integer that long"):
+        Measurement("S3", DC, 10**400, Source("typed"))
+    with pytest.raises(InputError, match="spread must be a finite number"):
+        Measurement("S3", DC, 45.2, Source("typed"), spread=10**400)

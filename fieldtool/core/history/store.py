@@ -94,9 +94,12 @@ def resolve_logs_dir(option: str | os.PathLike[str] | None, env: Mapping[str, st
     return Path.cwd() / "logs"
 
 
-def board_path(logs_dir: Path | str, profile: str, serial: str) -> Path:
-    """Where one board's history lives for one profile (names checked as for a new file)."""
-    return Path(logs_dir) / check_name(profile, "profile name") / f"{check_name(serial)}.jsonl"
+def board_path(logs_dir: Path | str, profile: str, serial: str, *, existing: bool = False) -> Path:
+    """Where one board's history lives for one profile (names checked as for a new file; with
+    ``existing``, as for a board the fleet already holds, whose name an older version let
+    through)."""
+    profile_dir = check_name(profile, "profile name", existing=existing)
+    return Path(logs_dir) / profile_dir / f"{check_name(serial, existing=existing)}.jsonl"
 
 
 # --- writing ------------------------------------------------------------------------------
