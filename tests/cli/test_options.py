@@ -101,7 +101,7 @@ def test_top_level_help_is_written_for_a_technician(capsys):
     "command, words",
     [
         (["ports"], "List the serial ports"),
-        (["read"], "Take one DC-volts reading"),
+        (["read"], "Take one reading from a meter"),
         (["demo"], "fieldtool-demo in the system's temporary folder"),
     ],
 )
